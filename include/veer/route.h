@@ -1,0 +1,90 @@
+/* veer: routes. A route is a start pose and a list of legs; travel legs take
+ * their waypoints, in order, from one shared waypoint list.
+ *
+ * Every leg ends at rest. A travel leg ends at its last waypoint; stop
+ * waypoints inside it are also rests, pass-through waypoints are corners that
+ * the path rounds within the leg's corner tolerance.
+ * World frame: x, y in metres on the range, yaw in radians counter-clockwise.
+ * SPDX-License-Identifier: MIT */
+#ifndef VEER_ROUTE_H
+#define VEER_ROUTE_H
+
+#include "veer/status.h"
+#include "veer/drive.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+#define VEER_MAX_LEGS 32
+#define VEER_MAX_WAYPOINTS 64
+
+typedef struct {
+    double x, y;  /* world position, m */
+    double yaw;   /* world heading, rad; used by heading BLEND when has_yaw */
+    int has_yaw;  /* 0 or 1 */
+    int stop;     /* 1: come to rest here; 0: pass through (rounded corner). The leg's last waypoint is always a stop. */
+    double dwell; /* s to stand still at a stop, >= 0 */
+} veer_waypoint;
+
+typedef enum {
+    VEER_LEG_UNSPECIFIED = 0,
+    VEER_LEG_TRAVEL = 1, /* through waypoints */
+    VEER_LEG_SPIN = 2,   /* turn in place to a yaw */
+    VEER_LEG_PIVOT = 3   /* rotate the body about a world point by an angle */
+} veer_leg_kind;
+
+typedef enum {
+    VEER_HEADING_UNSPECIFIED = 0,
+    VEER_HEADING_HOLD = 1,    /* keep the yaw the leg starts with */
+    VEER_HEADING_TANGENT = 2, /* face the direction of travel (or away, with reversed) */
+    VEER_HEADING_TOWARD = 3,  /* face a world point (toward_x, toward_y) */
+    VEER_HEADING_BLEND = 4    /* interpolate smoothly between the yaws of waypoints with has_yaw */
+} veer_heading_kind;
+
+typedef struct {
+    veer_leg_kind kind;
+    /* travel */
+    int waypoint_count;          /* waypoints this leg takes from the route's list, >= 1 */
+    veer_heading_kind heading;   /* default HOLD */
+    int reversed;                /* TANGENT: 1 faces away from the direction of travel */
+    double toward_x, toward_y;   /* TOWARD: world point to face, m */
+    double corner_tolerance;     /* m: how far a rounded corner may pass from its waypoint, default 0.25 */
+    /* spin */
+    double yaw;                  /* target world yaw, rad */
+    int direction;               /* spin: 0 the shorter way, +1 counter-clockwise, -1 clockwise */
+    /* pivot */
+    double pivot_x, pivot_y;     /* world point the body rotates about, m */
+    double angle;                /* signed rotation, rad, counter-clockwise positive */
+    /* all kinds */
+    double dwell;                /* s to stand still at the end of the leg, >= 0 */
+} veer_leg;
+
+typedef struct {
+    double start_x, start_y, start_yaw;  /* pose the cart starts from at rest */
+    int has_start_steer;                 /* 1: start_steer holds the modules' angles at the start */
+    double start_steer[VEER_MAX_MODULES];/* rad relative to body x; otherwise all modules start at 0 */
+    int leg_count;
+    veer_leg legs[VEER_MAX_LEGS];
+    int waypoint_count;
+    veer_waypoint waypoints[VEER_MAX_WAYPOINTS];
+} veer_route;
+
+/* An empty route starting at rest at (x, y, yaw). */
+VEER_API veer_route veer_default_route(double x, double y, double yaw);
+/* A leg of the given kind with defaults (HOLD heading, 0.25 m corner
+ * tolerance, no dwell, no waypoints). */
+VEER_API veer_leg veer_default_leg(veer_leg_kind kind);
+/* A pass-through waypoint without a yaw. */
+VEER_API veer_waypoint veer_default_waypoint(double x, double y);
+
+/* Appends a leg (its waypoint_count is reset to 0; add its waypoints next).
+ * VEER_ERR_CAPACITY when the route is full; the route is then unchanged. */
+VEER_API VEER_NODISCARD veer_status veer_route_add_leg(veer_route *route, const veer_leg *leg);
+/* Appends a waypoint to the last leg, which must be a travel leg. */
+VEER_API VEER_NODISCARD veer_status veer_route_add_waypoint(veer_route *route, const veer_waypoint *wp);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,91 @@
+/* veer internals shared between the boxes of the data flow. Not installed.
+ * SPDX-License-Identifier: MIT */
+#ifndef VEER_INTERNAL_H
+#define VEER_INTERNAL_H
+
+#include <math.h>
+#include <stdarg.h>
+#include "veer/veer.h"
+
+#define VEER_PI 3.14159265358979323846
+
+/* Allocation through the hook (alloc.c). veer__free takes the size asked for. */
+void *veer__alloc(size_t size);
+void *veer__calloc(size_t count, size_t size); /* zeroed; NULL on overflow */
+void veer__free(void *ptr, size_t size);
+
+/* Fills diag (which may be NULL) and returns status. printf-style message.
+ * leg, waypoint, grid_index: -1 when not applicable; s: -1 when not applicable. */
+veer_status veer__fail(veer_diag *diag, veer_status status, int leg, int waypoint, int grid_index, double s,
+                       veer_limit_id limit, const char *fmt, ...)
+#if defined(__GNUC__)
+    __attribute__((format(printf, 8, 9)))
+#endif
+    ;
+/* Resets diag to success (no-op on NULL). */
+void veer__diag_ok(veer_diag *diag);
+/* A limit id; module -1 for body limits. */
+static inline veer_limit_id veer__limit(int kind, int module) {
+    veer_limit_id id;
+    id.kind = kind;
+    id.module = module;
+    return id;
+}
+static inline int veer__finite(double v) { return isfinite(v); }
+/* Wraps an angle into (-pi, pi]. */
+double veer__wrap(double a);
+
+/* ---- drive (drive.c, drive_*.c) ---------------------------------------- */
+
+/* Linear drives (mecanum, omni, differential): wheel_rate = J * (vx, vy, wz).
+ * Writes veer_drive_module_count() rows; returns 0 for steered drives. */
+int veer__drive_wheel_matrix(const veer_drive_def *drive, double J[VEER_MAX_MODULES][3]);
+
+/* ---- path (path.c) ------------------------------------------------------ */
+
+/* One piece of the path: a straight line, a rounded corner (degree-7
+ * polynomial), a spin in place or a pivot about a point, with the yaw law of
+ * its leg. The layout is private to path.c. */
+typedef struct {
+    int kind;           /* private to path.c */
+    int heading;        /* veer_heading_kind, or 0 for spin/pivot */
+    double s0, len;     /* global path position where the piece starts, its length in s */
+    double c[2][8];     /* polynomial / line / arc parameters, private to path.c */
+    double yaw_p[8];    /* yaw-law parameters, private to path.c */
+} veer_path_piece;
+
+#define VEER_PATH_MAX_PIECES (2 * VEER_MAX_WAYPOINTS + 2 * VEER_MAX_LEGS + 4)
+#define VEER_PATH_MAX_SEGMENTS (VEER_MAX_WAYPOINTS + VEER_MAX_LEGS)
+
+/* A rest-to-rest stretch of the path: the cart is at rest at s_begin and s_end. */
+typedef struct {
+    double s_begin, s_end;  /* global path positions */
+    int first_piece, piece_count;
+    int leg;                /* route leg index */
+    int waypoint;           /* route waypoint index it ends at, -1 for spin and pivot legs */
+    double dwell;           /* s to stand still after arriving at s_end */
+} veer_path_segment;
+
+typedef struct {
+    double length;          /* total s */
+    int piece_count;
+    veer_path_piece pieces[VEER_PATH_MAX_PIECES];
+    int segment_count;
+    veer_path_segment segments[VEER_PATH_MAX_SEGMENTS];
+    double end_pose[3];
+} veer_path;
+
+/* Builds the path of a route: checks it (NaN, coincident waypoints, counts,
+ * corners too sharp to round, heading intents that cannot start from the
+ * pose the leg starts with) and fills out. On failure out is unspecified and
+ * diag names the leg and waypoint. */
+veer_status veer__path_build(const veer_route *route, veer_path *out, veer_diag *diag);
+
+/* q(s), q'(s), q''(s) within segment seg (s clamped to the segment), where
+ * q = (x, y, yaw); yaw is continuous along the whole path (no wraps). */
+void veer__path_eval(const veer_path *path, int seg, double s, double q[3], double dq[3], double ddq[3]);
+
+/* The segment holding s (the later one at a shared rest), clamped. */
+int veer__path_segment_at(const veer_path *path, double s);
+
+#endif
