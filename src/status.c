@@ -1,0 +1,91 @@
+/* Status and limit names, diagnostics, version. One table each (status.h).
+ * SPDX-License-Identifier: MIT */
+#include <stdio.h>
+#include <string.h>
+#include "internal.h"
+
+const char *veer_status_str(veer_status status) {
+    switch (status) {
+#define VEER_STATUS_STR_(name, value, text) \
+    case VEER_##name:                       \
+        return text;
+        VEER_STATUS_TABLE(VEER_STATUS_STR_)
+#undef VEER_STATUS_STR_
+    }
+    return "unknown status";
+}
+
+const char *veer_status_name(veer_status status) {
+    switch (status) {
+#define VEER_STATUS_NAME_(name, value, text) \
+    case VEER_##name:                        \
+        return #name;
+        VEER_STATUS_TABLE(VEER_STATUS_NAME_)
+#undef VEER_STATUS_NAME_
+    }
+    return "UNKNOWN";
+}
+
+static const char *limit_text(int kind) {
+    switch (kind) {
+#define VEER_LIMIT_STR_(name, value, text) \
+    case VEER_LIMIT_##name:                \
+        return text;
+        VEER_LIMIT_TABLE(VEER_LIMIT_STR_)
+#undef VEER_LIMIT_STR_
+    }
+    return "unknown";
+}
+
+size_t veer_limit_name(veer_limit_id id, char *buf, size_t size) {
+    char tmp[64];
+    int n;
+    if (id.module >= 0)
+        n = snprintf(tmp, sizeof tmp, "%s[%d]", limit_text(id.kind), id.module);
+    else
+        n = snprintf(tmp, sizeof tmp, "%s", limit_text(id.kind));
+    if (n < 0) n = 0;
+    if (buf && size > 0) {
+        size_t len = (size_t)n < size - 1 ? (size_t)n : size - 1;
+        memcpy(buf, tmp, len);
+        buf[len] = '\0';
+    }
+    return (size_t)n;
+}
+
+void veer__diag_ok(veer_diag *diag) {
+    if (!diag) return;
+    memset(diag, 0, sizeof *diag);
+    diag->status = VEER_OK;
+    diag->leg = diag->waypoint = diag->grid_index = -1;
+    diag->s = -1.0;
+    diag->limit = veer__limit(VEER_LIMIT_NONE, -1);
+}
+
+veer_status veer__fail(veer_diag *diag, veer_status status, int leg, int waypoint, int grid_index, double s,
+                       veer_limit_id limit, const char *fmt, ...) {
+    if (!diag) return status;
+    veer__diag_ok(diag);
+    diag->status = status;
+    diag->leg = leg;
+    diag->waypoint = waypoint;
+    diag->grid_index = grid_index;
+    diag->s = isfinite(s) ? s : -1.0;
+    diag->limit = limit;
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(diag->message, sizeof diag->message, fmt, ap);
+    va_end(ap);
+    return status;
+}
+
+double veer__wrap(double a) {
+    if (!isfinite(a)) return 0.0;
+    a = fmod(a, 2.0 * VEER_PI);
+    if (a <= -VEER_PI) a += 2.0 * VEER_PI;
+    if (a > VEER_PI) a -= 2.0 * VEER_PI;
+    return a;
+}
+
+unsigned veer_version(void) { return (unsigned)VEER_VERSION_HEX; }
+const char *veer_version_string(void) { return VEER_VERSION_STRING; }
