@@ -41,6 +41,28 @@ double veer__wrap(double a);
  * Writes veer_drive_module_count() rows; returns 0 for steered drives. */
 int veer__drive_wheel_matrix(const veer_drive_def *drive, double J[VEER_MAX_MODULES][3]);
 
+/* Fails a drive call: no leg, waypoint, grid point, path position or limit. */
+#define VEER__DRIVE_FAIL(diag, status, ...) \
+    veer__fail((diag), (status), -1, -1, -1, -1.0, veer__limit(VEER_LIMIT_NONE, -1), __VA_ARGS__)
+/* Solves the symmetric positive definite 3x3 system N x = b by Cholesky
+ * (drive.c). Returns 0, or -1 (x untouched) if N is not positive definite. */
+int veer__drive_solve3(const double N[3][3], const double b[3], double x[3]);
+/* Per-kind parts behind drive.c's dispatch. The checks see a drive whose kind,
+ * module count and wheel radius are already valid; the others a drive that
+ * passed veer_drive_check and finite inputs. */
+veer_status veer__drive_steered_check(const veer_drive_def *drive, veer_diag *diag);
+void veer__drive_steered_inverse(const veer_drive_def *drive, const double twist[3], const double *prev_steer,
+                                 double *steer, double *wheel_rate);
+int veer__drive_steered_forward(const veer_drive_def *drive, const double *steer, const double *wheel_rate,
+                                double twist[3]);
+veer_status veer__drive_mecanum_check(const veer_drive_def *drive, veer_diag *diag);
+int veer__drive_mecanum_matrix(const veer_drive_def *drive, double J[VEER_MAX_MODULES][3]);
+veer_status veer__drive_omni_check(const veer_drive_def *drive, veer_diag *diag);
+int veer__drive_omni_matrix(const veer_drive_def *drive, double J[VEER_MAX_MODULES][3]);
+veer_status veer__drive_differential_check(const veer_drive_def *drive, veer_diag *diag);
+int veer__drive_differential_matrix(const veer_drive_def *drive, double J[VEER_MAX_MODULES][3]);
+void veer__drive_differential_forward(const veer_drive_def *drive, const double *wheel_rate, double twist[3]);
+
 /* ---- path (path.c) ------------------------------------------------------ */
 
 /* One piece of the path: a straight line, a rounded corner (degree-7
