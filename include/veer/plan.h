@@ -9,6 +9,7 @@
 #ifndef VEER_PLAN_H
 #define VEER_PLAN_H
 
+#include <math.h>
 #include "veer/status.h"
 #include "veer/drive.h"
 #include "veer/route.h"
@@ -19,7 +20,7 @@ extern "C" {
 
 /* A limit left at VEER_UNLIMITED (+infinity) does not constrain the plan.
  * Limits must be > 0; a zero limit makes the request infeasible. */
-#define VEER_UNLIMITED (__builtin_inf())
+#define VEER_UNLIMITED ((double)INFINITY)
 
 typedef struct {
     double wheel_rate;  /* rad/s, magnitude of the wheel's rate */

@@ -1,0 +1,266 @@
+/* Plan: route -> path -> constraint rows on a grid -> time-optimal profile
+ * per rest-to-rest segment -> steer angles and re-steer phases -> timeline.
+ * SPDX-License-Identifier: MIT */
+#include <string.h>
+#include "plan_internal.h"
+
+#define VEER_GRID_MIN 16
+#define VEER_GRID_MAX 50000
+#define VEER_SEGMENT_MIN_INTERVALS 8
+
+veer_limits veer_default_limits(void) {
+    veer_limits l;
+    memset(&l, 0, sizeof l);
+    for (int i = 0; i < VEER_MAX_MODULES; i++) {
+        l.modules[i].wheel_rate = VEER_UNLIMITED;
+        l.modules[i].wheel_accel = VEER_UNLIMITED;
+        l.modules[i].steer_rate = VEER_UNLIMITED;
+        l.modules[i].steer_min = -VEER_UNLIMITED;
+        l.modules[i].steer_max = VEER_UNLIMITED;
+    }
+    l.body_speed = l.body_accel = l.yaw_rate = l.yaw_accel = VEER_UNLIMITED;
+    return l;
+}
+
+veer_plan_options veer_default_plan_options(void) {
+    veer_plan_options o;
+    memset(&o, 0, sizeof o);
+    o.grid_points = 1000;
+    o.accel_polygon_sides = 32;
+    return o;
+}
+
+static veer_status check_options(const veer_plan_options *o, veer_diag *diag) {
+    veer_limit_id none = veer__limit(VEER_LIMIT_NONE, -1);
+    if (o->grid_points < VEER_GRID_MIN || o->grid_points > VEER_GRID_MAX)
+        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, none, "grid_points must be in [%d, %d], got %d",
+                          VEER_GRID_MIN, VEER_GRID_MAX, o->grid_points);
+    if (o->accel_polygon_sides < 8 || o->accel_polygon_sides > 256 || o->accel_polygon_sides % 2)
+        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, none,
+                          "accel_polygon_sides must be even and in [8, 256], got %d", o->accel_polygon_sides);
+    return VEER_OK;
+}
+
+void veer_plan_destroy(veer_plan *plan) {
+    if (!plan) return;
+    size_t grid_bytes = (size_t)plan->n * (3 * sizeof(double) + sizeof(veer_limit_id)) +
+                        (size_t)plan->n * (size_t)plan->module_count * sizeof(double);
+    veer__free(plan->s, grid_bytes);
+    veer__free(plan, plan->alloc_size);
+}
+
+/* Intervals per segment, in proportion to segment length. */
+static int grid_layout(const veer_path *path, int points, int *intervals) {
+    int nseg = path->segment_count, total = 0;
+    int budget = points - nseg;
+    for (int j = 0; j < nseg; j++) {
+        double len = path->segments[j].s_end - path->segments[j].s_begin;
+        int n = (int)lround(budget * len / path->length);
+        intervals[j] = n < VEER_SEGMENT_MIN_INTERVALS ? VEER_SEGMENT_MIN_INTERVALS : n;
+        total += intervals[j] + 1;
+    }
+    return total;
+}
+
+/* Work buffers for one segment's solve, sized for the longest segment. */
+typedef struct {
+    veer_row *rows;
+    int *row_count;
+    double *xmax, *K;
+    veer_limit_id *xmax_id;
+    size_t bytes;
+} workspace;
+
+static veer_status solve_segment(veer_plan *plan, int j, workspace *ws, veer_diag *diag) {
+    veer_plan_segment *sg = &plan->segs[j];
+    const veer_path_segment *ps = &plan->path.segments[j];
+    int n = sg->k1 - sg->k0 + 1, m = veer__max_u_rows(&plan->drive, &plan->options);
+    double *s = plan->s + sg->k0, *x = plan->x + sg->k0;
+    for (int k = 0; k < n; k++) {
+        veer_point_kin pk;
+        veer__point_kin(&plan->path, j, s[k], &pk);
+        int c = veer__point_rows(&plan->drive, &plan->limits, &plan->options, &pk, ws->rows + (size_t)k * (size_t)m,
+                                 &ws->xmax[k], &ws->xmax_id[k]);
+        if (c < 0)
+            return veer__fail(diag, VEER_ERR_INFEASIBLE, ps->leg, ps->waypoint, sg->k0 + k, s[k], ws->xmax_id[k],
+                              "leg %d: a differential drive cannot move sideways (at s = %.3f); use heading "
+                              "tangent or a spin leg",
+                              ps->leg, s[k]);
+        ws->row_count[k] = c;
+    }
+    veer_topp_problem p = {n, s, ws->xmax, ws->xmax_id, ws->rows, ws->row_count, m};
+    int bad = 0;
+    veer_status st = veer__topp_solve(&p, x, ws->K, &bad);
+    if (st != VEER_OK) {
+        char name[48];
+        veer_limit_id id = ws->xmax_id[bad];
+        veer_limit_name(id, name, sizeof name);
+        return veer__fail(diag, st, ps->leg, ps->waypoint, sg->k0 + bad, s[bad], id,
+                          "leg %d: no motion fits the limits at s = %.3f (limit %s)", ps->leg, s[bad], name);
+    }
+    double t = 0.0;
+    for (int k = 0; k < n; k++) {
+        if (x[k] > 1e18)
+            return veer__fail(diag, VEER_ERR_UNBOUNDED, ps->leg, ps->waypoint, sg->k0 + k, s[k],
+                              veer__limit(VEER_LIMIT_NONE, -1),
+                              "leg %d: nothing limits the speed at s = %.3f; set body_speed, body_accel or the "
+                              "wheel limits",
+                              ps->leg, s[k]);
+        plan->binding[sg->k0 + k] = veer__topp_binding(&p, x, k);
+        if (k > 0) t += 2.0 * (s[k] - s[k - 1]) / (sqrt(x[k - 1]) + sqrt(x[k]));
+        plan->t[sg->k0 + k] = t; /* relative to the segment's motion start; shifted below */
+    }
+    sg->move_time = t;
+    return VEER_OK;
+}
+
+static veer_status build(veer_plan *plan, veer_diag *diag) {
+    const veer_path *path = &plan->path;
+    int intervals[VEER_PATH_MAX_SEGMENTS];
+    int n = grid_layout(path, plan->options.grid_points, intervals);
+    int M = plan->module_count;
+    size_t grid_bytes = (size_t)n * (3 * sizeof(double) + sizeof(veer_limit_id)) + (size_t)n * (size_t)M * sizeof(double);
+    char *g = veer__alloc(grid_bytes);
+    if (!g) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
+    plan->n = n;
+    plan->s = (double *)g;
+    plan->x = plan->s + n;
+    plan->t = plan->x + n;
+    plan->steer = plan->t + n;
+    plan->binding = (veer_limit_id *)(plan->steer + (size_t)n * (size_t)M);
+
+    int k = 0, longest = 0;
+    plan->segment_count = path->segment_count;
+    for (int j = 0; j < path->segment_count; j++) {
+        veer_plan_segment *sg = &plan->segs[j];
+        const veer_path_segment *ps = &path->segments[j];
+        sg->k0 = k;
+        sg->k1 = k + intervals[j];
+        for (int i = 0; i <= intervals[j]; i++)
+            plan->s[k + i] = ps->s_begin + (ps->s_end - ps->s_begin) * i / intervals[j];
+        plan->s[sg->k1] = ps->s_end;
+        if (intervals[j] + 1 > longest) longest = intervals[j] + 1;
+        k = sg->k1 + 1;
+        sg->dwell = ps->dwell;
+    }
+
+    workspace ws;
+    int m = veer__max_u_rows(&plan->drive, &plan->options);
+    ws.bytes = (size_t)longest * ((size_t)m * sizeof(veer_row) + sizeof(int) + 2 * sizeof(double) + sizeof(veer_limit_id));
+    char *w = veer__alloc(ws.bytes);
+    if (!w) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
+    ws.rows = (veer_row *)w;
+    ws.xmax = (double *)(ws.rows + (size_t)longest * (size_t)m);
+    ws.K = ws.xmax + longest;
+    ws.xmax_id = (veer_limit_id *)(ws.K + longest);
+    ws.row_count = (int *)(ws.xmax_id + longest);
+
+    veer_status st = VEER_OK;
+    double from[VEER_MAX_MODULES];
+    for (int i = 0; i < M; i++) from[i] = plan->route.has_start_steer ? plan->route.start_steer[i] : 0.0;
+    double clock = 0.0;
+    for (int j = 0; j < path->segment_count && st == VEER_OK; j++) {
+        veer_plan_segment *sg = &plan->segs[j];
+        st = solve_segment(plan, j, &ws, diag);
+        if (st == VEER_OK) st = veer__steer_segment(plan, j, from, diag);
+        if (st != VEER_OK) break;
+        sg->t_resteer = clock;
+        sg->t_move = clock + sg->resteer_time;
+        for (int q = sg->k0; q <= sg->k1; q++) plan->t[q] += sg->t_move;
+        clock = sg->t_move + sg->move_time + sg->dwell;
+        for (int i = 0; i < M; i++) from[i] = plan->steer[(size_t)sg->k1 * (size_t)M + (size_t)i];
+    }
+    veer__free(w, ws.bytes);
+    if (st != VEER_OK) return st;
+    plan->duration = clock;
+
+    /* Leg summaries from the segments. */
+    plan->leg_count = plan->route.leg_count;
+    for (int l = 0; l < plan->leg_count; l++) {
+        veer_leg_summary *ls = &plan->legs[l];
+        memset(ls, 0, sizeof *ls);
+        ls->start = -1.0;
+    }
+    for (int j = 0; j < plan->segment_count; j++) {
+        const veer_plan_segment *sg = &plan->segs[j];
+        veer_leg_summary *ls = &plan->legs[path->segments[j].leg];
+        if (ls->start < 0.0) {
+            ls->start = sg->t_resteer;
+            ls->s_begin = path->segments[j].s_begin;
+        }
+        ls->s_end = path->segments[j].s_end;
+        ls->duration = sg->t_move + sg->move_time + sg->dwell - ls->start;
+        ls->resteer_time += sg->resteer_time;
+        ls->dwell_time += sg->dwell;
+    }
+    return VEER_OK;
+}
+
+veer_status veer_plan_create(const veer_drive_def *drive, const veer_limits *limits, const veer_route *route,
+                             const veer_plan_options *options, veer_plan **out, veer_diag *diag) {
+    veer__diag_ok(diag);
+    veer_limit_id none = veer__limit(VEER_LIMIT_NONE, -1);
+    if (!out) return veer__fail(diag, VEER_ERR_NULL, -1, -1, -1, -1.0, none, "out is NULL");
+    *out = NULL;
+    if (!drive || !limits || !route)
+        return veer__fail(diag, VEER_ERR_NULL, -1, -1, -1, -1.0, none, "%s is NULL",
+                          !drive ? "drive" : !limits ? "limits" : "route");
+    veer_plan_options opt = options ? *options : veer_default_plan_options();
+    veer_status st;
+    if ((st = check_options(&opt, diag))) return st;
+    if ((st = veer_drive_check(drive, diag))) return st;
+    if ((st = veer__limits_check(drive, limits, diag))) return st;
+    int M = veer_drive_module_count(drive);
+    if (route->has_start_steer)
+        for (int i = 0; i < M; i++)
+            if (!isfinite(route->start_steer[i]))
+                return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, none, "start_steer[%d] is not finite", i);
+
+    veer_plan *plan = veer__calloc(1, sizeof *plan);
+    if (!plan) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, none, "out of memory");
+    plan->alloc_size = sizeof *plan;
+    plan->drive = *drive;
+    plan->limits = *limits;
+    plan->options = opt;
+    plan->route = *route;
+    plan->module_count = M;
+    plan->steered = drive->kind == VEER_DRIVE_STEERED;
+    if ((st = veer__path_build(route, &plan->path, diag)) == VEER_OK) st = build(plan, diag);
+    if (st != VEER_OK) {
+        veer_plan_destroy(plan);
+        return st;
+    }
+    veer__diag_ok(diag);
+    *out = plan;
+    return VEER_OK;
+}
+
+double veer_plan_duration(const veer_plan *plan) { return plan ? plan->duration : 0.0; }
+double veer_plan_length(const veer_plan *plan) { return plan ? plan->path.length : 0.0; }
+int veer_plan_module_count(const veer_plan *plan) { return plan ? plan->module_count : 0; }
+int veer_plan_leg_count(const veer_plan *plan) { return plan ? plan->leg_count : 0; }
+int veer_plan_grid_count(const veer_plan *plan) { return plan ? plan->n : 0; }
+
+veer_status veer_plan_leg(const veer_plan *plan, int leg, veer_leg_summary *out) {
+    if (!plan || !out) return VEER_ERR_NULL;
+    if (leg < 0 || leg >= plan->leg_count) return VEER_ERR_VALUE;
+    *out = plan->legs[leg];
+    return VEER_OK;
+}
+
+veer_status veer_plan_grid(const veer_plan *plan, int k, double *s, double *sdot, veer_limit_id *binding) {
+    if (!plan) return VEER_ERR_NULL;
+    if (k < 0 || k >= plan->n) return VEER_ERR_VALUE;
+    if (s) *s = plan->s[k];
+    if (sdot) *sdot = sqrt(plan->x[k]);
+    if (binding) *binding = plan->binding[k];
+    return VEER_OK;
+}
+
+veer_status veer_plan_path_at(const veer_plan *plan, double s, double q[3], double dq[3], double ddq[3]) {
+    if (!plan || !q || !dq || !ddq) return VEER_ERR_NULL;
+    if (!isfinite(s)) return VEER_ERR_VALUE;
+    int seg = veer__path_segment_at(&plan->path, s);
+    veer__path_eval(&plan->path, seg, s, q, dq, ddq);
+    return VEER_OK;
+}

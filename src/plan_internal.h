@@ -1,0 +1,117 @@
+/* veer internals: the plan object and the boxes that build it
+ * (constraints.c -> topp.c -> steer.c -> plan.c; sample.c reads it).
+ * Not installed. SPDX-License-Identifier: MIT */
+#ifndef VEER_PLAN_INTERNAL_H
+#define VEER_PLAN_INTERNAL_H
+
+#include "internal.h"
+
+/* ---- constraints.c: rows a*u + b*x <= c at grid points ------------------ */
+
+/* One linear row in (u = sddot, x = sdot^2). */
+typedef struct {
+    double a, b, c;
+    veer_limit_id id;
+} veer_row;
+
+/* What the drive's modules need at one path position, per unit sdot:
+ * body twist xi = (gx, gy, w) (body frame) and its s-derivative. */
+typedef struct {
+    double q[3], dq[3], ddq[3]; /* path geometry at s */
+    double xi[3], dxi[3];       /* body twist per unit sdot and its derivative in s */
+} veer_point_kin;
+
+/* Path geometry and body twist per unit sdot at s within segment seg. */
+void veer__point_kin(const veer_path *path, int seg, double s, veer_point_kin *out);
+
+/* Body-frame velocity of steered module i per unit sdot, and its s-derivative. */
+void veer__module_velocity(const veer_drive_def *drive, int i, const veer_point_kin *pk, double v[2], double dv[2]);
+
+/* Rows at one grid point. x-only rows are folded into *xmax (and *xmax_id);
+ * rows that involve u are written to rows (at most veer__max_u_rows()).
+ * Returns the number of u-rows, or -1 if the drive cannot follow the path
+ * there (differential drive asked to move sideways: *xmax_id says so). */
+int veer__point_rows(const veer_drive_def *drive, const veer_limits *limits, const veer_plan_options *opt,
+                     const veer_point_kin *pk, veer_row *rows, double *xmax, veer_limit_id *xmax_id);
+int veer__max_u_rows(const veer_drive_def *drive, const veer_plan_options *opt);
+
+/* Checks limits against the drive: NaN/negative -> ERR_VALUE, zero -> ERR_INFEASIBLE. */
+veer_status veer__limits_check(const veer_drive_def *drive, const veer_limits *limits, veer_diag *diag);
+
+/* ---- topp.c: TOPP by reachability analysis on one rest-to-rest segment -- */
+
+typedef struct {
+    int n;                  /* grid points 0..n-1, rest at both ends */
+    const double *s;        /* [n] path positions, increasing */
+    const double *xmax;     /* [n] x-only bound at each point (may be +inf) */
+    const veer_limit_id *xmax_id; /* [n] the limit behind each xmax */
+    const veer_row *rows;   /* [n * m] u-rows per point, m per point */
+    const int *row_count;   /* [n] rows used at each point (<= m) */
+    int m;
+} veer_topp_problem;
+
+/* Fills x[n] (sdot^2) with the time-optimal profile: backward controllable
+ * sets, then the forward greedy pass (Pham & Pham, IEEE T-RO 2018), using the
+ * first-order interpolation scheme (an interval's acceleration rows hold at
+ * both of its ends). work needs n doubles. Returns VEER_OK, or
+ * VEER_ERR_INFEASIBLE with *bad_index the first point where no motion fits. */
+veer_status veer__topp_solve(const veer_topp_problem *p, double *x, double *work, int *bad_index);
+
+/* The limit binding at point k of a solved profile (kind NONE if none within
+ * a relative slack of 2e-3). */
+veer_limit_id veer__topp_binding(const veer_topp_problem *p, const double *x, int k);
+
+/* ---- the plan object (plan.c) ------------------------------------------ */
+
+typedef struct {
+    int k0, k1;                   /* grid points of this segment: k0..k1 in the plan arrays */
+    double t_resteer;             /* s: the re-steer phase before the motion starts */
+    double resteer_time;          /* s */
+    double t_move;                /* s: motion starts (= t_resteer + resteer_time) */
+    double move_time;             /* s */
+    double dwell;                 /* s at rest after the motion */
+    double steer_from[VEER_MAX_MODULES]; /* module angles when the re-steer phase starts */
+    double steer_to[VEER_MAX_MODULES];   /* ... and when it ends (= steer at k0) */
+} veer_plan_segment;
+
+struct veer_plan {
+    size_t alloc_size;            /* bytes of this block, for the allocator hook */
+    veer_drive_def drive;
+    veer_limits limits;
+    veer_plan_options options;
+    veer_route route;
+    veer_path path;
+    int module_count;
+    int steered;                  /* 1 for steered drives */
+    int n;                        /* grid points over the whole plan */
+    double *s, *x, *t;            /* [n] path position, sdot^2, time at the point */
+    double *steer;                /* [n * module_count] steer angle at each grid point (continuous) */
+    veer_limit_id *binding;       /* [n] */
+    int segment_count;
+    veer_plan_segment segs[VEER_PATH_MAX_SEGMENTS];
+    int leg_count;
+    veer_leg_summary legs[VEER_MAX_LEGS];
+    double duration;
+};
+
+/* ---- steer.c: continuous steer angles and re-steer phases -------------- */
+
+/* Steer angle of a steered module: the representative of direction dir
+ * (mod pi) nearest to ref. */
+double veer__steer_near(double dir, double ref);
+
+/* Fills plan->steer along segment j (grid points k0..k1) starting from the
+ * module angles in from[], choosing for each module the shorter steer motion
+ * or the reverse choice its steer range allows; fills the segment's
+ * re-steer phase. VEER_ERR_INFEASIBLE with diag when a module would leave
+ * its steer range. */
+veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, veer_diag *diag);
+
+/* ---- sample.c ---------------------------------------------------------- */
+
+/* Module setpoints at path position s in segment seg with sdot, sddot, given
+ * reference steer angles ref[] (continuity). */
+void veer__module_setpoints(const veer_plan *plan, int seg, const veer_point_kin *pk, double sdot, double sddot,
+                            const double *ref, veer_module_setpoint *out);
+
+#endif

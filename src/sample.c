@@ -1,0 +1,170 @@
+/* Sampling: the plan's state at any time (pose, twist, acceleration and
+ * every module's setpoint) and fixed-rate tables of it.
+ * Within a grid interval sddot is constant, so s(t) is an exact quadratic.
+ * SPDX-License-Identifier: MIT */
+#include <string.h>
+#include "plan_internal.h"
+
+#define VEER_STILL 1e-9
+
+void veer__module_setpoints(const veer_plan *plan, int seg, const veer_point_kin *pk, double sdot, double sddot,
+                            const double *ref, veer_module_setpoint *out) {
+    (void)seg;
+    const veer_drive_def *d = &plan->drive;
+    int M = plan->module_count;
+    double x = sdot * sdot;
+    if (plan->steered) {
+        for (int i = 0; i < M; i++) {
+            double v[2], dv[2];
+            veer__module_velocity(d, i, pk, v, dv);
+            double sp2 = v[0] * v[0] + v[1] * v[1], sp = sqrt(sp2);
+            veer_module_setpoint *o = &out[i];
+            if (sp <= VEER_STILL) { /* the module stands: keep the angle, rate along dv */
+                double e = ref[i];
+                o->steer = e;
+                o->steer_rate = 0.0;
+                o->wheel_rate = 0.0;
+                o->wheel_accel = (dv[0] * cos(e) + dv[1] * sin(e)) * x / d->wheel_radius;
+                continue;
+            }
+            double st = veer__steer_near(atan2(v[1], v[0]), ref[i]);
+            double ex = cos(st), ey = sin(st);
+            double along = v[0] * ex + v[1] * ey; /* +sp forward, -sp reversed */
+            o->steer = st;
+            o->steer_rate = (v[0] * dv[1] - v[1] * dv[0]) / sp2 * sdot;
+            o->wheel_rate = along * sdot / d->wheel_radius;
+            o->wheel_accel = (along * sddot + (dv[0] * ex + dv[1] * ey) * x) / d->wheel_radius;
+        }
+        return;
+    }
+    double J[VEER_MAX_MODULES][3];
+    veer__drive_wheel_matrix(d, J);
+    for (int i = 0; i < M; i++) {
+        double f = J[i][0] * pk->xi[0] + J[i][1] * pk->xi[1] + J[i][2] * pk->xi[2];
+        double df = J[i][0] * pk->dxi[0] + J[i][1] * pk->dxi[1] + J[i][2] * pk->dxi[2];
+        out[i].steer = ref[i];
+        out[i].steer_rate = 0.0;
+        out[i].wheel_rate = f * sdot;
+        out[i].wheel_accel = f * sddot + df * x;
+    }
+}
+
+/* Index of the last entry of a[0..n-1] that is <= v (0 if none). */
+static int find(const double *a, int n, double v) {
+    int lo = 0, hi = n - 1;
+    if (v >= a[hi]) return hi;
+    while (hi - lo > 1) {
+        int mid = (lo + hi) / 2;
+        if (a[mid] <= v) lo = mid;
+        else hi = mid;
+    }
+    return lo;
+}
+
+static void fill_body(veer_sample *o, const veer_point_kin *pk, double sdot, double sddot) {
+    double x = sdot * sdot;
+    double c = cos(pk->q[2]), sn = sin(pk->q[2]);
+    memcpy(o->pose, pk->q, sizeof o->pose);
+    for (int a = 0; a < 3; a++) {
+        o->twist_world[a] = pk->dq[a] * sdot;
+        o->accel_world[a] = pk->dq[a] * sddot + pk->ddq[a] * x;
+    }
+    o->twist_body[0] = c * o->twist_world[0] + sn * o->twist_world[1];
+    o->twist_body[1] = -sn * o->twist_world[0] + c * o->twist_world[1];
+    o->twist_body[2] = o->twist_world[2];
+    o->accel_body[0] = c * o->accel_world[0] + sn * o->accel_world[1];
+    o->accel_body[1] = -sn * o->accel_world[0] + c * o->accel_world[1];
+    o->accel_body[2] = o->accel_world[2];
+}
+
+static void sample_at(const veer_plan *plan, double t, veer_sample *o) {
+    int M = plan->module_count;
+    memset(o, 0, sizeof *o);
+    o->t = t;
+    o->module_count = M;
+    /* The segment whose timeline holds t. */
+    int j = 0;
+    while (j + 1 < plan->segment_count && t >= plan->segs[j + 1].t_resteer) j++;
+    const veer_plan_segment *sg = &plan->segs[j];
+    o->leg = plan->path.segments[j].leg;
+    veer_point_kin pk;
+    double ref[VEER_MAX_MODULES];
+    if (t < sg->t_move) { /* re-steer phase: modules turn at steady rates, body at rest */
+        double T = sg->resteer_time, f = T > 0.0 ? (t - sg->t_resteer) / T : 1.0;
+        if (f < 0.0) f = 0.0;
+        o->phase = VEER_PHASE_RESTEER;
+        o->s = plan->s[sg->k0];
+        veer__point_kin(&plan->path, j, o->s, &pk);
+        fill_body(o, &pk, 0.0, 0.0);
+        for (int i = 0; i < M; i++) {
+            double a = sg->steer_from[i], b = sg->steer_to[i];
+            o->modules[i].steer = a + (b - a) * f;
+            o->modules[i].steer_rate = T > 0.0 ? (b - a) / T : 0.0;
+        }
+        return;
+    }
+    double t_end = sg->t_move + sg->move_time;
+    int k;
+    double sdot, sddot, s;
+    if (t < t_end) {
+        o->phase = VEER_PHASE_MOVING;
+        k = sg->k0 + find(plan->t + sg->k0, sg->k1 - sg->k0 + 1, t);
+        if (k >= sg->k1) k = sg->k1 - 1;
+        double ds = plan->s[k + 1] - plan->s[k];
+        double v0 = sqrt(plan->x[k]);
+        sddot = (plan->x[k + 1] - plan->x[k]) / (2.0 * ds);
+        double tau = t - plan->t[k];
+        sdot = v0 + sddot * tau;
+        if (sdot < 0.0) sdot = 0.0;
+        s = plan->s[k] + v0 * tau + 0.5 * sddot * tau * tau;
+        if (s > plan->s[k + 1]) s = plan->s[k + 1];
+        if (s < plan->s[k]) s = plan->s[k];
+        double f = (s - plan->s[k]) / ds;
+        for (int i = 0; i < M; i++) {
+            double a = plan->steer[(size_t)k * (size_t)M + (size_t)i];
+            double b = plan->steer[(size_t)(k + 1) * (size_t)M + (size_t)i];
+            ref[i] = a + (b - a) * f;
+        }
+    } else { /* dwell at the segment's end, or done */
+        o->phase = (j + 1 == plan->segment_count && t >= plan->duration) ? VEER_PHASE_DONE : VEER_PHASE_DWELL;
+        k = sg->k1;
+        s = plan->s[k];
+        sdot = sddot = 0.0;
+        for (int i = 0; i < M; i++) ref[i] = plan->steer[(size_t)k * (size_t)M + (size_t)i];
+    }
+    o->s = s;
+    o->sdot = sdot;
+    o->sddot = sddot;
+    veer__point_kin(&plan->path, j, s, &pk);
+    fill_body(o, &pk, sdot, sddot);
+    veer__module_setpoints(plan, j, &pk, sdot, sddot, ref, o->modules);
+    if (o->phase != VEER_PHASE_MOVING)
+        for (int i = 0; i < M; i++) o->modules[i].steer = ref[i];
+}
+
+veer_status veer_plan_sample(const veer_plan *plan, double t, veer_sample *out) {
+    if (!plan || !out) return VEER_ERR_NULL;
+    if (isnan(t)) return VEER_ERR_VALUE;
+    if (t < 0.0) t = 0.0;
+    if (t > plan->duration) t = plan->duration;
+    sample_at(plan, t, out);
+    return VEER_OK;
+}
+
+veer_status veer_plan_table(const veer_plan *plan, double rate_hz, veer_sample *out, size_t capacity, size_t *count) {
+    if (!plan || !count) return VEER_ERR_NULL;
+    if (!(rate_hz > 0.0) || !isfinite(rate_hz) || rate_hz > 1e6) return VEER_ERR_VALUE;
+    double dt = 1.0 / rate_hz;
+    double rows = floor(plan->duration / dt + 1e-9) + 1.0;
+    if (rows > 1e8) return VEER_ERR_VALUE;
+    size_t n = (size_t)rows;
+    int extra = plan->duration - (double)(n - 1) * dt > 1e-9;
+    n += (size_t)extra;
+    *count = n;
+    if (!out || capacity < n) return VEER_ERR_BUFFER;
+    for (size_t r = 0; r < n; r++) {
+        double t = (extra && r == n - 1) ? plan->duration : (double)r * dt;
+        sample_at(plan, t > plan->duration ? plan->duration : t, &out[r]);
+    }
+    return VEER_OK;
+}

@@ -1,0 +1,124 @@
+/* Steer angles of steered modules: continuous along the path (no spurious
+ * half-turns; a standing module keeps its angle) and the re-steer phase at
+ * each rest, where every module takes the shorter steer motion or the
+ * reverse choice (wheel reversed) that its steer range allows.
+ * SPDX-License-Identifier: MIT */
+#include "plan_internal.h"
+
+#define VEER_STILL 1e-9
+/* Direction changes larger than this between two grid points are tracked
+ * through sub-steps, so a fast sweep near an ICR keeps its branch. */
+#define VEER_STEER_STEP (10.0 * VEER_PI / 180.0)
+
+double veer__steer_near(double dir, double ref) {
+    double k = nearbyint((ref - dir) / VEER_PI);
+    return dir + k * VEER_PI;
+}
+
+/* Module direction at s, or 0 when the module stands (|v| below VEER_STILL). */
+static int module_dir(const veer_plan *plan, int seg, int i, double s, double *dir) {
+    veer_point_kin pk;
+    double v[2], dv[2];
+    veer__point_kin(&plan->path, seg, s, &pk);
+    veer__module_velocity(&plan->drive, i, &pk, v, dv);
+    if (hypot(v[0], v[1]) <= VEER_STILL) return 0;
+    *dir = atan2(v[1], v[0]);
+    return 1;
+}
+
+/* Follows the branch from s_a (angle *ref) to s_b, sub-stepping fast sweeps. */
+static void track(const veer_plan *plan, int seg, int i, double sa, double sb, double *ref, int depth) {
+    double dir;
+    if (!module_dir(plan, seg, i, sb, &dir)) return;
+    double next = veer__steer_near(dir, *ref);
+    if (fabs(next - *ref) > VEER_STEER_STEP && depth < 6 && sb - sa > 1e-12) {
+        const int parts = 8;
+        for (int p = 1; p <= parts; p++)
+            track(plan, seg, i, sa + (sb - sa) * (p - 1) / parts, sa + (sb - sa) * p / parts, ref, depth + 1);
+        return;
+    }
+    *ref = next;
+}
+
+/* Steer angles of module i along segment j from start angle a0; 0 if they
+ * leave [lo, hi] (then *where is the grid point). */
+static int follow(veer_plan *plan, int j, int i, double a0, double lo, double hi, int *where) {
+    const veer_plan_segment *sg = &plan->segs[j];
+    int M = plan->module_count;
+    double ref = a0;
+    for (int k = sg->k0; k <= sg->k1; k++) {
+        if (k > sg->k0) track(plan, j, i, plan->s[k - 1], plan->s[k], &ref, 0);
+        if (ref < lo - 1e-9 || ref > hi + 1e-9) {
+            *where = k;
+            return 0;
+        }
+        plan->steer[(size_t)k * (size_t)M + (size_t)i] = ref;
+    }
+    return 1;
+}
+
+veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, veer_diag *diag) {
+    veer_plan_segment *sg = &plan->segs[j];
+    int M = plan->module_count;
+    double t_max = 0.0;
+    for (int i = 0; i < M; i++) {
+        sg->steer_from[i] = from[i];
+        sg->steer_to[i] = from[i];
+        if (!plan->steered) {
+            for (int k = sg->k0; k <= sg->k1; k++) plan->steer[(size_t)k * (size_t)M + (size_t)i] = from[i];
+            continue;
+        }
+        /* The direction the module must face when the motion starts: at the
+         * first grid point where it moves (it may stand at the very start). */
+        double dir = 0.0;
+        int moves = 0;
+        for (int k = sg->k0; k <= sg->k1 && !moves; k++) {
+            double s = plan->s[k];
+            if (k == sg->k0) s += 1e-9 * (plan->s[sg->k1] - plan->s[sg->k0]);
+            moves = module_dir(plan, j, i, s, &dir);
+        }
+        if (!moves) {
+            for (int k = sg->k0; k <= sg->k1; k++) plan->steer[(size_t)k * (size_t)M + (size_t)i] = from[i];
+            continue;
+        }
+        const veer_module_limits *ml = &plan->limits.modules[i];
+        /* Candidates dir + k pi, nearest first: the shorter motion, then the
+         * reverse choice, and so on, until one stays within the steer range. */
+        double cand[9];
+        for (int c = 0; c < 9; c++) cand[c] = veer__steer_near(dir, from[i]) + (c - 4) * VEER_PI;
+        for (int a = 1; a < 9; a++) /* nearest to the current angle first */
+            for (int b = a; b > 0 && fabs(cand[b] - from[i]) < fabs(cand[b - 1] - from[i]); b--) {
+                double tmp = cand[b];
+                cand[b] = cand[b - 1];
+                cand[b - 1] = tmp;
+            }
+        int where = sg->k0, ok = 0;
+        double chosen = cand[0];
+        for (int c = 0; c < 9 && !ok; c++) {
+            if (cand[c] < ml->steer_min - 1e-9 || cand[c] > ml->steer_max + 1e-9) continue;
+            int w = sg->k0;
+            if (follow(plan, j, i, cand[c], ml->steer_min, ml->steer_max, &w)) {
+                ok = 1;
+                chosen = cand[c];
+            } else if (w > where) {
+                where = w;
+            }
+        }
+        if (!ok) {
+            char name[32];
+            veer_limit_name(veer__limit(VEER_LIMIT_STEER_RANGE, i), name, sizeof name);
+            return veer__fail(diag, VEER_ERR_INFEASIBLE, plan->path.segments[j].leg, plan->path.segments[j].waypoint,
+                              where, plan->s[where], veer__limit(VEER_LIMIT_STEER_RANGE, i),
+                              "leg %d: module %d would turn past its steer range [%g, %g] rad at s = %.3f; "
+                              "add a stop so it can re-steer (%s)",
+                              plan->path.segments[j].leg, i, ml->steer_min, ml->steer_max, plan->s[where], name);
+        }
+        sg->steer_to[i] = chosen;
+        if (isfinite(ml->steer_rate)) {
+            double t = fabs(chosen - from[i]) / ml->steer_rate;
+            if (t > t_max) t_max = t;
+        }
+    }
+    sg->resteer_time = t_max;
+    return VEER_OK;
+}
