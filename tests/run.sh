@@ -239,6 +239,23 @@ stage_install() {
     note "$(nm -D --defined-only "$so" | grep -c ' T veer_') exported functions"
 }
 
+# The README's API example is examples/consumer/main.c after its header comment.
+stage_readme_example() {
+    local readme=$REPO/README.md main=$REPO/examples/consumer/main.c
+    [[ -f $readme ]] || { note "no README.md"; return 1; }
+    awk '/<!-- example: examples\/consumer\/main.c -->/ {m = 1; next}
+         m == 1 && /^```c$/ {m = 2; next}
+         m == 2 && /^```$/ {exit}
+         m == 2 {print}' "$readme" >"$TMP_ROOT/readme_example.c"
+    sed -n '/^#include <stdio.h>/,$p' "$main" >"$TMP_ROOT/main_body.c"
+    [[ -s $TMP_ROOT/readme_example.c ]] || { note "README.md has no marked example block"; return 1; }
+    if ! diff -u "$TMP_ROOT/main_body.c" "$TMP_ROOT/readme_example.c"; then
+        note "README.md's API example differs from examples/consumer/main.c"
+        return 1
+    fi
+    note "$(grep -c '' "$TMP_ROOT/readme_example.c") lines agree"
+}
+
 # The consumer example prints its figures and exits non-zero when planning fails.
 run_consumer() {
     local exe=$1 out
@@ -296,8 +313,10 @@ stage_pytest() {
     [[ -d $REPO/tests/python ]] || skip "no tests/python"
     find "$REPO/tests/python" -name 'test_*.py' | grep -q . || skip "no tests/python/test_*.py yet"
     local out=$TMP_ROOT/pytest.out rc=0
-    # The binding finds the library through these; matplotlib draws off-screen.
+    # The binding loads the library named by VEER_LIBRARY (bindings/python/veer/_lib.py);
+    # matplotlib draws off-screen.
     export VEER_BUILD_DIR="$BUILD_DIR"
+    export VEER_LIBRARY="$BUILD_DIR/libveer.so"
     export PYTHONPATH="$REPO/bindings/python${PYTHONPATH:+:$PYTHONPATH}"
     export MPLBACKEND=Agg
     (cd "$REPO" && timeout "$PYTEST_TIMEOUT" "$PYTHON" -m pytest -q -p no:cacheprovider tests/python) 2>&1 | tee "$out" || rc=${PIPESTATUS[0]}
@@ -353,6 +372,7 @@ main() {
     run_stage build stage_build configure
     run_stage ctest stage_ctest build
     run_stage install stage_install build
+    run_stage readme-example stage_readme_example
     run_stage consumer-cmake stage_consumer_cmake install
     run_stage consumer-pkgconfig stage_consumer_pkgconfig install
     run_stage clang-werror stage_clang build
