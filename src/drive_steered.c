@@ -20,7 +20,8 @@ veer_status veer__drive_steered_check(const veer_drive_def *drive, veer_diag *di
     for (int i = 0; i < n; i++)
         for (int j = i + 1; j < n; j++) {
             const veer_module_def *a = &drive->modules[i], *b = &drive->modules[j];
-            if (hypot(a->x - b->x, a->y - b->y) < COINCIDENT)
+            const double dx = a->x - b->x, dy = a->y - b->y;
+            if (dx * dx + dy * dy < COINCIDENT * COINCIDENT)
                 return VEER__DRIVE_FAIL(diag, VEER_ERR_GEOMETRY,
                                         "modules %d and %d are both at (%g, %g) m; steered modules need distinct "
                                         "positions",

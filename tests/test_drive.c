@@ -9,6 +9,8 @@
 
 #define PI VEER_PI
 #define SENTINEL 12345.0
+#define DNAN ((double)NAN)      /* NAN and INFINITY are float constants */
+#define DINF ((double)INFINITY)
 
 #define NEAR(a, b, tol)                                                                                      \
     do {                                                                                                     \
@@ -52,7 +54,9 @@ Test(drive, defaults_pass_their_check) {
     for (int k = 0; k < 4; k++) {
         veer_drive_def d = veer_default_drive_def(kinds[k]);
         veer_diag diag;
+        memset(&diag, 0x55, sizeof diag); /* stale contents must be reset */
         cr_assert_eq(veer_drive_check(&d, &diag), VEER_OK, "kind %d: %s", (int)kinds[k], diag.message);
+        cr_assert(diag.leg == -1 && diag.limit.kind == VEER_LIMIT_NONE);
         cr_assert_eq(diag.status, VEER_OK);
         cr_assert_str_empty(diag.message);
         cr_assert_eq(veer_drive_module_count(&d), counts[k]);
@@ -476,6 +480,26 @@ Test(drive, steered_least_squares_matches_numpy) {
     NEAR(tw[2], -0.38309061709070885, 1e-12);
 }
 
+Test(drive, solve3_cholesky) {
+    /* Linear algebra: N = [[4,2,0],[2,5,1],[0,1,3]] is symmetric positive
+     * definite (leading minors 4, 16, 44); b = N (1, -2, 3) = (0, -5, 7). */
+    const double N[3][3] = {{4, 2, 0}, {2, 5, 1}, {0, 1, 3}}, b[3] = {0, -5, 7};
+    double x[3];
+    cr_assert_eq(veer__drive_solve3(N, b, x), 0);
+    NEAR(x[0], 1.0, 1e-14);
+    NEAR(x[1], -2.0, 1e-14);
+    NEAR(x[2], 3.0, 1e-14);
+    /* singular (third row = first + second) and indefinite: refused, x untouched */
+    const double S[3][3] = {{1, 2, 3}, {2, 5, 7}, {3, 7, 10}}, I[3][3] = {{1, 0, 0}, {0, -1, 0}, {0, 0, 1}};
+    const double Z[3][3] = {{1, 0, 0}, {0, 0, 0}, {0, 0, 1}}, Q[3][3] = {{1, 0, 0}, {0, DNAN, 0}, {0, 0, 1}};
+    fill(x, 3, SENTINEL);
+    cr_assert_eq(veer__drive_solve3(S, b, x), -1);
+    cr_assert_eq(veer__drive_solve3(I, b, x), -1);
+    cr_assert_eq(veer__drive_solve3(Z, b, x), -1);
+    cr_assert_eq(veer__drive_solve3(Q, b, x), -1);
+    expect_untouched(x, 3);
+}
+
 /* ---- bad input ---------------------------------------------------------- */
 
 static void expect_check_fails(const veer_drive_def *d, veer_status want, const char *needle) {
@@ -522,9 +546,9 @@ Test(drive, check_refuses_bad_drives) {
         expect_check_fails(&d, VEER_ERR_VALUE, "-0.1");
         d.wheel_radius = 0.0;
         expect_check_fails(&d, VEER_ERR_VALUE, "radius");
-        d.wheel_radius = NAN;
+        d.wheel_radius = DNAN;
         expect_check_fails(&d, VEER_ERR_VALUE, "radius");
-        d.wheel_radius = INFINITY;
+        d.wheel_radius = DINF;
         expect_check_fails(&d, VEER_ERR_VALUE, "radius");
     }
 
@@ -548,7 +572,7 @@ Test(drive, check_refuses_bad_drives) {
     expect_check_fails(&d, VEER_ERR_VALUE, "module_count 4");
 
     d = veer_default_drive_def(VEER_DRIVE_STEERED);
-    d.modules[2].y = NAN;
+    d.modules[2].y = DNAN;
     expect_check_fails(&d, VEER_ERR_VALUE, "module 2");
     d = veer_default_drive_def(VEER_DRIVE_STEERED);
     d.modules[3] = d.modules[1];
@@ -561,9 +585,9 @@ Test(drive, check_refuses_bad_drives) {
     d.half_wheelbase = 0.0;
     expect_check_fails(&d, VEER_ERR_VALUE, "wheelbase");
     d = veer_default_drive_def(VEER_DRIVE_MECANUM);
-    d.half_track = NAN;
+    d.half_track = DNAN;
     expect_check_fails(&d, VEER_ERR_VALUE, "track");
-    const double bad_roller[4] = {0.0, PI / 2, 0.5 * PI / 180.0, NAN};
+    const double bad_roller[4] = {0.0, PI / 2, 0.5 * PI / 180.0, DNAN};
     for (int k = 0; k < 4; k++) {
         d = veer_default_drive_def(VEER_DRIVE_MECANUM);
         d.roller_angle = bad_roller[k];
@@ -576,14 +600,14 @@ Test(drive, check_refuses_bad_drives) {
     d = veer_default_drive_def(VEER_DRIVE_DIFFERENTIAL);
     d.skid_factor = 0.9;
     expect_check_fails(&d, VEER_ERR_VALUE, "skid");
-    d.skid_factor = INFINITY;
+    d.skid_factor = DINF;
     expect_check_fails(&d, VEER_ERR_VALUE, "skid");
 
     d = veer_default_drive_def(VEER_DRIVE_OMNI);
-    d.modules[1].drive_angle = NAN;
+    d.modules[1].drive_angle = DNAN;
     expect_check_fails(&d, VEER_ERR_VALUE, "module 1");
     d = veer_default_drive_def(VEER_DRIVE_OMNI);
-    d.modules[2].x = INFINITY;
+    d.modules[2].x = DINF;
     expect_check_fails(&d, VEER_ERR_VALUE, "module 2");
 }
 
@@ -618,7 +642,16 @@ Test(drive, check_refuses_rank_deficient_omni) {
         d.modules[i].drive_angle = i;
     }
     expect_check_fails(&d, VEER_ERR_GEOMETRY, "one point");
-    /* a slight tilt of one radial wheel makes it well posed again */
+    /* nearly concurrent (one radial wheel tilted 1e-6 rad): numerically
+     * rank 3, but the turn is measured ~1e12 times worse than translation */
+    for (int i = 0; i < 4; i++) {
+        const double a = 2.0 * PI * i / 4.0;
+        d.modules[i].x = 0.3 * cos(a);
+        d.modules[i].y = 0.3 * sin(a);
+        d.modules[i].drive_angle = a + (i == 0 ? 1e-6 : 0.0);
+    }
+    expect_check_fails(&d, VEER_ERR_GEOMETRY, "rank");
+    /* a real tilt of one radial wheel makes it well posed again */
     for (int i = 0; i < 4; i++) {
         const double a = 2.0 * PI * i / 4.0;
         d.modules[i].x = 0.3 * cos(a);
@@ -644,14 +677,14 @@ Test(drive, kinematics_refuse_bad_arguments) {
         cr_assert_eq(veer_drive_inverse(&d, NULL, NULL, steer, rate), VEER_ERR_NULL);
         cr_assert_eq(veer_drive_inverse(&d, good, NULL, NULL, rate), VEER_ERR_NULL);
         cr_assert_eq(veer_drive_inverse(&d, good, NULL, steer, NULL), VEER_ERR_NULL);
-        const double nan_tw[3][3] = {{NAN, 0, 0}, {0, NAN, 0}, {0, 0, INFINITY}};
+        const double nan_tw[3][3] = {{DNAN, 0, 0}, {0, DNAN, 0}, {0, 0, DINF}};
         for (int j = 0; j < 3; j++)
             cr_assert_eq(veer_drive_inverse(&d, nan_tw[j], NULL, steer, rate), VEER_ERR_VALUE);
         const double huge[3] = {1e308, 1e308, 1e308}; /* overflows to inf: refused, not returned */
         cr_assert_eq(veer_drive_inverse(&d, huge, NULL, steer, rate), VEER_ERR_VALUE);
         if (kinds[k] == VEER_DRIVE_STEERED) {
             double prev[VEER_MAX_MODULES] = {0};
-            prev[n - 1] = NAN;
+            prev[n - 1] = DNAN;
             cr_assert_eq(veer_drive_inverse(&d, good, prev, steer, rate), VEER_ERR_VALUE);
         }
         const double st[VEER_MAX_MODULES] = {0};
@@ -659,13 +692,13 @@ Test(drive, kinematics_refuse_bad_arguments) {
         cr_assert_eq(veer_drive_forward(NULL, st, u, tw), VEER_ERR_NULL);
         cr_assert_eq(veer_drive_forward(&d, st, NULL, tw), VEER_ERR_NULL);
         cr_assert_eq(veer_drive_forward(&d, st, u, NULL), VEER_ERR_NULL);
-        u[n - 1] = NAN;
+        u[n - 1] = DNAN;
         cr_assert_eq(veer_drive_forward(&d, st, u, tw), VEER_ERR_VALUE);
         u[n - 1] = 1.0;
         if (kinds[k] == VEER_DRIVE_STEERED) {
             cr_assert_eq(veer_drive_forward(&d, NULL, u, tw), VEER_ERR_NULL);
             double bad_st[VEER_MAX_MODULES] = {0};
-            bad_st[1] = NAN;
+            bad_st[1] = DNAN;
             cr_assert_eq(veer_drive_forward(&d, bad_st, u, tw), VEER_ERR_VALUE);
         } else {
             /* fixed-wheel kinds ignore steer: NULL is fine */

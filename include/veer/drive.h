@@ -50,14 +50,23 @@ typedef struct {
 /* A sensible starting point for each kind: wheel radius 0.1 m; steered: four
  * modules at (+-0.3, +-0.3) m; mecanum: l = 0.3, w = 0.25, 45-degree rollers;
  * omni: three wheels on a 0.3 m circle, pushing tangentially; differential:
- * track 0.5 m, skid factor 1. */
+ * track 0.5 m, skid factor 1. Every kind gets all these scalars, so changing
+ * kind afterwards stays valid. An unknown kind gives a zeroed struct with that
+ * kind (which veer_drive_check refuses). */
 VEER_API veer_drive_def veer_default_drive_def(veer_drive_kind kind);
 
 /* Checks a drive description; VEER_OK or a named status with diag filled
- * (diag may be NULL). */
+ * (diag may be NULL): ERR_NULL; ERR_VALUE for an unknown kind, a NaN or
+ * infinite value, a non-positive length, a roller angle outside 1..89 degrees,
+ * a skid factor below 1, or a changed mecanum/differential module_count;
+ * ERR_CAPACITY for a steered or omni module count out of range;
+ * ERR_GEOMETRY for steered modules closer than 1e-6 m to each other, or omni
+ * wheels whose rates cannot tell all body twists apart (all parallel, all
+ * push lines through one point, all at one point, or nearly so). */
 VEER_API VEER_NODISCARD veer_status veer_drive_check(const veer_drive_def *drive, veer_diag *diag);
 
-/* Number of modules (wheels or sides) the drive has, 0 if the kind is unknown. */
+/* Number of modules (wheels or sides) the drive has; 0 if drive is NULL, the
+ * kind is unknown or a steered/omni module_count is out of range. */
 VEER_API int veer_drive_module_count(const veer_drive_def *drive);
 
 /* Inverse kinematics: body twist -> per-module steer angle (rad, relative to
@@ -66,14 +75,21 @@ VEER_API int veer_drive_module_count(const veer_drive_def *drive);
  * prev_steer (may be NULL) holds each module's current steer angle; a
  * steered module then takes the representative of its direction (mod pi,
  * reversing the wheel) nearest to it, and keeps it when its speed is below
- * 1e-9 m/s. Without prev_steer the wheel turns forward and a standing module
- * reports 0. steer and wheel_rate need room for veer_drive_module_count(). */
+ * 1e-9 m/s. Without prev_steer the wheel turns forward, steer is in
+ * (-pi, pi] and a standing module reports 0. prev_steer is ignored by the
+ * fixed-wheel kinds; steer may be the same array as prev_steer.
+ * A differential drive cannot move sideways: its inverse ignores vy (the
+ * planner refuses routes that need it).
+ * steer and wheel_rate need room for veer_drive_module_count(). Checks the
+ * drive and the inputs (ERR_NULL, ERR_VALUE for NaN or an overflowing
+ * result) and writes nothing on failure. */
 VEER_API VEER_NODISCARD veer_status veer_drive_inverse(const veer_drive_def *drive, const double twist_body[3],
                                                        const double *prev_steer, double *steer, double *wheel_rate);
 
 /* Forward kinematics: measured steer angles (ignored for fixed-wheel kinds,
  * may then be NULL) and wheel rates -> body twist (vx, vy, wz). Least squares
- * where the drive is over-actuated; a differential drive reports vy = 0. */
+ * where the drive is over-actuated; a differential drive reports vy = 0.
+ * Checks like veer_drive_inverse and writes nothing on failure. */
 VEER_API VEER_NODISCARD veer_status veer_drive_forward(const veer_drive_def *drive, const double *steer,
                                                        const double *wheel_rate, double twist_body[3]);
 
