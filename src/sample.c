@@ -88,7 +88,7 @@ static void sample_at(const veer_plan *plan, double t, veer_sample *o) {
     const veer_plan_segment *sg = &plan->segs[j];
     o->leg = plan->path.segments[j].leg;
     veer_point_kin pk;
-    double ref[VEER_MAX_MODULES];
+    double ref[VEER_MAX_MODULES] = {0};
     if (t < sg->t_move) { /* re-steer phase: modules turn at steady rates, body at rest */
         double T = sg->resteer_time, f = T > 0.0 ? (t - sg->t_resteer) / T : 1.0;
         if (f < 0.0) f = 0.0;
