@@ -31,7 +31,7 @@ int main(int argc, char **argv) {
     lim.body_accel = 2.0;
     lim.yaw_rate = 2.0;
     lim.yaw_accel = 4.0;
-    veer_route r = veer_default_route(0.0, 0.0, 0.0);
+    veer_route r = veer_default_route(0.0, 0.0, atan2(2.0, 3.0)); /* facing the first waypoint */
     veer_leg leg = veer_default_leg(VEER_LEG_TRAVEL);
     leg.heading = VEER_HEADING_TANGENT;
     if (veer_route_add_leg(&r, &leg)) return 1;
@@ -54,10 +54,11 @@ int main(int argc, char **argv) {
         for (int rep = 0; rep < n; rep++) {
             veer_plan *p = NULL;
             double t0 = now();
-            veer_status st = veer_plan_create(&d, &lim, &r, &o, &p, NULL);
+            veer_diag diag;
+            veer_status st = veer_plan_create(&d, &lim, &r, &o, &p, &diag);
             double t1 = now();
             if (st != VEER_OK) {
-                printf("planning failed: %s\n", veer_status_str(st));
+                printf("planning failed: %s: %s\n", veer_status_name(st), diag.message);
                 return 1;
             }
             if (t1 - t0 < best) best = t1 - t0;

@@ -37,9 +37,23 @@ void veer__module_velocity(const veer_drive_def *drive, int i, const veer_point_
 
 static int set(double v) { return isfinite(v); }
 
-int veer__max_u_rows(const veer_drive_def *drive, const veer_plan_options *opt) {
-    int n = veer_drive_module_count(drive);
-    return opt->accel_polygon_sides / 2 + 2 + 2 * n;
+void veer__row_ctx_init(veer_row_ctx *ctx, const veer_drive_def *drive, const veer_limits *limits,
+                        const veer_plan_options *opt) {
+    ctx->drive = drive;
+    ctx->limits = limits;
+    ctx->module_count = veer_drive_module_count(drive);
+    int sides = opt->accel_polygon_sides;
+    ctx->faces = sides / 2;
+    /* Faces of the polygon inscribed in the circle of radius body_accel,
+     * with a vertex on the tangent: normals at odd multiples of pi / sides. */
+    for (int j = 0; j < ctx->faces && j < VEER_MAX_POLYGON_FACES; j++) {
+        double ang = (2 * j + 1) * VEER_PI / sides;
+        ctx->face_c[j] = cos(ang);
+        ctx->face_s[j] = sin(ang);
+    }
+    ctx->face_r = limits->body_accel * cos(VEER_PI / sides);
+    ctx->linear = veer__drive_wheel_matrix(drive, ctx->J) > 0;
+    ctx->m = ctx->faces + 2 + 2 * ctx->module_count;
 }
 
 static void tighten(double *xmax, veer_limit_id *id, double bound, veer_limit_id which) {
@@ -63,8 +77,10 @@ static int accel_rows(veer_row *rows, double f, double df, double limit, veer_li
     return 2;
 }
 
-int veer__point_rows(const veer_drive_def *drive, const veer_limits *lim, const veer_plan_options *opt,
-                     const veer_point_kin *pk, veer_row *rows, double *xmax, veer_limit_id *xmax_id) {
+int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, veer_row *rows, double *xmax,
+                     veer_limit_id *xmax_id) {
+    const veer_drive_def *drive = ctx->drive;
+    const veer_limits *lim = ctx->limits;
     int m = 0;
     *xmax = VEER_UNLIMITED;
     *xmax_id = veer__limit(VEER_LIMIT_NONE, -1);
@@ -88,19 +104,16 @@ int veer__point_rows(const veer_drive_def *drive, const veer_limits *lim, const 
         double at_u = sp, at_x = ddq[0] * tx + ddq[1] * ty; /* tangential: at_u u + at_x x */
         double an_x = -ddq[0] * ty + ddq[1] * tx;            /* normal: an_x x */
         double side = an_x >= 0.0 ? 1.0 : -1.0;
-        int sides = opt->accel_polygon_sides;
-        double r = lim->body_accel * cos(VEER_PI / sides);
         veer_limit_id id = veer__limit(VEER_LIMIT_BODY_ACCEL, -1);
-        for (int j = 0; j < sides / 2; j++) {
-            double ang = (2 * j + 1) * VEER_PI / sides;
-            double ca = cos(ang), sa = side * sin(ang);
-            rows[m++] = (veer_row){ca * at_u, ca * at_x + sa * an_x, r, id};
+        for (int j = 0; j < ctx->faces; j++) {
+            double ca = ctx->face_c[j], sa = side * ctx->face_s[j];
+            rows[m++] = (veer_row){ca * at_u, ca * at_x + sa * an_x, ctx->face_r, id};
         }
     }
     m += accel_rows(rows + m, dq[2], ddq[2], lim->yaw_accel, veer__limit(VEER_LIMIT_YAW_ACCEL, -1));
 
-    int n = veer_drive_module_count(drive);
-    if (drive->kind == VEER_DRIVE_STEERED) {
+    int n = ctx->module_count;
+    if (!ctx->linear) {
         double r = drive->wheel_radius;
         for (int i = 0; i < n; i++) {
             const veer_module_limits *ml = &lim->modules[i];
@@ -126,8 +139,7 @@ int veer__point_rows(const veer_drive_def *drive, const veer_limits *lim, const 
                             veer__limit(VEER_LIMIT_WHEEL_ACCEL, i));
         }
     } else {
-        double J[VEER_MAX_MODULES][3];
-        veer__drive_wheel_matrix(drive, J);
+        const double(*J)[3] = ctx->J;
         if (drive->kind == VEER_DRIVE_DIFFERENTIAL) {
             double g = hypot(pk->xi[0], pk->xi[1]) + fabs(pk->xi[2]);
             if (fabs(pk->xi[1]) > 1e-6 * (g > 1.0 ? g : 1.0)) {

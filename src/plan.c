@@ -66,7 +66,7 @@ static int grid_layout(const veer_path *path, int points, int *intervals) {
 typedef struct {
     veer_row *rows;
     int *row_count;
-    double *xmax, *K;
+    double *xmax, *K, *xi;
     veer_limit_id *xmax_id;
     size_t bytes;
 } workspace;
@@ -74,13 +74,13 @@ typedef struct {
 static veer_status solve_segment(veer_plan *plan, int j, workspace *ws, veer_diag *diag) {
     veer_plan_segment *sg = &plan->segs[j];
     const veer_path_segment *ps = &plan->path.segments[j];
-    int n = sg->k1 - sg->k0 + 1, m = veer__max_u_rows(&plan->drive, &plan->options);
+    int n = sg->k1 - sg->k0 + 1, m = plan->rows.m;
     double *s = plan->s + sg->k0, *x = plan->x + sg->k0;
     for (int k = 0; k < n; k++) {
         veer_point_kin pk;
         veer__point_kin(&plan->path, j, s[k], &pk);
-        int c = veer__point_rows(&plan->drive, &plan->limits, &plan->options, &pk, ws->rows + (size_t)k * (size_t)m,
-                                 &ws->xmax[k], &ws->xmax_id[k]);
+        memcpy(ws->xi + 3 * k, pk.xi, sizeof pk.xi);
+        int c = veer__point_rows(&plan->rows, &pk, ws->rows + (size_t)k * (size_t)m, &ws->xmax[k], &ws->xmax_id[k]);
         if (c < 0)
             return veer__fail(diag, VEER_ERR_INFEASIBLE, ps->leg, ps->waypoint, sg->k0 + k, s[k], ws->xmax_id[k],
                               "leg %d: a differential drive cannot move sideways (at s = %.3f); use heading "
@@ -145,14 +145,15 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     }
 
     workspace ws;
-    int m = veer__max_u_rows(&plan->drive, &plan->options);
-    ws.bytes = (size_t)longest * ((size_t)m * sizeof(veer_row) + sizeof(int) + 2 * sizeof(double) + sizeof(veer_limit_id));
+    int m = plan->rows.m;
+    ws.bytes = (size_t)longest * ((size_t)m * sizeof(veer_row) + 5 * sizeof(double) + sizeof(veer_limit_id) + sizeof(int));
     char *w = veer__alloc(ws.bytes);
     if (!w) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
     ws.rows = (veer_row *)w;
     ws.xmax = (double *)(ws.rows + (size_t)longest * (size_t)m);
     ws.K = ws.xmax + longest;
-    ws.xmax_id = (veer_limit_id *)(ws.K + longest);
+    ws.xi = ws.K + longest;
+    ws.xmax_id = (veer_limit_id *)(ws.xi + 3 * (size_t)longest);
     ws.row_count = (int *)(ws.xmax_id + longest);
 
     veer_status st = VEER_OK;
@@ -162,7 +163,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     for (int j = 0; j < path->segment_count && st == VEER_OK; j++) {
         veer_plan_segment *sg = &plan->segs[j];
         st = solve_segment(plan, j, &ws, diag);
-        if (st == VEER_OK) st = veer__steer_segment(plan, j, from, diag);
+        if (st == VEER_OK) st = veer__steer_segment(plan, j, from, ws.xi, diag);
         if (st != VEER_OK) break;
         sg->t_resteer = clock;
         sg->t_move = clock + sg->resteer_time;
@@ -225,6 +226,7 @@ veer_status veer_plan_create(const veer_drive_def *drive, const veer_limits *lim
     plan->route = *route;
     plan->module_count = M;
     plan->steered = drive->kind == VEER_DRIVE_STEERED;
+    veer__row_ctx_init(&plan->rows, &plan->drive, &plan->limits, &plan->options);
     if ((st = veer__path_build(route, &plan->path, diag)) == VEER_OK) st = build(plan, diag);
     if (st != VEER_OK) {
         veer_plan_destroy(plan);

@@ -27,13 +27,31 @@ void veer__point_kin(const veer_path *path, int seg, double s, veer_point_kin *o
 /* Body-frame velocity of steered module i per unit sdot, and its s-derivative. */
 void veer__module_velocity(const veer_drive_def *drive, int i, const veer_point_kin *pk, double v[2], double dv[2]);
 
+/* What the row builder needs, prepared once per plan: the drive and
+ * limits (borrowed, must outlive the context), the body-acceleration
+ * polygon's faces and the wheel matrix of fixed-wheel drives. */
+#define VEER_MAX_POLYGON_FACES 128
+typedef struct {
+    const veer_drive_def *drive;
+    const veer_limits *limits;
+    int module_count;
+    int faces;                          /* polygon faces that can bind: sides / 2 */
+    double face_c[VEER_MAX_POLYGON_FACES], face_s[VEER_MAX_POLYGON_FACES];
+    double face_r;                      /* body_accel * cos(pi / sides) */
+    int linear;                         /* 1: wheel_rate = J xi */
+    double J[VEER_MAX_MODULES][3];
+    int m;                              /* most u-rows a point can have */
+} veer_row_ctx;
+
+void veer__row_ctx_init(veer_row_ctx *ctx, const veer_drive_def *drive, const veer_limits *limits,
+                        const veer_plan_options *opt);
+
 /* Rows at one grid point. x-only rows are folded into *xmax (and *xmax_id);
- * rows that involve u are written to rows (at most veer__max_u_rows()).
+ * rows that involve u are written to rows (at most ctx->m).
  * Returns the number of u-rows, or -1 if the drive cannot follow the path
  * there (differential drive asked to move sideways: *xmax_id says so). */
-int veer__point_rows(const veer_drive_def *drive, const veer_limits *limits, const veer_plan_options *opt,
-                     const veer_point_kin *pk, veer_row *rows, double *xmax, veer_limit_id *xmax_id);
-int veer__max_u_rows(const veer_drive_def *drive, const veer_plan_options *opt);
+int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, veer_row *rows, double *xmax,
+                     veer_limit_id *xmax_id);
 
 /* Checks limits against the drive: NaN/negative -> ERR_VALUE, zero -> ERR_INFEASIBLE. */
 veer_status veer__limits_check(const veer_drive_def *drive, const veer_limits *limits, veer_diag *diag);
@@ -79,6 +97,7 @@ struct veer_plan {
     veer_drive_def drive;
     veer_limits limits;
     veer_plan_options options;
+    veer_row_ctx rows;            /* row builder context (points into drive and limits above) */
     veer_route route;
     veer_path path;
     int module_count;
@@ -103,9 +122,10 @@ double veer__steer_near(double dir, double ref);
 /* Fills plan->steer along segment j (grid points k0..k1) starting from the
  * module angles in from[], choosing for each module the shorter steer motion
  * or the reverse choice its steer range allows; fills the segment's
- * re-steer phase. VEER_ERR_INFEASIBLE with diag when a module would leave
+ * re-steer phase. xi holds the body twist per unit sdot (3 per point) at
+ * the segment's grid points. VEER_ERR_INFEASIBLE with diag when a module would leave
  * its steer range. */
-veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, veer_diag *diag);
+veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, const double *xi, veer_diag *diag);
 
 /* ---- sample.c ---------------------------------------------------------- */
 

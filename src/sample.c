@@ -37,8 +37,7 @@ void veer__module_setpoints(const veer_plan *plan, int seg, const veer_point_kin
         }
         return;
     }
-    double J[VEER_MAX_MODULES][3];
-    veer__drive_wheel_matrix(d, J);
+    const double(*J)[3] = plan->rows.J;
     for (int i = 0; i < M; i++) {
         double f = J[i][0] * pk->xi[0] + J[i][1] * pk->xi[1] + J[i][2] * pk->xi[2];
         double df = J[i][0] * pk->dxi[0] + J[i][1] * pk->dxi[1] + J[i][2] * pk->dxi[2];

@@ -8,33 +8,42 @@
 #define VEER_STILL 1e-9
 /* Direction changes larger than this between two grid points are tracked
  * through sub-steps, so a fast sweep near an ICR keeps its branch. */
-#define VEER_STEER_STEP (10.0 * VEER_PI / 180.0)
+#define VEER_STEER_STEP (VEER_PI / 4.0)
 
 double veer__steer_near(double dir, double ref) {
     double k = nearbyint((ref - dir) / VEER_PI);
     return dir + k * VEER_PI;
 }
 
-/* Module direction at s, or 0 when the module stands (|v| below VEER_STILL). */
-static int module_dir(const veer_plan *plan, int seg, int i, double s, double *dir) {
-    veer_point_kin pk;
-    double v[2], dv[2];
-    veer__point_kin(&plan->path, seg, s, &pk);
-    veer__module_velocity(&plan->drive, i, &pk, v, dv);
-    if (hypot(v[0], v[1]) <= VEER_STILL) return 0;
-    *dir = atan2(v[1], v[0]);
+/* Direction of module i given the body twist per unit sdot; 0 when the
+ * module stands (speed below VEER_STILL). */
+static int dir_of(const veer_drive_def *d, int i, const double xi[3], double *dir) {
+    double vx = xi[0] - xi[2] * d->modules[i].y, vy = xi[1] + xi[2] * d->modules[i].x;
+    if (hypot(vx, vy) <= VEER_STILL) return 0;
+    *dir = atan2(vy, vx);
     return 1;
 }
 
-/* Follows the branch from s_a (angle *ref) to s_b, sub-stepping fast sweeps. */
-static void track(const veer_plan *plan, int seg, int i, double sa, double sb, double *ref, int depth) {
-    double dir;
-    if (!module_dir(plan, seg, i, sb, &dir)) return;
-    double next = veer__steer_near(dir, *ref);
+static int module_dir(const veer_plan *plan, int seg, int i, double s, double *dir) {
+    veer_point_kin pk;
+    veer__point_kin(&plan->path, seg, s, &pk);
+    return dir_of(&plan->drive, i, pk.xi, dir);
+}
+
+/* Follows the branch from s_a (angle *ref) to s_b, where the module's
+ * direction is dir_b (have_b: it moves there); fast sweeps are tracked
+ * through sub-steps evaluated on the path. */
+static void track(const veer_plan *plan, int seg, int i, double sa, double sb, int have_b, double dir_b, double *ref,
+                  int depth) {
+    if (!have_b) return;
+    double next = veer__steer_near(dir_b, *ref);
     if (fabs(next - *ref) > VEER_STEER_STEP && depth < 6 && sb - sa > 1e-12) {
         const int parts = 8;
-        for (int p = 1; p <= parts; p++)
-            track(plan, seg, i, sa + (sb - sa) * (p - 1) / parts, sa + (sb - sa) * p / parts, ref, depth + 1);
+        for (int p = 1; p <= parts; p++) {
+            double s0 = sa + (sb - sa) * (p - 1) / parts, s1 = sa + (sb - sa) * p / parts, d1 = 0.0;
+            int h = module_dir(plan, seg, i, s1, &d1);
+            track(plan, seg, i, s0, s1, h, d1, ref, depth + 1);
+        }
         return;
     }
     *ref = next;
@@ -42,12 +51,16 @@ static void track(const veer_plan *plan, int seg, int i, double sa, double sb, d
 
 /* Steer angles of module i along segment j from start angle a0; 0 if they
  * leave [lo, hi] (then *where is the grid point). */
-static int follow(veer_plan *plan, int j, int i, double a0, double lo, double hi, int *where) {
+static int follow(veer_plan *plan, int j, int i, const double *xi, double a0, double lo, double hi, int *where) {
     const veer_plan_segment *sg = &plan->segs[j];
     int M = plan->module_count;
     double ref = a0;
     for (int k = sg->k0; k <= sg->k1; k++) {
-        if (k > sg->k0) track(plan, j, i, plan->s[k - 1], plan->s[k], &ref, 0);
+        if (k > sg->k0) {
+            double d = 0.0;
+            int h = dir_of(&plan->drive, i, xi + 3 * (k - sg->k0), &d);
+            track(plan, j, i, plan->s[k - 1], plan->s[k], h, d, &ref, 0);
+        }
         if (ref < lo - 1e-9 || ref > hi + 1e-9) {
             *where = k;
             return 0;
@@ -57,7 +70,7 @@ static int follow(veer_plan *plan, int j, int i, double a0, double lo, double hi
     return 1;
 }
 
-veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, veer_diag *diag) {
+veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, const double *xi, veer_diag *diag) {
     veer_plan_segment *sg = &plan->segs[j];
     int M = plan->module_count;
     double t_max = 0.0;
@@ -97,7 +110,7 @@ veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, veer
         for (int c = 0; c < 9 && !ok; c++) {
             if (cand[c] < ml->steer_min - 1e-9 || cand[c] > ml->steer_max + 1e-9) continue;
             int w = sg->k0;
-            if (follow(plan, j, i, cand[c], ml->steer_min, ml->steer_max, &w)) {
+            if (follow(plan, j, i, xi, cand[c], ml->steer_min, ml->steer_max, &w)) {
                 ok = 1;
                 chosen = cand[c];
             } else if (w > where) {

@@ -5,6 +5,7 @@
 
 #include <criterion/criterion.h>
 #include <math.h>
+#include <stdio.h>
 #include <string.h>
 #include <veer/veer.h>
 
@@ -52,7 +53,7 @@ static inline plan_check_result plan_check(const veer_plan *plan, const veer_dri
     memset(&r, 0, sizeof r);
     int M = veer_plan_module_count(plan);
     double T = veer_plan_duration(plan);
-    veer_sample prev, s;
+    veer_sample prev = {0}, s;
     int have_prev = 0;
     long steps = (long)ceil(T / dt);
     for (long q = 0; q <= steps; q++) {
