@@ -250,6 +250,14 @@ _PROTOTYPES = {
     "veer_plan_sample_pb": (ctypes.c_int, [_c_ubyte_p, ctypes.c_size_t, ctypes.c_double, ctypes.POINTER(Sample)]),
     "veer_plan_table_pb": (ctypes.c_int, [_c_ubyte_p, ctypes.c_size_t, ctypes.c_double, ctypes.c_void_p,
                                           ctypes.c_size_t, _c_size_p]),
+    "veer_plan_reply_size_bound": (ctypes.c_size_t, [ctypes.c_int]),
+    "veer_plan_workspace_size": (ctypes.c_size_t, []),
+    "veer_plan_decode_pb": (ctypes.c_int, [_c_ubyte_p, ctypes.c_size_t, ctypes.POINTER(ctypes.c_void_p),
+                                           ctypes.POINTER(Diag)]),
+    "veer_plan_load_pb": (ctypes.c_int, [_c_ubyte_p, ctypes.c_size_t, ctypes.c_void_p, ctypes.c_size_t,
+                                         ctypes.POINTER(ctypes.c_void_p), ctypes.POINTER(Diag)]),
+    "veer_plan_encode_pb": (ctypes.c_int, [ctypes.c_void_p, ctypes.c_void_p, ctypes.c_size_t, _c_size_p,
+                                           ctypes.POINTER(Diag)]),
 }
 
 
