@@ -105,9 +105,17 @@ int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, veer_row
         double an_x = -ddq[0] * ty + ddq[1] * tx;            /* normal: an_x x */
         double side = an_x >= 0.0 ? 1.0 : -1.0;
         veer_limit_id id = veer__limit(VEER_LIMIT_BODY_ACCEL, -1);
-        for (int j = 0; j < ctx->faces; j++) {
-            double ca = ctx->face_c[j], sa = side * ctx->face_s[j];
-            rows[m++] = (veer_row){ca * at_u, ca * at_x + sa * an_x, ctx->face_r, id};
+        if (an_x == 0.0) {
+            /* No normal acceleration: every face is a multiple of the tangential
+             * row, so only the two faces next to the tangent vertices count. */
+            double ca = ctx->face_c[0];
+            rows[m++] = (veer_row){ca * at_u, ca * at_x, ctx->face_r, id};
+            rows[m++] = (veer_row){-ca * at_u, -ca * at_x, ctx->face_r, id};
+        } else {
+            for (int j = 0; j < ctx->faces; j++) {
+                double ca = ctx->face_c[j], sa = side * ctx->face_s[j];
+                rows[m++] = (veer_row){ca * at_u, ca * at_x + sa * an_x, ctx->face_r, id};
+            }
         }
     }
     m += accel_rows(rows + m, dq[2], ddq[2], lim->yaw_accel, veer__limit(VEER_LIMIT_YAW_ACCEL, -1));

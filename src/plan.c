@@ -49,17 +49,44 @@ void veer_plan_destroy(veer_plan *plan) {
     veer__free(plan, plan->alloc_size);
 }
 
-/* Intervals per segment, in proportion to segment length. */
-static int grid_layout(const veer_path *path, int points, int *intervals) {
-    int nseg = path->segment_count, total = 0;
-    int budget = points - nseg;
-    for (int j = 0; j < nseg; j++) {
-        double len = path->segments[j].s_end - path->segments[j].s_begin;
-        int n = (int)lround(budget * len / path->length);
-        intervals[j] = n < VEER_SEGMENT_MIN_INTERVALS ? VEER_SEGMENT_MIN_INTERVALS : n;
-        total += intervals[j] + 1;
+/* Grid intervals per path piece. A piece's weight is its length plus two
+ * units per radian it turns (heading or direction of travel), so rounded
+ * corners, spins and pivots get the points their quickly changing limits
+ * need; every piece boundary is a grid point. Returns the number of grid
+ * points (each segment has intervals + 1). */
+static int grid_layout(const veer_path *path, int points, int *piece_intervals) {
+    double weight[VEER_PATH_MAX_PIECES], total = 0.0;
+    for (int j = 0; j < path->segment_count; j++) {
+        const veer_path_segment *ps = &path->segments[j];
+        for (int p = ps->first_piece; p < ps->first_piece + ps->piece_count; p++) {
+            const veer_path_piece *pc = &path->pieces[p];
+            double q0[3], d0[3], e0[3], q1[3], d1[3], e1[3];
+            veer__path_eval(path, j, pc->s0, q0, d0, e0);
+            veer__path_eval(path, j, pc->s0 + pc->len, q1, d1, e1);
+            double turn = fabs(q1[2] - q0[2]);
+            if (hypot(d0[0], d0[1]) > 0.0 && hypot(d1[0], d1[1]) > 0.0)
+                turn += fabs(atan2(d0[0] * d1[1] - d0[1] * d1[0], d0[0] * d1[0] + d0[1] * d1[1]));
+            weight[p] = pc->len + 2.0 * turn;
+            total += weight[p];
+        }
     }
-    return total;
+    int n = 0;
+    double budget = points - path->segment_count;
+    for (int j = 0; j < path->segment_count; j++) {
+        const veer_path_segment *ps = &path->segments[j];
+        int seg_intervals = 0;
+        for (int p = ps->first_piece; p < ps->first_piece + ps->piece_count; p++) {
+            int k = (int)lround(budget * weight[p] / total);
+            piece_intervals[p] = k < 2 ? 2 : k;
+            seg_intervals += piece_intervals[p];
+        }
+        /* short segments still get a usable grid */
+        while (seg_intervals < VEER_SEGMENT_MIN_INTERVALS)
+            for (int p = ps->first_piece; p < ps->first_piece + ps->piece_count; p++, seg_intervals++)
+                piece_intervals[p]++;
+        n += seg_intervals + 1;
+    }
+    return n;
 }
 
 /* Work buffers for one segment's solve, sized for the longest segment. */
@@ -116,7 +143,7 @@ static veer_status solve_segment(veer_plan *plan, int j, workspace *ws, veer_dia
 
 static veer_status build(veer_plan *plan, veer_diag *diag) {
     const veer_path *path = &plan->path;
-    int intervals[VEER_PATH_MAX_SEGMENTS];
+    int intervals[VEER_PATH_MAX_PIECES];
     int n = grid_layout(path, plan->options.grid_points, intervals);
     int M = plan->module_count;
     size_t grid_bytes = (size_t)n * (3 * sizeof(double) + sizeof(veer_limit_id)) + (size_t)n * (size_t)M * sizeof(double);
@@ -135,11 +162,14 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
         veer_plan_segment *sg = &plan->segs[j];
         const veer_path_segment *ps = &path->segments[j];
         sg->k0 = k;
-        sg->k1 = k + intervals[j];
-        for (int i = 0; i <= intervals[j]; i++)
-            plan->s[k + i] = ps->s_begin + (ps->s_end - ps->s_begin) * i / intervals[j];
+        plan->s[k] = ps->s_begin;
+        for (int p = ps->first_piece; p < ps->first_piece + ps->piece_count; p++) {
+            const veer_path_piece *pc = &path->pieces[p];
+            for (int i = 1; i <= intervals[p]; i++) plan->s[++k] = pc->s0 + pc->len * i / intervals[p];
+        }
+        sg->k1 = k;
         plan->s[sg->k1] = ps->s_end;
-        if (intervals[j] + 1 > longest) longest = intervals[j] + 1;
+        if (sg->k1 - sg->k0 + 1 > longest) longest = sg->k1 - sg->k0 + 1;
         k = sg->k1 + 1;
         sg->dwell = ps->dwell;
     }

@@ -18,54 +18,64 @@
 
 #define VEER_X_BIG 1e20 /* stands for an unbounded x */
 
+/* A bound on u at stage k as a function of x: u <= p + q x (upper) or
+ * u >= p + q x (lower). */
 typedef struct {
-    const veer_row *r0, *r1; /* rows of point k and k+1 */
-    int m0, m1;
-    double d2;               /* 2 ds */
-    double hi;               /* K_{k+1} upper end */
+    double p, q;
+} bound;
+
+#define VEER_STAGE_ROWS (2 * (VEER_MAX_POLYGON_FACES + 2 + 2 * VEER_MAX_MODULES) + 1)
+
+typedef struct {
+    bound up[VEER_STAGE_ROWS], lo[VEER_STAGE_ROWS];
+    int nup, nlo;
+    double cap; /* largest x the x-only rows allow */
 } stage;
 
-static void stage_at(const veer_topp_problem *p, int k, double hi_next, stage *st) {
-    st->r0 = p->rows + (size_t)k * (size_t)p->m;
-    st->r1 = p->rows + (size_t)(k + 1) * (size_t)p->m;
-    st->m0 = p->row_count[k];
-    st->m1 = p->row_count[k + 1];
-    st->d2 = 2.0 * (p->s[k + 1] - p->s[k]);
-    st->hi = hi_next;
-}
-
 /* A row is treated as x-only when its u coefficient is negligible. */
-static int x_only(double a, double b, double c) { return fabs(a) <= 1e-12 * (fabs(b) + fabs(c)); }
+static inline int x_only(double a, double b, double c) { return fabs(a) <= 1e-12 * (fabs(b) + fabs(c)); }
 
-/* Largest x that the x-only rows of the stage allow. */
-static double stage_cap(const stage *st, double xmax) {
-    double cap = xmax;
-    for (int j = 0; j < st->m0 + st->m1; j++) {
-        const veer_row *r = j < st->m0 ? &st->r0[j] : &st->r1[j - st->m0];
-        double a = j < st->m0 ? r->a : r->a + st->d2 * r->b;
-        if (x_only(a, r->b, r->c) && r->b > 0.0 && r->c / r->b < cap) cap = r->c / r->b;
+static inline void stage_add(stage *st, double a, double b, double c) {
+    if (x_only(a, b, c)) {
+        if (b > 0.0 && c / b < st->cap) st->cap = c / b;
+        return;
     }
-    return cap;
+    bound *d = a > 0.0 ? &st->up[st->nup++] : &st->lo[st->nlo++];
+    d->p = c / a;
+    d->q = -b / a;
 }
 
-/* U(x), L(x) and the slopes of the rows that define them (ties go to the
- * steeper piece to the right, the right derivative of F). */
+/* Stage k's bounds on u: rows of point k at (u, x), rows of point k+1 at
+ * (u, x + 2 ds u), and x + 2 ds u in [0, hi_next]. */
+static void stage_build(const veer_topp_problem *pr, int k, double hi_next, stage *st) {
+    const veer_row *r0 = pr->rows + (size_t)k * (size_t)pr->m;
+    const veer_row *r1 = pr->rows + (size_t)(k + 1) * (size_t)pr->m;
+    double d2 = 2.0 * (pr->s[k + 1] - pr->s[k]);
+    st->nup = st->nlo = 0;
+    st->cap = pr->xmax[k];
+    st->up[st->nup++] = (bound){hi_next / d2, -1.0 / d2};
+    st->lo[st->nlo++] = (bound){0.0, -1.0 / d2};
+    for (int j = 0; j < pr->row_count[k]; j++) stage_add(st, r0[j].a, r0[j].b, r0[j].c);
+    for (int j = 0; j < pr->row_count[k + 1]; j++) stage_add(st, r1[j].a + d2 * r1[j].b, r1[j].b, r1[j].c);
+}
+
+/* U(x), L(x) and the slopes of the bounds that define them (ties go to the
+ * steeper piece to the right: the right derivative of F). */
 static void stage_eval(const stage *st, double x, double *U, double *dU, double *L, double *dL) {
-    double u_hi = (st->hi - x) / st->d2, s_hi = -1.0 / st->d2;
-    double u_lo = -x / st->d2, s_lo = -1.0 / st->d2;
-    for (int j = 0; j < st->m0 + st->m1; j++) {
-        const veer_row *r = j < st->m0 ? &st->r0[j] : &st->r1[j - st->m0];
-        double a = j < st->m0 ? r->a : r->a + st->d2 * r->b;
-        if (x_only(a, r->b, r->c)) continue;
-        double v = (r->c - r->b * x) / a, sl = -r->b / a;
-        if (a > 0.0) {
-            if (v < u_hi || (v == u_hi && sl < s_hi)) {
-                u_hi = v;
-                s_hi = sl;
-            }
-        } else if (v > u_lo || (v == u_lo && sl > s_lo)) {
+    double u_hi = st->up[0].p + st->up[0].q * x, s_hi = st->up[0].q;
+    for (int j = 1; j < st->nup; j++) {
+        double v = st->up[j].p + st->up[j].q * x;
+        if (v < u_hi || (v == u_hi && st->up[j].q < s_hi)) {
+            u_hi = v;
+            s_hi = st->up[j].q;
+        }
+    }
+    double u_lo = st->lo[0].p + st->lo[0].q * x, s_lo = st->lo[0].q;
+    for (int j = 1; j < st->nlo; j++) {
+        double v = st->lo[j].p + st->lo[j].q * x;
+        if (v > u_lo || (v == u_lo && st->lo[j].q > s_lo)) {
             u_lo = v;
-            s_lo = sl;
+            s_lo = st->lo[j].q;
         }
     }
     *U = u_hi;
@@ -75,8 +85,8 @@ static void stage_eval(const stage *st, double x, double *U, double *dU, double 
 }
 
 /* Largest x in [0, cap] with L(x) <= U(x). */
-static double stage_max_x(const stage *st, double cap) {
-    double x = cap < VEER_X_BIG ? cap : VEER_X_BIG;
+static double stage_max_x(const stage *st) {
+    double x = st->cap < VEER_X_BIG ? st->cap : VEER_X_BIG;
     double lo = 0.0, hi = x;
     for (int it = 0; it < 100; it++) {
         double U, dU, L, dL;
@@ -98,17 +108,16 @@ veer_status veer__topp_solve(const veer_topp_problem *p, double *x, double *K, i
     /* Backward pass: controllable sets K_k = [0, K[k]], rest at the end. */
     K[n - 1] = 0.0;
     for (int k = n - 2; k >= 0; k--) {
-        stage_at(p, k, K[k + 1], &st);
-        double cap = stage_cap(&st, p->xmax[k]);
-        K[k] = k == 0 ? 0.0 : stage_max_x(&st, cap);
+        stage_build(p, k, K[k + 1], &st);
+        K[k] = k == 0 ? 0.0 : stage_max_x(&st);
     }
     /* Forward pass: from rest, the greatest acceleration that stays controllable. */
     x[0] = 0.0;
     for (int k = 0; k < n - 1; k++) {
-        stage_at(p, k, K[k + 1], &st);
+        stage_build(p, k, K[k + 1], &st);
         double U, dU, L, dL;
         stage_eval(&st, x[k], &U, &dU, &L, &dL);
-        double next = x[k] + st.d2 * U;
+        double next = x[k] + 2.0 * (p->s[k + 1] - p->s[k]) * U;
         if (next > K[k + 1]) next = K[k + 1];
         x[k + 1] = next > 0.0 ? next : 0.0;
     }
@@ -131,13 +140,15 @@ veer_limit_id veer__topp_binding(const veer_topp_problem *p, const double *x, in
     veer_limit_id best = veer__limit(VEER_LIMIT_NONE, -1);
     if (k >= p->n - 1) return best;
     if (x[k] >= p->xmax[k] * (1.0 - 2e-3) && p->xmax_id) return p->xmax_id[k];
-    stage st;
-    stage_at(p, k, 0.0, &st);
-    double u = (x[k + 1] - x[k]) / st.d2;
+    const veer_row *r0 = p->rows + (size_t)k * (size_t)p->m;
+    const veer_row *r1 = p->rows + (size_t)(k + 1) * (size_t)p->m;
+    double d2 = 2.0 * (p->s[k + 1] - p->s[k]);
+    double u = (x[k + 1] - x[k]) / d2;
     double tight = 2e-3;
-    for (int j = 0; j < st.m0 + st.m1; j++) {
-        const veer_row *r = j < st.m0 ? &st.r0[j] : &st.r1[j - st.m0];
-        double a = j < st.m0 ? r->a : r->a + st.d2 * r->b;
+    for (int j = 0; j < p->row_count[k] + p->row_count[k + 1]; j++) {
+        int first = j < p->row_count[k];
+        const veer_row *r = first ? &r0[j] : &r1[j - p->row_count[k]];
+        double a = first ? r->a : r->a + d2 * r->b;
         if (!(r->c > 0.0)) continue;
         double slack = (r->c - a * u - r->b * x[k]) / r->c;
         if (slack < tight) {
