@@ -1,0 +1,80 @@
+"""Setpoints sampled from Python agree with numpy rigid-body kinematics at 200
+random times on every shipped scenario and the extra test scenarios.
+
+Sources: the chain rule along the path (velocity q' sdot, acceleration
+q'' sdot^2 + q' sddot); rigid-body velocity and acceleration of a body point,
+v + w x r and a + alpha x r - w^2 r (K. M. Lynch, F. C. Park, "Modern
+Robotics", 2017, 13.2); wheel rates of mecanum and omni carts, [MR17]
+eq. (13.5); differential drive wheel speeds v -+ (d/2) w (Siciliano et al.,
+"Robotics", 2009, 11.2) with the skid-steer effective track. See
+tests/python/reference.py."""
+
+import math
+
+import numpy as np
+import pytest
+
+import conftest
+import reference as ref
+import scenarios
+
+CASES = [(p.stem, conftest.load_scenario(p)) for p in conftest.shipped_scenarios()]
+CASES += [(n, scenarios.get(n)) for n in ("icr_near_module", "pivot", "toward")]
+
+TOL = 1e-8  # all quantities are computed in doubles from the same s, sdot, sddot
+
+
+def close(a, b, scale=1.0):
+    return np.allclose(a, b, rtol=TOL, atol=TOL * max(1.0, scale))
+
+
+@pytest.mark.parametrize("name,request_", CASES, ids=[c[0] for c in CASES])
+def test_samples_match_rigid_body_kinematics(veer, name, request_):
+    p = veer.plan(request_)
+    drive = p.drive()
+    rng = np.random.default_rng(20261201)
+    times = np.sort(rng.uniform(0.0, p.duration, 200))
+    r = drive["wheel_radius"]
+    pos = ref.module_positions(drive)
+    J = None if drive["kind"] == "steered" else ref.wheel_matrix(drive)
+    moving = 0
+    for t in times:
+        smp = p.sample(float(t))
+        assert smp.t == pytest.approx(t, abs=1e-12)
+        q, dq, ddq = p.path_at(smp.s)
+        # chain rule along the path
+        assert close(smp.pose[:2], q[:2]) and math.remainder(smp.pose[2] - q[2], 2 * math.pi) == pytest.approx(0, abs=1e-9)
+        assert close(smp.twist_world, dq * smp.sdot)
+        assert close(smp.accel_world, ddq * smp.sdot ** 2 + dq * smp.sddot)
+        # body frame: rotate by -yaw
+        Rt = ref.rot(-smp.pose[2])
+        assert close(smp.twist_body[:2], Rt @ smp.twist_world[:2]) and close(smp.twist_body[2], smp.twist_world[2])
+        assert close(smp.accel_body[:2], Rt @ smp.accel_world[:2]) and close(smp.accel_body[2], smp.accel_world[2])
+        v, w = smp.twist_world[:2], smp.twist_world[2]
+        a, alpha = smp.accel_world[:2], smp.accel_world[2]
+        if smp.phase != "moving":
+            assert np.allclose(smp.twist_world, 0.0) and np.allclose(smp.wheel_rate, 0.0, atol=1e-12)
+            continue
+        moving += 1
+        if J is None:
+            for i, rb in enumerate(pos):
+                Rr = ref.rot(smp.pose[2]) @ rb
+                vi = v + w * (ref.JROT @ Rr)                       # v + w x r
+                ai = a + alpha * (ref.JROT @ Rr) - w * w * Rr      # a + alpha x r - w^2 r
+                sp = float(np.hypot(*vi))
+                # tread velocity in the body frame = wheel_rate * r * (cos steer, sin steer)
+                tread = smp.wheel_rate[i] * r * np.array([math.cos(smp.steer[i]), math.sin(smp.steer[i])])
+                assert close(tread, Rt @ vi, sp)
+                if sp > 1e-6:
+                    steer_rate = (vi[0] * ai[1] - vi[1] * ai[0]) / sp ** 2 - w
+                    assert smp.steer_rate[i] == pytest.approx(steer_rate, rel=1e-6, abs=1e-7)
+                    sign = 1.0 if smp.wheel_rate[i] >= 0 else -1.0
+                    assert smp.wheel_accel[i] == pytest.approx(sign * float(vi @ ai) / sp / r, rel=1e-6, abs=1e-7)
+        else:
+            xi = smp.twist_body
+            # d/dt of the body twist: R(-yaw) a - w J R(-yaw) v, alpha
+            vb = Rt @ v
+            xid = np.concatenate([Rt @ a - w * (ref.JROT @ vb), [alpha]])
+            assert close(smp.wheel_rate, J @ xi, np.max(np.abs(J @ xi)))
+            assert close(smp.wheel_accel, J @ xid, np.max(np.abs(J @ xid)))
+    assert moving > 100  # most random times fall in motion, so the checks above ran
