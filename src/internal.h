@@ -73,11 +73,13 @@ typedef struct {
     int heading;        /* veer_heading_kind, or 0 for spin/pivot */
     double s0, len;     /* global path position where the piece starts, its length in s */
     double c[2][8];     /* polynomial / line / arc parameters, private to path.c */
-    double yaw_p[8];    /* yaw-law parameters, private to path.c */
+    double yaw_p[12];   /* yaw-law parameters, private to path.c */
 } veer_path_piece;
 
 #define VEER_PATH_MAX_PIECES (2 * VEER_MAX_WAYPOINTS + 2 * VEER_MAX_LEGS + 4)
-#define VEER_PATH_MAX_SEGMENTS (VEER_MAX_WAYPOINTS + VEER_MAX_LEGS)
+/* Every stop of a travel leg ends a segment, and a tangent-heading stop that
+ * turns adds a spin segment after it; spin and pivot legs are one each. */
+#define VEER_PATH_MAX_SEGMENTS (2 * VEER_MAX_WAYPOINTS + VEER_MAX_LEGS)
 
 /* A rest-to-rest stretch of the path: the cart is at rest at s_begin and s_end. */
 typedef struct {

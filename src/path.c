@@ -29,7 +29,8 @@ enum { PIECE_LINE = 1, PIECE_CORNER = 2, PIECE_SPIN = 3, PIECE_PIVOT = 4 };
 #define ZERO_TURN_ 1e-9        /* rad: shortest spin or pivot */
 #define STOP_MARGIN_ 0.01      /* share of a line next to a rest that a blend leaves straight */
 #define COORD_MAX_ 1e6         /* m and rad: largest magnitude accepted for positions and angles */
-#define TOWARD_REGION_ 2.5     /* rad: yaw swing after which a TOWARD corner starts a new unwrap region */
+#define TOWARD_REGION_ 2.0     /* rad: yaw swing after which a TOWARD corner starts a new unwrap region */
+#define TOWARD_REGIONS_ 4      /* unwrap regions a corner piece holds: covers a sweep of 8 rad > 2 pi */
 
 /* ---- small helpers ------------------------------------------------------ */
 
@@ -194,12 +195,13 @@ static void travel_geometry(const veer_path_piece *pc, double s, double g[2][4])
 }
 
 /* The fade that absorbs a start mismatch m over L_fade from s_fade:
- * m (1 - S(u)), u = (s - s_fade) / L_fade. yaw_p[5..7] = m, L_fade, s_fade. */
+ * m (1 - S(u)), u = (s - s_fade) / L_fade. yaw_p[9..11] = m, L_fade, s_fade,
+ * set on every piece the fade overlaps. */
 static void add_fade(const veer_path_piece *pc, double s, double y[3]) {
-    double m = pc->yaw_p[5], L = pc->yaw_p[6];
+    double m = pc->yaw_p[9], L = pc->yaw_p[10];
     if (!(L > 0.0) || m == 0.0) return;
     double f, f1, f2;
-    smootherstep((s - pc->yaw_p[7]) / L, &f, &f1, &f2);
+    smootherstep((s - pc->yaw_p[11]) / L, &f, &f1, &f2);
     y[0] += m * (1.0 - f);
     y[1] -= m * f1 / L;
     y[2] -= m * f2 / (L * L);
@@ -222,7 +224,6 @@ static void travel_yaw(const veer_path_piece *pc, double s, const double g[2][4]
     case VEER_HEADING_TANGENT:
         if (pc->kind == PIECE_LINE) {
             y[0] = p[0];
-            add_fade(pc, s, y);
         } else {
             /* psi = atan2(y', x'); psi' = (x'y'' - y'x'') / |p'|^2, and its
              * derivative; measured from d0, since B' stays between d0 and d1. */
@@ -241,17 +242,15 @@ static void travel_yaw(const veer_path_piece *pc, double s, const double g[2][4]
         double r1x = -g[0][1], r1y = -g[1][1], r2x = -g[0][2], r2y = -g[1][2];
         double n = rx * rx + ry * ry;
         double cr = cross2(rx, ry, r1x, r1y);
+        /* unwrap against a reference within pi of every yaw in its region:
+         * p[2] from the start, (p[3], p[4]), (p[5], p[6]), (p[7], p[8]) =
+         * (where a region starts, its reference) on corners */
         double ref = p[2];
-        if (pc->kind == PIECE_CORNER) {
-            if (s >= p[5])
-                ref = p[6];
-            else if (s >= p[3])
-                ref = p[4];
-        }
+        if (pc->kind == PIECE_CORNER)
+            for (int k = 3; k <= 7 && s >= p[k]; k += 2) ref = p[k + 1];
         y[0] = ref + veer__wrap(atan2(ry, rx) - ref);
         y[1] = cr / n;
         y[2] = cross2(rx, ry, r2x, r2y) / n - 2.0 * cr * dot2(rx, ry, r1x, r1y) / (n * n);
-        if (pc->kind == PIECE_LINE) add_fade(pc, s, y);
         break;
     }
     case VEER_HEADING_BLEND:
@@ -266,6 +265,7 @@ static void travel_yaw(const veer_path_piece *pc, double s, const double g[2][4]
         y[0] = p[0];
         break;
     }
+    add_fade(pc, s, y);
 }
 
 static void piece_eval(const veer_path_piece *pc, double s, double q[3], double dq[3], double ddq[3]) {
@@ -567,7 +567,7 @@ typedef struct {
     double law;       /* TANGENT, TOWARD: the law's unwrapped yaw at the current end */
     double offset;    /* TANGENT: 0, or pi when reversed */
     double tx, ty;    /* TOWARD point */
-    double fade;      /* mismatch to absorb in the next line piece */
+    double fade;      /* mismatch to absorb at the start of the open segment */
 } yaw_state;
 
 static veer_status toward_too_close(builder *b, int li, int wi) {
@@ -607,12 +607,6 @@ static veer_status line_yaw(builder *b, yaw_state *ys, veer_path_piece *pc, doub
     default: /* BLEND: filled once the leg's knots are known */
         break;
     }
-    if (ys->fade != 0.0 && (ys->heading == VEER_HEADING_TANGENT || ys->heading == VEER_HEADING_TOWARD)) {
-        pc->yaw_p[5] = ys->fade;
-        pc->yaw_p[6] = L < FADE_MAX_ ? L : FADE_MAX_;
-        pc->yaw_p[7] = pc->s0;
-    }
-    ys->fade = 0.0;
     return VEER_OK;
 }
 
@@ -634,8 +628,8 @@ static veer_status corner_yaw(builder *b, yaw_state *ys, veer_path_piece *pc, co
         double vmax = 1.0 + fabs(sh->c) * 2.0 / 64.0; /* |B'| <= 1 + c |d0 + d1| max g */
         double g[2][4];
         p[0] = ys->tx, p[1] = ys->ty, p[2] = ys->law;
-        p[3] = p[5] = HUGE_VAL;
-        p[4] = p[6] = ys->law;
+        p[3] = p[5] = p[7] = HUGE_VAL;
+        p[4] = p[6] = p[8] = ys->law;
         int regions = 1;
         double sigma = 0.0, u = ys->law, L = pc->len;
         travel_geometry(pc, pc->s0, g);
@@ -652,7 +646,7 @@ static veer_status corner_yaw(builder *b, yaw_state *ys, veer_path_piece *pc, co
             u += veer__wrap(a - prev);
             prev = a;
             if (fabs(u - ref) > TOWARD_REGION_ && sigma < L) {
-                if (regions == 3) return toward_too_close(b, li, wi);
+                if (regions == TOWARD_REGIONS_) return toward_too_close(b, li, wi);
                 p[1 + 2 * regions] = pc->s0 + sigma;
                 p[2 + 2 * regions] = u;
                 ref = u;
@@ -675,6 +669,23 @@ static veer_status mismatch(builder *b, int li, int wi, double cur, double law, 
     return veer__fail(b->diag, VEER_ERR_GEOMETRY, li, wi, -1, b->s, veer__limit(VEER_LIMIT_NONE, -1),
                       "leg %d starts facing %.2f rad but its %s heading needs %.2f rad; add a spin leg first", li,
                       veer__wrap(cur), heading_name(heading), veer__wrap(law));
+}
+
+/* Spreads the fade of a start mismatch m over the first min(segment length,
+ * 1 m) of a travel segment just closed: yaw then starts exactly at the yaw the
+ * cart has and joins the law with matching rate and curvature (C2). */
+static void apply_fade(veer_path *path, double m) {
+    if (m == 0.0) return;
+    const veer_path_segment *sg = &path->segments[path->segment_count - 1];
+    double L = sg->s_end - sg->s_begin;
+    if (L > FADE_MAX_) L = FADE_MAX_;
+    for (int j = sg->first_piece; j < sg->first_piece + sg->piece_count; j++) {
+        veer_path_piece *pc = &path->pieces[j];
+        if (pc->s0 >= sg->s_begin + L) break;
+        pc->yaw_p[9] = m;
+        pc->yaw_p[10] = L;
+        pc->yaw_p[11] = sg->s_begin;
+    }
 }
 
 static veer_status build_travel(builder *b, int li, int w0) {
@@ -784,9 +795,12 @@ static veer_status build_travel(builder *b, int li, int w0) {
         double dwell = route->waypoints[wi].dwell + (i + 1 == n ? leg->dwell : 0.0);
         st = close_segment(b, li, wi, dwell);
         if (st) return st;
+        apply_fade(b->path, ys.fade);
+        ys.fade = 0.0;
         if (i + 1 < n && ys.heading == VEER_HEADING_TANGENT) {
-            /* The tangent turns at this stop: a small change is faded in along
-             * the next line, a larger one is a spin in place (its own segment). */
+            /* The tangent turns at this stop: a small change is faded in at
+             * the start of the next segment, a larger one is a spin in place
+             * (its own segment). */
             double target = atan2(dy[i + 1], dx[i + 1]) + ys.offset;
             double next = ys.law + veer__wrap(target - ys.law);
             double delta = next - ys.law;
