@@ -9,6 +9,7 @@
 
 #define PI VEER_PI
 #define DEG (PI / 180.0)
+#define T_NAN ((double)NAN) /* NAN is a float constant */
 /* path.c opens a new unwrap reference every 2 rad of bearing sweep */
 #define TOWARD_REGION 2.0
 
@@ -383,7 +384,7 @@ Test(path_line, straight_is_arc_length) {
     cr_assert(fabs(q[0] - 1) < 1e-15 && fabs(q[1] - 2) < 1e-15);
     eval(0, 99.0, q, dq, ddq);
     cr_assert(fabs(q[0] - 4) < 1e-14 && fabs(q[1] - 6) < 1e-14);
-    eval(5, NAN, q, dq, ddq);
+    eval(5, T_NAN, q, dq, ddq);
     cr_assert(isfinite(q[0]) && isfinite(q[1]) && isfinite(q[2]));
 }
 
@@ -737,7 +738,7 @@ Test(path_segments, stops_split_and_carry_dwell) {
     cr_expect_eq(veer__path_segment_at(&g_path, s[0].s_end), 1, "the later segment at a shared rest");
     cr_expect_eq(veer__path_segment_at(&g_path, -5.0), 0);
     cr_expect_eq(veer__path_segment_at(&g_path, 1e9), 2);
-    cr_expect_eq(veer__path_segment_at(&g_path, NAN), 0);
+    cr_expect_eq(veer__path_segment_at(&g_path, T_NAN), 0);
     /* rest to rest: the stop is exactly the waypoint */
     double q[3], dq[3], ddq[3];
     eval(0, s[0].s_end, q, dq, ddq);
@@ -854,20 +855,20 @@ static void m_many_wps(veer_route *r) { r->waypoint_count = VEER_MAX_WAYPOINTS +
 static void m_neg_wps(veer_route *r) { r->waypoint_count = -1; }
 static void m_too_few_wps(veer_route *r) { r->waypoint_count = 1; }
 static void m_unused_wps(veer_route *r) { r->waypoints[2] = veer_default_waypoint(9, 9), r->waypoint_count = 3; }
-static void m_nan_start(veer_route *r) { r->start_x = NAN; }
-static void m_inf_yaw(veer_route *r) { r->start_yaw = INFINITY; }
+static void m_nan_start(veer_route *r) { r->start_x = T_NAN; }
+static void m_inf_yaw(veer_route *r) { r->start_yaw = HUGE_VAL; }
 static void m_huge_x(veer_route *r) { r->waypoints[0].x = 1e300; }
-static void m_nan_wp(veer_route *r) { r->waypoints[1].y = NAN; }
-static void m_nan_wp_yaw(veer_route *r) { r->waypoints[1].yaw = NAN; }
-static void m_nan_toward(veer_route *r) { r->legs[0].toward_x = NAN; }
-static void m_nan_spin(veer_route *r) { r->legs[1].yaw = -INFINITY; }
-static void m_nan_pivot(veer_route *r) { r->legs[2].pivot_y = NAN; }
-static void m_nan_dwell(veer_route *r) { r->legs[2].dwell = NAN; }
+static void m_nan_wp(veer_route *r) { r->waypoints[1].y = T_NAN; }
+static void m_nan_wp_yaw(veer_route *r) { r->waypoints[1].yaw = T_NAN; }
+static void m_nan_toward(veer_route *r) { r->legs[0].toward_x = T_NAN; }
+static void m_nan_spin(veer_route *r) { r->legs[1].yaw = -HUGE_VAL; }
+static void m_nan_pivot(veer_route *r) { r->legs[2].pivot_y = T_NAN; }
+static void m_nan_dwell(veer_route *r) { r->legs[2].dwell = T_NAN; }
 static void m_neg_dwell(veer_route *r) { r->legs[0].dwell = -1.0; }
 static void m_neg_wp_dwell(veer_route *r) { r->waypoints[0].dwell = -0.1; }
 static void m_zero_tol(veer_route *r) { r->legs[0].corner_tolerance = 0.0; }
 static void m_neg_tol(veer_route *r) { r->legs[0].corner_tolerance = -0.2; }
-static void m_nan_tol(veer_route *r) { r->legs[0].corner_tolerance = NAN; }
+static void m_nan_tol(veer_route *r) { r->legs[0].corner_tolerance = T_NAN; }
 static void m_bad_kind(veer_route *r) { r->legs[1].kind = (veer_leg_kind)9; }
 static void m_zero_kind(veer_route *r) { r->legs[1].kind = VEER_LEG_UNSPECIFIED; }
 static void m_bad_heading(veer_route *r) { r->legs[0].heading = (veer_heading_kind)7; }
@@ -877,7 +878,7 @@ static void m_bad_reversed(veer_route *r) { r->legs[0].reversed = 5; }
 static void m_bad_stop(veer_route *r) { r->waypoints[0].stop = 3; }
 static void m_bad_has_yaw(veer_route *r) { r->waypoints[0].has_yaw = -1; }
 static void m_spin_with_wps(veer_route *r) { r->legs[1].waypoint_count = 1; }
-static void m_nan_steer(veer_route *r) { r->has_start_steer = 1, r->start_steer[3] = NAN; }
+static void m_nan_steer(veer_route *r) { r->has_start_steer = 1, r->start_steer[3] = T_NAN; }
 static void m_travel_no_wps(veer_route *r) {
     /* an extra travel leg without waypoints at the end */
     r->legs[r->leg_count] = veer_default_leg(VEER_LEG_TRAVEL);

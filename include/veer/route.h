@@ -5,6 +5,39 @@
  * waypoints inside it are also rests, pass-through waypoints are corners that
  * the path rounds within the leg's corner tolerance.
  * World frame: x, y in metres on the range, yaw in radians counter-clockwise.
+ *
+ * How a route becomes a path (the pose curve the plan follows):
+ * - The path starts at the start pose; each leg starts where the one before
+ *   ended, with the yaw it ended with. The path position s runs on across all
+ *   legs: metres along the curve on travel legs, radians of rotation on spin
+ *   and pivot legs.
+ * - Travel legs run in straight lines between waypoints (the first from the
+ *   leg's start). A pass-through corner is rounded by a smooth blend that
+ *   passes within corner_tolerance of the waypoint; the blend uses at most
+ *   half of a line between two corners and at most 99% of a line next to a
+ *   rest, so on short lines it passes closer than the tolerance. A corner
+ *   turning more than 175 degrees cannot be rounded: make it a stop.
+ * - Heading intent: HOLD keeps the leg's start yaw; TANGENT faces the direction
+ *   of travel (plus pi with reversed); TOWARD faces (toward_x, toward_y), and
+ *   the path must not pass within 1 mm of it; BLEND eases (quintic
+ *   smootherstep, zero rate and curvature at the knots) from the start yaw to
+ *   the yaw of each waypoint with has_yaw in turn, reached at the middle of a
+ *   rounded corner or at a stop, each the shorter way round from the one
+ *   before, and keeps the last one. Yaw never wraps along the path.
+ * - When TANGENT or TOWARD asks for a yaw other than the one the leg starts
+ *   with, up to 5 degrees are eased in over the first metre (or the first
+ *   stretch to a rest, if shorter); more is refused: add a spin leg first.
+ *   At a stop inside a TANGENT leg where the direction of travel turns by
+ *   more than 5 degrees, the cart spins in place at the stop (an extra
+ *   rest-to-rest stretch of the same leg, after the stop's dwell).
+ * - A spin leg turns in place to yaw; a pivot leg rotates the body rigidly
+ *   about (pivot_x, pivot_y) by angle (a pivot about the body origin is a
+ *   spin). Neither may be of zero size.
+ * - Checked when planning: every number finite, positions and angles within
+ *   +-1e6, dwells >= 0, corner_tolerance > 0, kinds, headings and spin
+ *   directions known, flags 0 or 1, each travel leg with >= 1 waypoint, spin
+ *   and pivot legs with none, every waypoint used by exactly one leg, and no
+ *   waypoint closer than 1e-6 m to the point before it.
  * SPDX-License-Identifier: MIT */
 #ifndef VEER_ROUTE_H
 #define VEER_ROUTE_H
@@ -52,7 +85,7 @@ typedef struct {
     double corner_tolerance;     /* m: how far a rounded corner may pass from its waypoint, default 0.25 */
     /* spin */
     double yaw;                  /* target world yaw, rad */
-    int direction;               /* spin: 0 the shorter way, +1 counter-clockwise, -1 clockwise */
+    int direction;               /* spin: 0 the shorter way (a half turn goes counter-clockwise), +1 counter-clockwise, -1 clockwise */
     /* pivot */
     double pivot_x, pivot_y;     /* world point the body rotates about, m */
     double angle;                /* signed rotation, rad, counter-clockwise positive */
@@ -81,7 +114,9 @@ VEER_API veer_waypoint veer_default_waypoint(double x, double y);
 /* Appends a leg (its waypoint_count is reset to 0; add its waypoints next).
  * VEER_ERR_CAPACITY when the route is full; the route is then unchanged. */
 VEER_API VEER_NODISCARD veer_status veer_route_add_leg(veer_route *route, const veer_leg *leg);
-/* Appends a waypoint to the last leg, which must be a travel leg. */
+/* Appends a waypoint to the shared list and counts it to the last leg, which
+ * must be a travel leg (VEER_ERR_STATE otherwise, or with no leg yet).
+ * VEER_ERR_CAPACITY when the list is full. The route is unchanged on failure. */
 VEER_API VEER_NODISCARD veer_status veer_route_add_waypoint(veer_route *route, const veer_waypoint *wp);
 
 #ifdef __cplusplus
