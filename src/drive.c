@@ -102,8 +102,8 @@ veer_status veer_drive_check(const veer_drive_def *drive, veer_diag *diag) {
     default:
         return VEER__DRIVE_FAIL(diag, VEER_ERR_VALUE, "unknown drive kind %d", (int)drive->kind);
     }
-    if (!(veer__finite(drive->wheel_radius) && drive->wheel_radius > 0.0))
-        return VEER__DRIVE_FAIL(diag, VEER_ERR_VALUE, "wheel radius must be finite and > 0 m, got %g",
+    if (!veer__length_ok(drive->wheel_radius))
+        return VEER__DRIVE_FAIL(diag, VEER_ERR_VALUE, "wheel radius must be in [1e-4, 1e3] m, got %g",
                                 drive->wheel_radius);
     switch (drive->kind) {
     case VEER_DRIVE_STEERED:

@@ -8,8 +8,8 @@
 #include "internal.h"
 
 veer_status veer__drive_differential_check(const veer_drive_def *drive, veer_diag *diag) {
-    if (!(veer__finite(drive->track_width) && drive->track_width > 0.0))
-        return VEER__DRIVE_FAIL(diag, VEER_ERR_VALUE, "differential track width must be finite and > 0 m, got %g",
+    if (!veer__length_ok(drive->track_width))
+        return VEER__DRIVE_FAIL(diag, VEER_ERR_VALUE, "differential track width must be in [1e-4, 1e3] m, got %g",
                                 drive->track_width);
     if (!(veer__finite(drive->skid_factor) && drive->skid_factor >= 1.0))
         return VEER__DRIVE_FAIL(diag, VEER_ERR_VALUE, "differential skid factor must be finite and >= 1, got %g",

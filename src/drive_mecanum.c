@@ -12,11 +12,11 @@
 #define ROLLER_MAX (89.0 * VEER_PI / 180.0) /* 89 degrees */
 
 veer_status veer__drive_mecanum_check(const veer_drive_def *drive, veer_diag *diag) {
-    if (!(veer__finite(drive->half_wheelbase) && drive->half_wheelbase > 0.0))
-        return VEER__DRIVE_FAIL(diag, VEER_ERR_VALUE, "mecanum half wheelbase must be finite and > 0 m, got %g",
+    if (!veer__length_ok(drive->half_wheelbase))
+        return VEER__DRIVE_FAIL(diag, VEER_ERR_VALUE, "mecanum half wheelbase must be in [1e-4, 1e3] m, got %g",
                                 drive->half_wheelbase);
-    if (!(veer__finite(drive->half_track) && drive->half_track > 0.0))
-        return VEER__DRIVE_FAIL(diag, VEER_ERR_VALUE, "mecanum half track must be finite and > 0 m, got %g",
+    if (!veer__length_ok(drive->half_track))
+        return VEER__DRIVE_FAIL(diag, VEER_ERR_VALUE, "mecanum half track must be in [1e-4, 1e3] m, got %g",
                                 drive->half_track);
     if (!(drive->roller_angle >= ROLLER_MIN && drive->roller_angle <= ROLLER_MAX))
         return VEER__DRIVE_FAIL(diag, VEER_ERR_VALUE,

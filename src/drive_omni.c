@@ -22,8 +22,8 @@ veer_status veer__drive_omni_check(const veer_drive_def *drive, veer_diag *diag)
     double cx = 0.0, cy = 0.0;
     for (int i = 0; i < n; i++) {
         const veer_module_def *m = &drive->modules[i];
-        if (!veer__finite(m->x) || !veer__finite(m->y))
-            return VEER__DRIVE_FAIL(diag, VEER_ERR_VALUE, "module %d: position (%g, %g) m is not finite", i, m->x,
+        if (!veer__offset_ok(m->x) || !veer__offset_ok(m->y))
+            return VEER__DRIVE_FAIL(diag, VEER_ERR_VALUE, "module %d: position (%g, %g) m is not finite or beyond 1e3 m", i, m->x,
                                     m->y);
         if (!veer__finite(m->drive_angle))
             return VEER__DRIVE_FAIL(diag, VEER_ERR_VALUE, "module %d: drive angle %g rad is not finite", i,

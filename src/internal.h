@@ -32,6 +32,13 @@ static inline veer_limit_id veer__limit(int kind, int module) {
     return id;
 }
 static inline int veer__finite(double v) { return isfinite(v); }
+/* Plausible cart dimensions, m: a wheel radius, a track or a module offset
+ * outside [VEER_LENGTH_MIN, VEER_LENGTH_MAX] is a typing mistake, and its
+ * reciprocal would overflow the setpoints. */
+#define VEER_LENGTH_MIN 1e-4
+#define VEER_LENGTH_MAX 1e3
+static inline int veer__length_ok(double v) { return isfinite(v) && v >= VEER_LENGTH_MIN && v <= VEER_LENGTH_MAX; }
+static inline int veer__offset_ok(double v) { return isfinite(v) && fabs(v) <= VEER_LENGTH_MAX; }
 /* Wraps an angle into (-pi, pi]. */
 double veer__wrap(double a);
 
