@@ -1,0 +1,120 @@
+/* veer internals of the message interface (wire_*.c): conversions between
+ * the generated nanopb structs and veer's structs, the compact profile, the
+ * content hash. Not installed; nanopb types stay behind this header.
+ * SPDX-License-Identifier: MIT */
+#ifndef VEER_WIRE_INTERNAL_H
+#define VEER_WIRE_INTERNAL_H
+
+#include <stdint.h>
+#include <pb.h>
+#include <pb_decode.h>
+#include <pb_encode.h>
+#include "plan_internal.h"
+#include "veer/wire.h"
+#include "veer/v1/plan.pb.h"
+#include "veer/v1/setpoints.pb.h"
+
+/* Version of the path construction (path.c) a Plan's route is rebuilt
+ * with. Bump it whenever the same route would give a different path; a
+ * decoder refuses plans made with another. */
+#define VEER_WIRE_PATH_MODEL 1
+
+/* ---- wire_request.c: messages <-> structs ------------------------------ */
+
+/* Decodes size bytes as the message fields into msg (which it zeroes first).
+ * what names the message in the diagnostic. Truncated or malformed bytes give
+ * VEER_ERR_DECODE, a list or string over its capacity VEER_ERR_CAPACITY. */
+veer_status veer__wire_decode(const pb_msgdesc_t *fields, void *msg, const uint8_t *buf, size_t size,
+                              const char *what, veer_diag *diag);
+
+/* Proto Status value <-> veer_status (proto = veer_status + 1). */
+int veer__wire_status_to_pb(veer_status st);
+
+/* Each *_from_pb checks every value (enum values known, counts consistent,
+ * numbers finite where they must be) and fills out only on success; the
+ * diagnostic names the field, e.g. "route.legs[2].kind". Semantic checks
+ * (geometry, limits > 0) are left to veer_drive_check, the planner and the
+ * path builder. */
+veer_status veer__wire_drive_from_pb(const veer_v1_DriveDef *m, veer_drive_def *out, veer_diag *diag);
+veer_status veer__wire_limits_from_pb(const veer_v1_Limits *m, int module_count, veer_limits *out, veer_diag *diag);
+veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, veer_route *out, veer_diag *diag);
+veer_status veer__wire_options_from_pb(const veer_v1_PlanOptions *m, veer_plan_options *out, veer_diag *diag);
+
+/* Each *_to_pb writes the canonical message of a checked struct: fields that
+ * apply to its kind, unset limits left out, identical module limits once. */
+void veer__wire_drive_to_pb(const veer_drive_def *d, veer_v1_DriveDef *m);
+void veer__wire_limits_to_pb(const veer_limits *l, int module_count, veer_v1_Limits *m);
+void veer__wire_route_to_pb(const veer_route *r, int module_count, veer_v1_Route *m);
+void veer__wire_options_to_pb(const veer_plan_options *o, veer_v1_PlanOptions *m);
+void veer__wire_diag_to_pb(const veer_diag *d, veer_v1_Diagnostic *m);
+
+/* 1 if s (NUL-terminated) is valid UTF-8, as proto3 strings must be. */
+int veer__wire_utf8_ok(const char *s);
+
+/* Encodes msg into out (capacity bytes): sizes it first, then writes only if
+ * it fits. *size gets the encoded size. VEER_ERR_BUFFER (out untouched) when
+ * out is NULL or too small; VEER_ERR_CAPACITY if the encoder refuses. */
+veer_status veer__wire_encode(const pb_msgdesc_t *fields, const void *msg, uint8_t *out, size_t capacity,
+                              size_t *size, veer_diag *diag);
+
+/* ---- wire_sha256.c: SHA-256 (FIPS 180-4) ---------------------------------- */
+
+typedef struct {
+    uint32_t h[8];
+    uint64_t bytes;
+    uint8_t block[64];
+    size_t fill;
+} veer_sha256;
+
+void veer__sha256_init(veer_sha256 *c);
+void veer__sha256_update(veer_sha256 *c, const void *data, size_t size);
+void veer__sha256_final(veer_sha256 *c, uint8_t digest[32]);
+
+/* ---- wire_plan.c: plans <-> Plan messages -------------------------------- */
+
+/* Fills m with the plan's canonical Plan message: drive, limits, route,
+ * options, the compressed profile (checked against the plan by sampling),
+ * duration, length, cart_id and the content hash. */
+veer_status veer__wire_plan_to_pb(const veer_plan *plan, const char *cart_id, veer_v1_Plan *m, veer_diag *diag);
+
+/* SHA-256 of m's encoding with content_hash left empty (m is restored). */
+veer_status veer__wire_plan_hash(veer_v1_Plan *m, uint8_t digest[32]);
+
+/* Workspace of a plan rebuilt from a Plan message: the plan, its grid arrays
+ * for VEER_WIRE_MAX_KNOTS knots and the body twists the steer tracking needs. */
+#define VEER__WIRE_ALIGN(n) (((size_t)(n) + 15u) & ~(size_t)15u)
+#define VEER__WIRE_PLAN_WORK_BYTES                                                                              \
+    (VEER__WIRE_ALIGN(sizeof(veer_plan)) +                                                                     \
+     VEER__WIRE_ALIGN((size_t)VEER_WIRE_MAX_KNOTS *                                                            \
+                      ((3 + VEER_MAX_MODULES) * sizeof(double) + sizeof(veer_limit_id))) +                     \
+     (size_t)VEER_WIRE_MAX_KNOTS * 3 * sizeof(double))
+/* ... and the decoded message beside it (veer_plan_load_pb). */
+#define VEER__WIRE_WORK_BYTES (VEER__WIRE_PLAN_WORK_BYTES + VEER__WIRE_ALIGN(sizeof(veer_v1_Plan)))
+size_t veer__wire_plan_work_size(void);
+
+/* Rebuilds a plan from a decoded Plan message (checks everything: version,
+ * path model, hash, values, profile) inside work (VEER__WIRE_PLAN_WORK_BYTES,
+ * aligned for double); *out points into work. No heap. */
+veer_status veer__wire_plan_load(veer_v1_Plan *m, void *work, size_t work_size, veer_plan **out, veer_diag *diag);
+/* The same into a new heap plan for veer_plan_destroy. */
+veer_status veer__wire_plan_decode_heap(veer_v1_Plan *m, veer_plan **out, veer_diag *diag);
+
+/* What the encoder guarantees between a plan and its Plan message (issue 3):
+ * pose within 1 mm and 0.1 degree, steer within 0.1 degree, and setpoints no
+ * more than 0.5 % of a limit beyond the plan's own worst (or the limit). */
+#define VEER_WIRE_TOL_POSITION 1e-3
+#define VEER_WIRE_TOL_ANGLE (0.1 * VEER_PI / 180.0)
+#define VEER_WIRE_TOL_LIMIT 0.005
+
+/* How far plan b is from plan a, sampled at `samples` evenly spaced times. */
+typedef struct {
+    double position;     /* m, largest distance between the body origins */
+    double angle;        /* rad, largest yaw or steer difference */
+    double ratio_a;      /* largest setpoint / limit of a */
+    double ratio_b;      /* ... of b */
+    double limit_excess; /* largest (b's ratio - max(1, a's ratio)) over the limit kinds */
+    double duration;     /* s, |duration a - duration b| */
+} veer_wire_figures;
+void veer__wire_compare(const veer_plan *a, const veer_plan *b, int samples, veer_wire_figures *f);
+
+#endif

@@ -1,0 +1,578 @@
+/* Plans <-> Plan messages, and the compact profile.
+ *
+ * A Plan message carries the drive, limits and route; the path is rebuilt
+ * from the route by path.c. The profile is carried as knots (s, sdot) per
+ * rest-to-rest segment between which sddot is constant (sdot^2 linear in s,
+ * the same law the planner uses between its grid points). The encoder keeps
+ * a grid point as a knot only where dropping it would move sdot or the
+ * arrival time materially, steers each kept knot's sdot within its tolerance
+ * so the accumulated time error stays near zero, and then checks the result
+ * by sampling it against the plan, tightening until it agrees.
+ *
+ * Profile.knots layout, per path segment in order:
+ *   varint n (interior knots, >= 1), then n pairs
+ *   varint ds (>= 1, counts of s_step from the previous knot),
+ *   zigzag varint dv (counts of sdot_step from the previous knot's sdot).
+ * Each segment starts at its s_begin at rest (implicit) and ends at its s_end
+ * at rest (implicit).
+ * SPDX-License-Identifier: MIT */
+#include <string.h>
+#include "wire_internal.h"
+
+#define NONE_ID veer__limit(VEER_LIMIT_NONE, -1)
+
+#define S_STEP 1e-4    /* s units (m or rad) per count */
+#define V_STEP 1e-4    /* s units per second per count */
+#define MAX_WINDOW 4096 /* grid intervals one knot interval may span */
+
+/* ---- varints (protobuf base-128, zigzag for signed) ------------------------ */
+
+typedef struct {
+    uint8_t *p;
+    size_t n, cap;
+    int overflow;
+} wbuf;
+
+static void put_varint(wbuf *b, uint64_t v) {
+    do {
+        uint8_t c = (uint8_t)(v & 0x7Fu);
+        v >>= 7;
+        if (v) c |= 0x80u;
+        if (b->n < b->cap) b->p[b->n] = c;
+        else b->overflow = 1;
+        b->n++;
+    } while (v);
+}
+
+static uint64_t zigzag(int64_t v) { return v < 0 ? (((uint64_t)(-(v + 1))) << 1) | 1u : ((uint64_t)v) << 1; }
+static int64_t unzigzag(uint64_t u) { return (u & 1u) ? -(int64_t)(u >> 1) - 1 : (int64_t)(u >> 1); }
+
+typedef struct {
+    const uint8_t *p;
+    size_t n, pos;
+} rbuf;
+
+static int get_varint(rbuf *b, uint64_t *v) {
+    uint64_t r = 0;
+    for (int shift = 0; shift < 64; shift += 7) {
+        if (b->pos >= b->n) return 0;
+        uint8_t c = b->p[b->pos++];
+        if (shift == 63 && c > 1) return 0;
+        r |= (uint64_t)(c & 0x7Fu) << shift;
+        if (!(c & 0x80u)) {
+            *v = r;
+            return 1;
+        }
+    }
+    return 0;
+}
+
+/* ---- content hash ------------------------------------------------------ */
+
+static bool hash_write(pb_ostream_t *os, const pb_byte_t *buf, size_t count) {
+    veer__sha256_update((veer_sha256 *)os->state, buf, count);
+    return true;
+}
+
+veer_status veer__wire_plan_hash(veer_v1_Plan *m, uint8_t digest[32]) {
+    /* The hash covers the encoding with content_hash empty: encode the
+     * fields before and after it (content_hash is the last field, 12). */
+    veer_sha256 c;
+    veer__sha256_init(&c);
+    pb_ostream_t os = {0};
+    os.callback = hash_write;
+    os.state = &c;
+    os.max_size = SIZE_MAX;
+    pb_size_t saved = m->content_hash.size;
+    m->content_hash.size = 0;
+    bool ok = pb_encode(&os, veer_v1_Plan_fields, m);
+    m->content_hash.size = saved;
+    veer__sha256_final(&c, digest);
+    return ok ? VEER_OK : VEER_ERR_CAPACITY;
+}
+
+/* ---- rebuilding a plan from knots --------------------------------------- */
+
+size_t veer__wire_plan_work_size(void) { return VEER__WIRE_PLAN_WORK_BYTES; }
+
+/* Parses the profile against the path's segments. With s, x NULL only counts
+ * the knots (*count); otherwise fills them and the segments' k0, k1. */
+static veer_status parse_profile(const veer_v1_Profile *pr, const veer_path *path, double *s, double *x,
+                                 veer_plan_segment *segs, int *count, veer_diag *diag) {
+    if (!(pr->s_step >= 1e-9 && pr->s_step <= 1.0) || !(pr->sdot_step >= 1e-9 && pr->sdot_step <= 1.0))
+        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
+                          "plan.profile: s_step %g and sdot_step %g must be in [1e-9, 1]", pr->s_step,
+                          pr->sdot_step);
+    rbuf b = {pr->knots.bytes, pr->knots.size, 0};
+    int k = 0;
+    for (int j = 0; j < path->segment_count; j++) {
+        const veer_path_segment *ps = &path->segments[j];
+        uint64_t n;
+        if (!get_varint(&b, &n) || n < 1 || n > VEER_WIRE_MAX_KNOTS)
+            return veer__fail(diag, VEER_ERR_DECODE, -1, -1, -1, ps->s_begin, NONE_ID,
+                              "plan.profile: segment %d of %d has no valid knot count", j, path->segment_count);
+        if ((uint64_t)k + n + 2 > VEER_WIRE_MAX_KNOTS)
+            return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, ps->s_begin, NONE_ID,
+                              "plan.profile: more than %d knots", VEER_WIRE_MAX_KNOTS);
+        if (segs) segs[j].k0 = k;
+        if (s) s[k] = ps->s_begin, x[k] = 0.0;
+        k++;
+        uint64_t cs = 0;
+        int64_t cv = 0;
+        double prev_s = ps->s_begin, prev_v = 0.0;
+        for (uint64_t i = 0; i < n; i++) {
+            uint64_t ds, dvz;
+            if (!get_varint(&b, &ds) || !get_varint(&b, &dvz))
+                return veer__fail(diag, VEER_ERR_DECODE, -1, -1, k, ps->s_begin, NONE_ID,
+                                  "plan.profile: the knots end early (segment %d)", j);
+            int64_t dv = unzigzag(dvz);
+            if (ds < 1 || ds > ((uint64_t)1 << 40) || dv > ((int64_t)1 << 40) || dv < -((int64_t)1 << 40))
+                return veer__fail(diag, VEER_ERR_VALUE, -1, -1, k, prev_s, NONE_ID,
+                                  "plan.profile: knot %d has an out-of-range step", k);
+            cs += ds;
+            cv += dv;
+            double sk = ps->s_begin + (double)cs * pr->s_step, vk = (double)cv * pr->sdot_step;
+            if (!(sk > prev_s) || !(sk < ps->s_end) || cv < 0 || vk > 1e4 || (vk == 0.0 && prev_v == 0.0))
+                return veer__fail(diag, VEER_ERR_VALUE, -1, -1, k, sk, NONE_ID,
+                                  "plan.profile: knot %d (s = %g, sdot = %g) is outside segment %d [%g, %g] or "
+                                  "follows a rest",
+                                  k, sk, vk, j, ps->s_begin, ps->s_end);
+            if (s) s[k] = sk, x[k] = vk * vk;
+            prev_s = sk;
+            prev_v = vk;
+            k++;
+        }
+        if (prev_v == 0.0)
+            return veer__fail(diag, VEER_ERR_VALUE, -1, -1, k, ps->s_end, NONE_ID,
+                              "plan.profile: segment %d would stand still before its end", j);
+        if (s) s[k] = ps->s_end, x[k] = 0.0;
+        if (segs) segs[j].k1 = k;
+        k++;
+    }
+    if (b.pos != b.n)
+        return veer__fail(diag, VEER_ERR_DECODE, -1, -1, -1, -1.0, NONE_ID,
+                          "plan.profile: %zu bytes left after the last segment's knots", b.n - b.pos);
+    if (pr->knot_count != (uint32_t)k)
+        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
+                          "plan.profile: knot_count says %u, the knots hold %d", (unsigned)pr->knot_count, k);
+    *count = k;
+    return VEER_OK;
+}
+
+/* The plan's timeline from its knots: times, steer angles, re-steer phases,
+ * dwells, leg summaries (the same steps as the planner after its solve). */
+static veer_status timeline(veer_plan *plan, double *xi, veer_diag *diag) {
+    const veer_path *path = &plan->path;
+    int M = plan->module_count;
+    double from[VEER_MAX_MODULES];
+    for (int i = 0; i < M; i++) from[i] = plan->route.has_start_steer ? plan->route.start_steer[i] : 0.0;
+    double clock = 0.0;
+    for (int j = 0; j < plan->segment_count; j++) {
+        veer_plan_segment *sg = &plan->segs[j];
+        sg->dwell = path->segments[j].dwell;
+        double t = 0.0;
+        for (int k = sg->k0; k <= sg->k1; k++) {
+            veer_point_kin pk;
+            veer__point_kin(path, j, plan->s[k], &pk);
+            memcpy(xi + 3 * (k - sg->k0), pk.xi, 3 * sizeof(double));
+            if (k > sg->k0) t += 2.0 * (plan->s[k] - plan->s[k - 1]) / (sqrt(plan->x[k - 1]) + sqrt(plan->x[k]));
+            plan->t[k] = t;
+            plan->binding[k] = NONE_ID;
+        }
+        if (!isfinite(t))
+            return veer__fail(diag, VEER_ERR_VALUE, path->segments[j].leg, path->segments[j].waypoint, sg->k0,
+                              path->segments[j].s_begin, NONE_ID, "plan.profile: segment %d has no finite time", j);
+        sg->move_time = t;
+        veer_status st = veer__steer_segment(plan, j, from, xi, diag);
+        if (st != VEER_OK) return st;
+        sg->t_resteer = clock;
+        sg->t_move = clock + sg->resteer_time;
+        for (int k = sg->k0; k <= sg->k1; k++) plan->t[k] += sg->t_move;
+        clock = sg->t_move + sg->move_time + sg->dwell;
+        for (int i = 0; i < M; i++) from[i] = plan->steer[(size_t)sg->k1 * (size_t)M + (size_t)i];
+    }
+    plan->duration = clock;
+    plan->leg_count = plan->route.leg_count;
+    for (int l = 0; l < plan->leg_count; l++) {
+        memset(&plan->legs[l], 0, sizeof plan->legs[l]);
+        plan->legs[l].start = -1.0;
+    }
+    for (int j = 0; j < plan->segment_count; j++) {
+        const veer_plan_segment *sg = &plan->segs[j];
+        veer_leg_summary *ls = &plan->legs[path->segments[j].leg];
+        if (ls->start < 0.0) {
+            ls->start = sg->t_resteer;
+            ls->s_begin = path->segments[j].s_begin;
+        }
+        ls->s_end = path->segments[j].s_end;
+        ls->duration = sg->t_move + sg->move_time + sg->dwell - ls->start;
+        ls->resteer_time += sg->resteer_time;
+        ls->dwell_time += sg->dwell;
+    }
+    return VEER_OK;
+}
+
+/* Everything but the profile: versions, drive, limits, route, path. */
+static veer_status load_head(const veer_v1_Plan *m, veer_plan *plan, veer_diag *diag) {
+    if (m->schema_version != VEER_WIRE_SCHEMA_VERSION)
+        return veer__fail(diag, VEER_ERR_VERSION, -1, -1, -1, -1.0, NONE_ID,
+                          "plan: schema version %u, this library reads version %d", (unsigned)m->schema_version,
+                          VEER_WIRE_SCHEMA_VERSION);
+    if (m->path_model != VEER_WIRE_PATH_MODEL)
+        return veer__fail(diag, VEER_ERR_VERSION, -1, -1, -1, -1.0, NONE_ID,
+                          "plan: made with path model %u, this library builds paths with model %d",
+                          (unsigned)m->path_model, VEER_WIRE_PATH_MODEL);
+    if (!m->has_drive || !m->has_limits || !m->has_route || !m->has_profile)
+        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "plan: the %s is missing",
+                          !m->has_drive ? "drive" : !m->has_limits ? "limits" : !m->has_route ? "route" : "profile");
+    memset(plan, 0, sizeof *plan);
+    veer_status st;
+    if ((st = veer__wire_drive_from_pb(&m->drive, &plan->drive, diag))) return st;
+    if ((st = veer_drive_check(&plan->drive, diag))) return st;
+    plan->module_count = veer_drive_module_count(&plan->drive);
+    plan->steered = plan->drive.kind == VEER_DRIVE_STEERED;
+    if ((st = veer__wire_limits_from_pb(&m->limits, plan->module_count, &plan->limits, diag))) return st;
+    if ((st = veer__limits_check(&plan->drive, &plan->limits, diag))) return st;
+    plan->options = veer_default_plan_options();
+    if (m->has_options && (st = veer__wire_options_from_pb(&m->options, &plan->options, diag))) return st;
+    if ((st = veer__wire_route_from_pb(&m->route, plan->module_count, &plan->route, diag))) return st;
+    veer__row_ctx_init(&plan->rows, &plan->drive, &plan->limits, &plan->options);
+    if ((st = veer__path_build(&plan->route, &plan->path, diag))) return st;
+    plan->segment_count = plan->path.segment_count;
+    return VEER_OK;
+}
+
+/* Lays the grid arrays out as plan.c does (s, x, t, steer, binding in one
+ * block, so veer_plan_destroy can free it) in grid; xi follows them. */
+static size_t grid_bytes(int n, int M) {
+    return (size_t)n * (3 * sizeof(double) + sizeof(veer_limit_id)) + (size_t)n * (size_t)M * sizeof(double);
+}
+
+static void lay_out(veer_plan *plan, int n, char *grid) {
+    int M = plan->module_count;
+    plan->n = n;
+    plan->s = (double *)grid;
+    plan->x = plan->s + n;
+    plan->t = plan->x + n;
+    plan->steer = plan->t + n;
+    plan->binding = (veer_limit_id *)(plan->steer + (size_t)n * (size_t)M);
+}
+
+static veer_status check_tail(veer_v1_Plan *m, const veer_plan *plan, int check_hash, veer_diag *diag) {
+    if (!check_hash) return VEER_OK;
+    double d = plan->duration;
+    if (!(fabs(m->duration - d) <= 1e-6 * (1.0 + d)))
+        return veer__fail(diag, VEER_ERR_DECODE, -1, -1, -1, -1.0, NONE_ID,
+                          "plan: it says it lasts %.6f s, but rebuilds to %.6f s (altered, or made by a library "
+                          "that builds paths differently)",
+                          m->duration, d);
+    uint8_t h[32];
+    if (m->content_hash.size != 32 || veer__wire_plan_hash(m, h) != VEER_OK ||
+        memcmp(h, m->content_hash.bytes, 32) != 0)
+        return veer__fail(diag, VEER_ERR_DECODE, -1, -1, -1, -1.0, NONE_ID,
+                          "plan: the content hash does not match its contents (altered or damaged)");
+    return VEER_OK;
+}
+
+static veer_status load(veer_v1_Plan *m, void *work, size_t work_size, veer_plan **out, int check_hash,
+                        veer_diag *diag) {
+    if (!work || work_size < VEER__WIRE_PLAN_WORK_BYTES || ((uintptr_t)work % sizeof(double)) != 0)
+        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
+                          "plan workspace: needs %zu bytes aligned for double", (size_t)VEER__WIRE_PLAN_WORK_BYTES);
+    veer_plan *plan = (veer_plan *)work;
+    char *grid = (char *)work + VEER__WIRE_ALIGN(sizeof(veer_plan));
+    veer_status st = load_head(m, plan, diag);
+    int n = 0;
+    if (st == VEER_OK) st = parse_profile(&m->profile, &plan->path, NULL, NULL, NULL, &n, diag);
+    if (st != VEER_OK) return st;
+    lay_out(plan, n, grid);
+    double *xi = (double *)(grid + VEER__WIRE_ALIGN(grid_bytes(VEER_WIRE_MAX_KNOTS, VEER_MAX_MODULES)));
+    if ((st = parse_profile(&m->profile, &plan->path, plan->s, plan->x, plan->segs, &n, diag))) return st;
+    if ((st = timeline(plan, xi, diag))) return st;
+    if ((st = check_tail(m, plan, check_hash, diag))) return st;
+    plan->alloc_size = 0; /* lives in the caller's workspace */
+    *out = plan;
+    return VEER_OK;
+}
+
+veer_status veer__wire_plan_load(veer_v1_Plan *m, void *work, size_t work_size, veer_plan **out,
+                                 veer_diag *diag) {
+    *out = NULL;
+    veer_status st = load(m, work, work_size, out, 1, diag);
+    if (st == VEER_OK) veer__diag_ok(diag);
+    return st;
+}
+
+veer_status veer__wire_plan_decode_heap(veer_v1_Plan *m, veer_plan **out, veer_diag *diag) {
+    *out = NULL;
+    veer_plan *plan = veer__calloc(1, sizeof *plan);
+    if (!plan) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, NONE_ID, "out of memory");
+    veer_status st = load_head(m, plan, diag);
+    plan->alloc_size = sizeof *plan;
+    int n = 0;
+    if (st == VEER_OK) st = parse_profile(&m->profile, &plan->path, NULL, NULL, NULL, &n, diag);
+    if (st != VEER_OK) {
+        veer__free(plan, sizeof *plan);
+        return st;
+    }
+    size_t gb = grid_bytes(n, plan->module_count), xb = (size_t)n * 3 * sizeof(double);
+    char *grid = veer__alloc(gb);
+    double *xi = veer__alloc(xb);
+    if (!grid || !xi) {
+        veer__free(grid, gb);
+        veer__free(xi, xb);
+        veer__free(plan, sizeof *plan);
+        return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, NONE_ID, "out of memory");
+    }
+    lay_out(plan, n, grid);
+    st = parse_profile(&m->profile, &plan->path, plan->s, plan->x, plan->segs, &n, diag);
+    if (st == VEER_OK) st = timeline(plan, xi, diag);
+    if (st == VEER_OK) st = check_tail(m, plan, 1, diag);
+    veer__free(xi, xb);
+    if (st != VEER_OK) {
+        veer_plan_destroy(plan);
+        return st;
+    }
+    veer__diag_ok(diag);
+    *out = plan;
+    return VEER_OK;
+}
+
+/* ---- comparing two plans by sampling ------------------------------------ */
+
+/* Largest |value| / limit over the samples for each limit kind. */
+static void limit_ratios(const veer_plan *p, const veer_sample *o, double r[VEER_LIMIT_PATH_END + 1]) {
+    const veer_limits *l = &p->limits;
+    for (int i = 0; i < o->module_count; i++) {
+        const veer_module_limits *ml = &l->modules[i];
+        const veer_module_setpoint *ms = &o->modules[i];
+        r[VEER_LIMIT_WHEEL_SPEED] = fmax(r[VEER_LIMIT_WHEEL_SPEED], fabs(ms->wheel_rate) / ml->wheel_rate);
+        r[VEER_LIMIT_WHEEL_ACCEL] = fmax(r[VEER_LIMIT_WHEEL_ACCEL], fabs(ms->wheel_accel) / ml->wheel_accel);
+        if (p->steered)
+            r[VEER_LIMIT_STEER_RATE] = fmax(r[VEER_LIMIT_STEER_RATE], fabs(ms->steer_rate) / ml->steer_rate);
+    }
+    r[VEER_LIMIT_BODY_SPEED] =
+        fmax(r[VEER_LIMIT_BODY_SPEED], hypot(o->twist_world[0], o->twist_world[1]) / l->body_speed);
+    r[VEER_LIMIT_BODY_ACCEL] =
+        fmax(r[VEER_LIMIT_BODY_ACCEL], hypot(o->accel_world[0], o->accel_world[1]) / l->body_accel);
+    r[VEER_LIMIT_YAW_RATE] = fmax(r[VEER_LIMIT_YAW_RATE], fabs(o->twist_world[2]) / l->yaw_rate);
+    r[VEER_LIMIT_YAW_ACCEL] = fmax(r[VEER_LIMIT_YAW_ACCEL], fabs(o->accel_world[2]) / l->yaw_accel);
+}
+
+void veer__wire_compare(const veer_plan *a, const veer_plan *b, int samples, veer_wire_figures *f) {
+    memset(f, 0, sizeof *f);
+    double T = fmax(a->duration, b->duration);
+    if (samples < 2) samples = 2;
+    double ra[VEER_LIMIT_PATH_END + 1] = {0}, rb[VEER_LIMIT_PATH_END + 1] = {0};
+    for (int q = 0; q < samples; q++) {
+        double t = T * q / (samples - 1);
+        veer_sample sa, sb;
+        if (veer_plan_sample(a, t, &sa) != VEER_OK || veer_plan_sample(b, t, &sb) != VEER_OK) {
+            f->position = f->angle = INFINITY;
+            return;
+        }
+        f->position = fmax(f->position, hypot(sa.pose[0] - sb.pose[0], sa.pose[1] - sb.pose[1]));
+        f->angle = fmax(f->angle, fabs(sa.pose[2] - sb.pose[2]));
+        for (int i = 0; i < sa.module_count; i++)
+            f->angle = fmax(f->angle, fabs(sa.modules[i].steer - sb.modules[i].steer));
+        limit_ratios(a, &sa, ra);
+        limit_ratios(b, &sb, rb);
+    }
+    f->limit_excess = 0.0;
+    for (int k = 0; k <= VEER_LIMIT_PATH_END; k++) {
+        f->ratio_a = fmax(f->ratio_a, ra[k]);
+        f->ratio_b = fmax(f->ratio_b, rb[k]);
+        f->limit_excess = fmax(f->limit_excess, rb[k] - fmax(1.0, ra[k]));
+    }
+    f->duration = fabs(a->duration - b->duration);
+}
+
+/* ---- choosing knots ----------------------------------------------------- */
+
+typedef struct {
+    int64_t cs, cv; /* s and sdot counts from the segment start */
+} qknot;
+
+/* Time along a knot interval with sdot^2 linear in s, from sa (speed va) to
+ * s (speed v): 2 ds / (va + v). */
+static double interval_time(double ds, double va, double v) { return ds > 0.0 ? 2.0 * ds / (va + v) : 0.0; }
+
+/* Knots of segment j of plan at tolerance level: ev on sdot (s units/s), es
+ * on the arrival position (s units). Writes at most cap knots to out
+ * (interior ones only) and returns their number, or -1 when over cap. */
+static int choose_knots(const veer_plan *plan, int j, double ev, double es, qknot *out, int cap) {
+    const veer_plan_segment *sg = &plan->segs[j];
+    const double *s = plan->s + sg->k0, *x = plan->x + sg->k0, *t = plan->t + sg->k0;
+    int N = sg->k1 - sg->k0;
+    double sb = plan->path.segments[j].s_begin, se = plan->path.segments[j].s_end;
+    int64_t c_end = (int64_t)floor((se - sb) / S_STEP - 0.5);
+    int count = 0, i = 0;
+    qknot ki = {0, 0};
+    double si = sb, vi = 0.0, D = 0.0; /* D: arrival time of the kept knots minus the plan's, at knot i */
+    while (i < N) {
+        int best = -1;
+        qknot kb = {0, 0};
+        for (int jj = i + 1; jj <= N; jj++) {
+            if (best >= 0 && jj - i > MAX_WINDOW) break;
+            qknot kj;
+            double sj, vj;
+            if (jj == N) {
+                kj.cs = c_end + 1, kj.cv = 0, sj = se, vj = 0.0;
+            } else {
+                kj.cs = (int64_t)llround((s[jj] - sb) / S_STEP);
+                kj.cv = (int64_t)llround(sqrt(x[jj]) / V_STEP);
+                if (kj.cv < 1) kj.cv = 1;
+                if (kj.cs <= ki.cs || kj.cs > c_end) continue; /* cannot be placed apart from its neighbours */
+                sj = sb + (double)kj.cs * S_STEP;
+                vj = (double)kj.cv * V_STEP;
+            }
+            if (best < 0) { /* the nearest placeable point is always acceptable */
+                best = jj, kb = kj;
+                if (ev <= 0.0) break;
+                continue;
+            }
+            int ok = 1;
+            double xa = vi * vi, xb = vj * vj;
+            for (int k = i + 1; k < jj && ok; k++) {
+                double f = (s[k] - si) / (sj - si);
+                double vh = sqrt(fmax(0.0, xa + (xb - xa) * f)), vk = sqrt(x[k]);
+                double dt = D + interval_time(s[k] - si, vi, vh) - (t[k] - t[i]);
+                if (fabs(vh - vk) > ev || fabs(dt) * fmax(vh, vk) > es) ok = 0;
+            }
+            if (!ok) break;
+            best = jj, kb = kj;
+        }
+        /* Steer the kept knot's sdot, within ev / 2, so the arrival time error stays near zero. */
+        double sj = best == N ? se : sb + (double)kb.cs * S_STEP;
+        if (best < N) {
+            int64_t c0 = kb.cv, r = (int64_t)floor(0.5 * ev / V_STEP), c_best = c0;
+            double e_best = INFINITY;
+            for (int64_t c = c0 - r; c <= c0 + r; c++) {
+                if (c < 1) continue;
+                double e = fabs(D + interval_time(sj - si, vi, (double)c * V_STEP) - (t[best] - t[i]));
+                if (e < e_best) e_best = e, c_best = c;
+            }
+            kb.cv = c_best;
+        }
+        double vj = best == N ? 0.0 : (double)kb.cv * V_STEP;
+        D += interval_time(sj - si, vi, vj) - (t[best] - t[i]);
+        if (best < N) {
+            if (count >= cap) return -1;
+            out[count++] = kb;
+        }
+        i = best, ki = kb, si = sj, vi = vj;
+    }
+    return count;
+}
+
+/* Writes the profile of plan at one tolerance level into pr. */
+static veer_status write_profile(const veer_plan *plan, double level, qknot *tmp, veer_v1_Profile *pr,
+                                 veer_diag *diag) {
+    memset(pr, 0, sizeof *pr);
+    pr->s_step = S_STEP;
+    pr->sdot_step = V_STEP;
+    pr->grid_points = (uint32_t)plan->n;
+    wbuf b = {pr->knots.bytes, 0, sizeof pr->knots.bytes, 0};
+    int total = 0;
+    for (int j = 0; j < plan->segment_count; j++) {
+        const veer_plan_segment *sg = &plan->segs[j];
+        double vmax = 0.0;
+        for (int k = sg->k0; k <= sg->k1; k++) vmax = fmax(vmax, sqrt(plan->x[k]));
+        int n = choose_knots(plan, j, level * 1e-3 * vmax, level * 1e-4, tmp, VEER_WIRE_MAX_KNOTS);
+        if (n < 0 || total + n + 2 > VEER_WIRE_MAX_KNOTS)
+            return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, -1.0, NONE_ID,
+                              "plan: the profile needs more than the %d knots a Plan message holds; plan with "
+                              "fewer grid points",
+                              VEER_WIRE_MAX_KNOTS);
+        if (n == 0)
+            return veer__fail(diag, VEER_ERR_VALUE, plan->path.segments[j].leg, plan->path.segments[j].waypoint,
+                              sg->k0, plan->s[sg->k0], NONE_ID,
+                              "plan: segment %d is too short to carry a profile (%g s units)", j,
+                              plan->path.segments[j].s_end - plan->path.segments[j].s_begin);
+        total += n + 2;
+        put_varint(&b, (uint64_t)n);
+        int64_t ps = 0, pv = 0;
+        for (int i = 0; i < n; i++) {
+            put_varint(&b, (uint64_t)(tmp[i].cs - ps));
+            put_varint(&b, zigzag(tmp[i].cv - pv));
+            ps = tmp[i].cs, pv = tmp[i].cv;
+        }
+    }
+    if (b.overflow)
+        return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, -1.0, NONE_ID,
+                          "plan: the profile needs %zu bytes, a Plan message holds %d; plan with fewer grid points",
+                          b.n, VEER_WIRE_MAX_PROFILE_BYTES);
+    pr->knots.size = (pb_size_t)b.n;
+    pr->knot_count = (uint32_t)total;
+    return VEER_OK;
+}
+
+static int samples_for(double duration) {
+    double n = duration / 0.002;
+    return n < 2000.0 ? 2000 : n > 20000.0 ? 20000 : (int)n;
+}
+
+veer_status veer__wire_plan_to_pb(const veer_plan *plan, const char *cart_id, veer_v1_Plan *m, veer_diag *diag) {
+    memset(m, 0, sizeof *m);
+    m->schema_version = VEER_WIRE_SCHEMA_VERSION;
+    m->library_version = VEER_VERSION_HEX;
+    m->path_model = VEER_WIRE_PATH_MODEL;
+    m->has_drive = m->has_limits = m->has_route = m->has_options = m->has_profile = true;
+    veer__wire_drive_to_pb(&plan->drive, &m->drive);
+    veer__wire_limits_to_pb(&plan->limits, plan->module_count, &m->limits);
+    veer__wire_route_to_pb(&plan->route, plan->module_count, &m->route);
+    veer__wire_options_to_pb(&plan->options, &m->options);
+    if (cart_id) {
+        size_t n = strlen(cart_id);
+        if (n >= sizeof m->cart_id || !veer__wire_utf8_ok(cart_id))
+            return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
+                              "cart_id must be UTF-8 of at most %zu bytes", sizeof m->cart_id - 1);
+        memcpy(m->cart_id, cart_id, n + 1);
+    }
+
+    size_t wb = VEER__WIRE_PLAN_WORK_BYTES, tb = (size_t)plan->n * sizeof(qknot);
+    void *work = veer__alloc(wb);
+    qknot *tmp = veer__alloc(tb);
+    if (!work || !tmp) {
+        veer__free(work, wb);
+        veer__free(tmp, tb);
+        return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, NONE_ID, "out of memory");
+    }
+    /* From coarse to fine; level 0 keeps every grid point. */
+    static const double levels[] = {4.0, 2.0, 1.0, 0.5, 0.25, 0.1, 0.0};
+    veer_status st = VEER_ERR_STATE;
+    veer_wire_figures fig = {0};
+    veer_plan *dec = NULL;
+    veer_diag d2;
+    for (size_t L = 0; L < sizeof levels / sizeof levels[0]; L++) {
+        st = write_profile(plan, levels[L], tmp, &m->profile, diag);
+        if (st != VEER_OK) break; /* capacity: a finer level only needs more */
+        st = load(m, work, wb, &dec, 0, &d2);
+        if (st != VEER_OK) {
+            if (diag) *diag = d2;
+            break;
+        }
+        veer__wire_compare(plan, dec, samples_for(plan->duration), &fig);
+        if (fig.position <= VEER_WIRE_TOL_POSITION && fig.angle <= VEER_WIRE_TOL_ANGLE &&
+            fig.limit_excess <= VEER_WIRE_TOL_LIMIT)
+            break;
+        st = VEER_ERR_STATE;
+    }
+    if (st == VEER_OK) {
+        m->duration = dec->duration;
+        m->length = dec->path.length;
+    } else if (st == VEER_ERR_STATE) {
+        veer__fail(diag, st, -1, -1, -1, -1.0, NONE_ID,
+                   "plan: its compact profile does not reproduce it (%.3g m, %.3g rad, %.3g of a limit off)",
+                   fig.position, fig.angle, fig.limit_excess);
+    }
+    veer__free(work, wb);
+    veer__free(tmp, tb);
+    if (st != VEER_OK) return st;
+    uint8_t h[32];
+    if ((st = veer__wire_plan_hash(m, h)) != VEER_OK)
+        return veer__fail(diag, st, -1, -1, -1, -1.0, NONE_ID, "plan: cannot be encoded");
+    memcpy(m->content_hash.bytes, h, 32);
+    m->content_hash.size = 32;
+    return VEER_OK;
+}

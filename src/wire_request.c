@@ -1,0 +1,476 @@
+/* Messages <-> structs: decoding untrusted bytes with nanopb into fixed
+ * structs, checking every value, and writing canonical messages back.
+ * SPDX-License-Identifier: MIT */
+#include <stdio.h>
+#include <string.h>
+#include "wire_internal.h"
+
+#define NONE_ID veer__limit(VEER_LIMIT_NONE, -1)
+
+static veer_status bad(veer_diag *diag, veer_status st, const char *fmt, const char *field, double v) {
+    return veer__fail(diag, st, -1, -1, -1, -1.0, NONE_ID, fmt, field, v);
+}
+
+veer_status veer__wire_decode(const pb_msgdesc_t *fields, void *msg, const uint8_t *buf, size_t size,
+                              const char *what, veer_diag *diag) {
+    if (!buf && size > 0)
+        return veer__fail(diag, VEER_ERR_NULL, -1, -1, -1, -1.0, NONE_ID, "%s: bytes pointer is NULL", what);
+    static const uint8_t empty[1] = {0};
+    pb_istream_t in = pb_istream_from_buffer(buf ? buf : empty, buf ? size : 0);
+    if (pb_decode(&in, fields, msg)) return VEER_OK;
+    const char *err = PB_GET_ERROR(&in);
+    int over = strstr(err, "array overflow") || strstr(err, "bytes overflow") || strstr(err, "string overflow");
+    if (over)
+        return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, -1.0, NONE_ID,
+                          "%s: a list or string is longer than its capacity (%s)", what, err);
+    return veer__fail(diag, VEER_ERR_DECODE, -1, -1, -1, -1.0, NONE_ID,
+                      "%s: the %zu bytes do not decode (%s at byte %zu)", what, size, err,
+                      size - (size_t)in.bytes_left);
+}
+
+veer_status veer__wire_encode(const pb_msgdesc_t *fields, const void *msg, uint8_t *out, size_t capacity,
+                              size_t *size, veer_diag *diag) {
+    size_t need = 0;
+    if (!pb_get_encoded_size(&need, fields, msg))
+        return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, -1.0, NONE_ID, "the message cannot be encoded");
+    *size = need;
+    if (!out || capacity < need)
+        return veer__fail(diag, VEER_ERR_BUFFER, -1, -1, -1, -1.0, NONE_ID,
+                          "the output needs %zu bytes, capacity is %zu", need, out ? capacity : 0);
+    pb_ostream_t os = pb_ostream_from_buffer(out, need);
+    if (!pb_encode(&os, fields, msg) || os.bytes_written != need) /* cannot happen after sizing succeeded */
+        return veer__fail(diag, VEER_ERR_STATE, -1, -1, -1, -1.0, NONE_ID, "encoding changed size (%s)",
+                          PB_GET_ERROR(&os));
+    return VEER_OK;
+}
+
+int veer__wire_status_to_pb(veer_status st) { return (int)st + 1; }
+
+int veer__wire_utf8_ok(const char *s) {
+    const unsigned char *p = (const unsigned char *)s;
+    while (*p) {
+        unsigned c = *p++;
+        int more;
+        unsigned min;
+        if (c < 0x80) continue;
+        if ((c & 0xE0) == 0xC0) more = 1, min = 0x80, c &= 0x1F;
+        else if ((c & 0xF0) == 0xE0) more = 2, min = 0x800, c &= 0x0F;
+        else if ((c & 0xF8) == 0xF0) more = 3, min = 0x10000, c &= 0x07;
+        else return 0;
+        for (int i = 0; i < more; i++) {
+            if ((*p & 0xC0) != 0x80) return 0;
+            c = (c << 6) | (*p++ & 0x3Fu);
+        }
+        if (c < min || c > 0x10FFFF || (c >= 0xD800 && c <= 0xDFFF)) return 0;
+    }
+    return 1;
+}
+
+/* A finite double, or a diagnostic naming the field. */
+static veer_status finite(double v, const char *field, veer_diag *diag) {
+    if (isfinite(v)) return VEER_OK;
+    return bad(diag, VEER_ERR_VALUE, "%s is not finite (%g)", field, v);
+}
+
+/* ---- drive ------------------------------------------------------------- */
+
+static const char *drive_kind_name(int kind) {
+    switch (kind) {
+    case VEER_DRIVE_STEERED: return "steered";
+    case VEER_DRIVE_MECANUM: return "mecanum";
+    case VEER_DRIVE_OMNI: return "omni";
+    case VEER_DRIVE_DIFFERENTIAL: return "differential";
+    }
+    return "unknown";
+}
+
+/* An optional geometry field: applies to the listed kind only. */
+static veer_status geometry(bool has, double v, int applies, const char *field, const char *kinds, double *dst,
+                            veer_diag *diag) {
+    if (!has) return VEER_OK;
+    if (!applies)
+        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "drive.%s applies to %s drives only",
+                          field, kinds);
+    char name[48];
+    snprintf(name, sizeof name, "drive.%s", field);
+    veer_status st = finite(v, name, diag);
+    if (st == VEER_OK) *dst = v;
+    return st;
+}
+
+veer_status veer__wire_drive_from_pb(const veer_v1_DriveDef *m, veer_drive_def *out, veer_diag *diag) {
+    int kind = (int)m->kind;
+    if (kind < VEER_DRIVE_STEERED || kind > VEER_DRIVE_DIFFERENTIAL)
+        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
+                          kind == 0 ? "drive.kind is not set (steered, mecanum, omni or differential)"
+                                    : "drive.kind has the unknown value %d",
+                          kind);
+    veer_drive_def d = veer_default_drive_def((veer_drive_kind)kind);
+    int listed = kind == VEER_DRIVE_STEERED || kind == VEER_DRIVE_OMNI;
+    if (m->modules_count > 0) {
+        if (!listed)
+            return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
+                              "drive.modules must be empty for a %s drive (its wheel order is fixed)",
+                              drive_kind_name(kind));
+        if (m->modules_count > VEER_MAX_MODULES) /* nanopb enforces this already */
+            return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, -1.0, NONE_ID,
+                              "drive.modules has %d entries, at most %d", (int)m->modules_count, VEER_MAX_MODULES);
+        d.module_count = (int)m->modules_count;
+        for (int i = 0; i < d.module_count; i++) {
+            char f[48];
+            const veer_v1_ModuleDef *md = &m->modules[i];
+            veer_status st;
+            snprintf(f, sizeof f, "drive.modules[%d].x", i);
+            if ((st = finite(md->x, f, diag))) return st;
+            snprintf(f, sizeof f, "drive.modules[%d].y", i);
+            if ((st = finite(md->y, f, diag))) return st;
+            snprintf(f, sizeof f, "drive.modules[%d].drive_angle", i);
+            if ((st = finite(md->drive_angle, f, diag))) return st;
+            if (kind == VEER_DRIVE_STEERED && md->drive_angle != 0.0)
+                return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
+                                  "drive.modules[%d].drive_angle applies to omni drives only", i);
+            d.modules[i].x = md->x;
+            d.modules[i].y = md->y;
+            d.modules[i].drive_angle = md->drive_angle;
+        }
+        for (int i = d.module_count; i < VEER_MAX_MODULES; i++) memset(&d.modules[i], 0, sizeof d.modules[i]);
+    }
+    int mec = kind == VEER_DRIVE_MECANUM, dif = kind == VEER_DRIVE_DIFFERENTIAL;
+    veer_status st;
+    if ((st = geometry(m->has_wheel_radius, m->wheel_radius, 1, "wheel_radius", "all", &d.wheel_radius, diag)) ||
+        (st = geometry(m->has_half_wheelbase, m->half_wheelbase, mec, "half_wheelbase", "mecanum", &d.half_wheelbase,
+                       diag)) ||
+        (st = geometry(m->has_half_track, m->half_track, mec, "half_track", "mecanum", &d.half_track, diag)) ||
+        (st = geometry(m->has_roller_angle, m->roller_angle, mec, "roller_angle", "mecanum", &d.roller_angle, diag)) ||
+        (st = geometry(m->has_track_width, m->track_width, dif, "track_width", "differential", &d.track_width,
+                       diag)) ||
+        (st = geometry(m->has_skid_factor, m->skid_factor, dif, "skid_factor", "differential", &d.skid_factor, diag)))
+        return st;
+    *out = d;
+    return VEER_OK;
+}
+
+void veer__wire_drive_to_pb(const veer_drive_def *d, veer_v1_DriveDef *m) {
+    memset(m, 0, sizeof *m);
+    m->kind = (veer_v1_DriveKind)d->kind;
+    if (d->kind == VEER_DRIVE_STEERED || d->kind == VEER_DRIVE_OMNI) {
+        int n = d->module_count < 0 ? 0 : d->module_count > VEER_MAX_MODULES ? VEER_MAX_MODULES : d->module_count;
+        m->modules_count = (pb_size_t)n;
+        for (int i = 0; i < n; i++) {
+            m->modules[i].x = d->modules[i].x;
+            m->modules[i].y = d->modules[i].y;
+            m->modules[i].drive_angle = d->kind == VEER_DRIVE_OMNI ? d->modules[i].drive_angle : 0.0;
+        }
+    }
+    m->has_wheel_radius = true;
+    m->wheel_radius = d->wheel_radius;
+    if (d->kind == VEER_DRIVE_MECANUM) {
+        m->has_half_wheelbase = m->has_half_track = m->has_roller_angle = true;
+        m->half_wheelbase = d->half_wheelbase;
+        m->half_track = d->half_track;
+        m->roller_angle = d->roller_angle;
+    }
+    if (d->kind == VEER_DRIVE_DIFFERENTIAL) {
+        m->has_track_width = m->has_skid_factor = true;
+        m->track_width = d->track_width;
+        m->skid_factor = d->skid_factor;
+    }
+}
+
+/* ---- limits ------------------------------------------------------------ */
+
+/* An optional limit: unset or +inf is unlimited; NaN and -inf are refused
+ * (steer_min takes -inf as unlimited). */
+static veer_status limit(bool has, double v, double unset, const char *field, double *dst, veer_diag *diag) {
+    if (!has) {
+        *dst = unset;
+        return VEER_OK;
+    }
+    if (isnan(v) || (isinf(v) && v != unset)) return bad(diag, VEER_ERR_VALUE, "%s is %g", field, v);
+    *dst = v;
+    return VEER_OK;
+}
+
+static veer_status module_limits(const veer_v1_ModuleLimits *m, const char *where, veer_module_limits *out,
+                                 veer_diag *diag) {
+    char f[64];
+    veer_status st;
+    snprintf(f, sizeof f, "%s.wheel_rate", where);
+    if ((st = limit(m->has_wheel_rate, m->wheel_rate, VEER_UNLIMITED, f, &out->wheel_rate, diag))) return st;
+    snprintf(f, sizeof f, "%s.wheel_accel", where);
+    if ((st = limit(m->has_wheel_accel, m->wheel_accel, VEER_UNLIMITED, f, &out->wheel_accel, diag))) return st;
+    snprintf(f, sizeof f, "%s.steer_rate", where);
+    if ((st = limit(m->has_steer_rate, m->steer_rate, VEER_UNLIMITED, f, &out->steer_rate, diag))) return st;
+    snprintf(f, sizeof f, "%s.steer_min", where);
+    if ((st = limit(m->has_steer_min, m->steer_min, -VEER_UNLIMITED, f, &out->steer_min, diag))) return st;
+    snprintf(f, sizeof f, "%s.steer_max", where);
+    if ((st = limit(m->has_steer_max, m->steer_max, VEER_UNLIMITED, f, &out->steer_max, diag))) return st;
+    if (out->steer_min > out->steer_max)
+        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "%s: steer_min %g is above steer_max %g",
+                          where, out->steer_min, out->steer_max);
+    return VEER_OK;
+}
+
+veer_status veer__wire_limits_from_pb(const veer_v1_Limits *m, int module_count, veer_limits *out, veer_diag *diag) {
+    veer_limits l = veer_default_limits();
+    int n = (int)m->modules_count;
+    if (n != 0 && n != 1 && n != module_count)
+        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
+                          "limits.modules has %d entries: give none, one for every module, or one per module (%d)",
+                          n, module_count);
+    veer_status st;
+    for (int i = 0; i < n; i++) {
+        char where[32];
+        snprintf(where, sizeof where, "limits.modules[%d]", i);
+        if ((st = module_limits(&m->modules[i], where, &l.modules[i], diag))) return st;
+    }
+    if (n == 1)
+        for (int i = 1; i < module_count; i++) l.modules[i] = l.modules[0];
+    if ((st = limit(m->has_body_speed, m->body_speed, VEER_UNLIMITED, "limits.body_speed", &l.body_speed, diag)) ||
+        (st = limit(m->has_body_accel, m->body_accel, VEER_UNLIMITED, "limits.body_accel", &l.body_accel, diag)) ||
+        (st = limit(m->has_yaw_rate, m->yaw_rate, VEER_UNLIMITED, "limits.yaw_rate", &l.yaw_rate, diag)) ||
+        (st = limit(m->has_yaw_accel, m->yaw_accel, VEER_UNLIMITED, "limits.yaw_accel", &l.yaw_accel, diag)))
+        return st;
+    *out = l;
+    return VEER_OK;
+}
+
+static void module_limits_to_pb(const veer_module_limits *l, veer_v1_ModuleLimits *m) {
+    memset(m, 0, sizeof *m);
+    if ((m->has_wheel_rate = isfinite(l->wheel_rate))) m->wheel_rate = l->wheel_rate;
+    if ((m->has_wheel_accel = isfinite(l->wheel_accel))) m->wheel_accel = l->wheel_accel;
+    if ((m->has_steer_rate = isfinite(l->steer_rate))) m->steer_rate = l->steer_rate;
+    if ((m->has_steer_min = isfinite(l->steer_min))) m->steer_min = l->steer_min;
+    if ((m->has_steer_max = isfinite(l->steer_max))) m->steer_max = l->steer_max;
+}
+
+static int same_module_limits(const veer_module_limits *a, const veer_module_limits *b) {
+    return memcmp(a, b, sizeof *a) == 0;
+}
+
+void veer__wire_limits_to_pb(const veer_limits *l, int module_count, veer_v1_Limits *m) {
+    memset(m, 0, sizeof *m);
+    int n = module_count < 0 ? 0 : module_count > VEER_MAX_MODULES ? VEER_MAX_MODULES : module_count;
+    int all_same = 1, any = 0;
+    veer_module_limits unset = veer_default_limits().modules[0];
+    for (int i = 0; i < n; i++) {
+        if (!same_module_limits(&l->modules[i], &l->modules[0])) all_same = 0;
+        if (!same_module_limits(&l->modules[i], &unset)) any = 1;
+    }
+    if (any) {
+        m->modules_count = (pb_size_t)(all_same ? 1 : n);
+        for (int i = 0; i < (int)m->modules_count; i++) module_limits_to_pb(&l->modules[i], &m->modules[i]);
+    }
+    if ((m->has_body_speed = isfinite(l->body_speed))) m->body_speed = l->body_speed;
+    if ((m->has_body_accel = isfinite(l->body_accel))) m->body_accel = l->body_accel;
+    if ((m->has_yaw_rate = isfinite(l->yaw_rate))) m->yaw_rate = l->yaw_rate;
+    if ((m->has_yaw_accel = isfinite(l->yaw_accel))) m->yaw_accel = l->yaw_accel;
+}
+
+/* ---- route ------------------------------------------------------------- */
+
+static veer_status route_value(double v, const char *fmt, int index, veer_diag *diag) {
+    if (isfinite(v)) return VEER_OK;
+    char f[64];
+    snprintf(f, sizeof f, fmt, index);
+    return bad(diag, VEER_ERR_VALUE, "%s is not finite (%g)", f, v);
+}
+
+veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, veer_route *out, veer_diag *diag) {
+    veer_status st;
+    if ((st = finite(m->start_x, "route.start_x", diag)) || (st = finite(m->start_y, "route.start_y", diag)) ||
+        (st = finite(m->start_yaw, "route.start_yaw", diag)))
+        return st;
+    veer_route r = veer_default_route(m->start_x, m->start_y, m->start_yaw);
+    if (m->start_steer_count > 0) {
+        if ((int)m->start_steer_count != module_count)
+            return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
+                              "route.start_steer has %d angles; give none or one per module (%d)",
+                              (int)m->start_steer_count, module_count);
+        r.has_start_steer = 1;
+        for (int i = 0; i < module_count; i++) {
+            if ((st = route_value(m->start_steer[i], "route.start_steer[%d]", i, diag))) return st;
+            r.start_steer[i] = m->start_steer[i];
+        }
+    }
+    if (m->legs_count > VEER_MAX_LEGS || m->waypoints_count > VEER_MAX_WAYPOINTS) /* nanopb enforces these */
+        return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, -1.0, NONE_ID, "route: too many legs or waypoints");
+    if (m->legs_count == 0)
+        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "route.legs is empty");
+    r.leg_count = (int)m->legs_count;
+    long used = 0;
+    for (int i = 0; i < r.leg_count; i++) {
+        const veer_v1_Leg *ml = &m->legs[i];
+        int kind = (int)ml->kind;
+        if (kind < VEER_LEG_TRAVEL || kind > VEER_LEG_PIVOT)
+            return veer__fail(diag, VEER_ERR_VALUE, i, -1, -1, -1.0, NONE_ID,
+                              kind == 0 ? "route.legs[%d].kind is not set (travel, spin or pivot)"
+                                        : "route.legs[%d].kind has the unknown value %d",
+                              i, kind);
+        veer_leg l = veer_default_leg((veer_leg_kind)kind);
+        int heading = (int)ml->heading;
+        if (heading < 0 || heading > VEER_HEADING_BLEND)
+            return veer__fail(diag, VEER_ERR_VALUE, i, -1, -1, -1.0, NONE_ID,
+                              "route.legs[%d].heading has the unknown value %d", i, heading);
+        int turn = (int)ml->turn;
+        if (turn < 0 || turn > veer_v1_Turn_TURN_CLOCKWISE)
+            return veer__fail(diag, VEER_ERR_VALUE, i, -1, -1, -1.0, NONE_ID,
+                              "route.legs[%d].turn has the unknown value %d", i, turn);
+        const double vals[] = {ml->toward_x, ml->toward_y, ml->yaw, ml->pivot_x, ml->pivot_y, ml->angle, ml->dwell,
+                               ml->has_corner_tolerance ? ml->corner_tolerance : 0.0};
+        static const char *const names[] = {"toward_x", "toward_y", "yaw",   "pivot_x",
+                                            "pivot_y",  "angle",    "dwell", "corner_tolerance"};
+        for (int v = 0; v < 8; v++)
+            if (!isfinite(vals[v]))
+                return veer__fail(diag, VEER_ERR_VALUE, i, -1, -1, -1.0, NONE_ID, "route.legs[%d].%s is not finite",
+                                  i, names[v]);
+        if (kind == VEER_LEG_TRAVEL) {
+            if (ml->waypoint_count < 1)
+                return veer__fail(diag, VEER_ERR_VALUE, i, -1, -1, -1.0, NONE_ID,
+                                  "route.legs[%d] is a travel leg with no waypoints (waypoint_count 0)", i);
+        } else if (ml->waypoint_count != 0) {
+            return veer__fail(diag, VEER_ERR_VALUE, i, -1, -1, -1.0, NONE_ID,
+                              "route.legs[%d] is a %s leg and takes no waypoints (waypoint_count %u)", i,
+                              kind == VEER_LEG_SPIN ? "spin" : "pivot", (unsigned)ml->waypoint_count);
+        }
+        used += (long)ml->waypoint_count;
+        if (used > (long)m->waypoints_count)
+            return veer__fail(diag, VEER_ERR_VALUE, i, -1, -1, -1.0, NONE_ID,
+                              "route.legs[%d] takes waypoints up to number %ld, but route.waypoints has %d", i, used,
+                              (int)m->waypoints_count);
+        l.waypoint_count = (int)ml->waypoint_count;
+        l.heading = heading == 0 ? VEER_HEADING_HOLD : (veer_heading_kind)heading;
+        l.reversed = ml->reversed ? 1 : 0;
+        l.toward_x = ml->toward_x;
+        l.toward_y = ml->toward_y;
+        if (ml->has_corner_tolerance) l.corner_tolerance = ml->corner_tolerance;
+        l.yaw = ml->yaw;
+        l.direction = turn == veer_v1_Turn_TURN_COUNTER_CLOCKWISE ? 1 : turn == veer_v1_Turn_TURN_CLOCKWISE ? -1 : 0;
+        l.pivot_x = ml->pivot_x;
+        l.pivot_y = ml->pivot_y;
+        l.angle = ml->angle;
+        l.dwell = ml->dwell;
+        r.legs[i] = l;
+    }
+    if (used != (long)m->waypoints_count)
+        return veer__fail(diag, VEER_ERR_VALUE, -1, (int)used, -1, -1.0, NONE_ID,
+                          "route.waypoints has %d entries but the travel legs take %ld", (int)m->waypoints_count,
+                          used);
+    r.waypoint_count = (int)m->waypoints_count;
+    for (int w = 0; w < r.waypoint_count; w++) {
+        const veer_v1_Waypoint *mw = &m->waypoints[w];
+        if ((st = route_value(mw->x, "route.waypoints[%d].x", w, diag)) ||
+            (st = route_value(mw->y, "route.waypoints[%d].y", w, diag)) ||
+            (st = route_value(mw->has_yaw ? mw->yaw : 0.0, "route.waypoints[%d].yaw", w, diag)) ||
+            (st = route_value(mw->dwell, "route.waypoints[%d].dwell", w, diag))) {
+            if (diag) diag->waypoint = w;
+            return st;
+        }
+        veer_waypoint wp = veer_default_waypoint(mw->x, mw->y);
+        wp.has_yaw = mw->has_yaw ? 1 : 0;
+        wp.yaw = mw->has_yaw ? mw->yaw : 0.0;
+        wp.stop = mw->stop ? 1 : 0;
+        wp.dwell = mw->dwell;
+        r.waypoints[w] = wp;
+    }
+    *out = r;
+    return VEER_OK;
+}
+
+void veer__wire_route_to_pb(const veer_route *r, int module_count, veer_v1_Route *m) {
+    memset(m, 0, sizeof *m);
+    m->start_x = r->start_x;
+    m->start_y = r->start_y;
+    m->start_yaw = r->start_yaw;
+    int M = module_count < 0 ? 0 : module_count > VEER_MAX_MODULES ? VEER_MAX_MODULES : module_count;
+    if (r->has_start_steer) {
+        m->start_steer_count = (pb_size_t)M;
+        for (int i = 0; i < M; i++) m->start_steer[i] = r->start_steer[i];
+    }
+    int nl = r->leg_count < 0 ? 0 : r->leg_count > VEER_MAX_LEGS ? VEER_MAX_LEGS : r->leg_count;
+    m->legs_count = (pb_size_t)nl;
+    for (int i = 0; i < nl; i++) {
+        const veer_leg *l = &r->legs[i];
+        veer_v1_Leg *ml = &m->legs[i];
+        ml->kind = (veer_v1_LegKind)l->kind;
+        ml->dwell = l->dwell;
+        if (l->kind == VEER_LEG_TRAVEL) {
+            ml->waypoint_count = (uint32_t)l->waypoint_count;
+            ml->heading = (veer_v1_Heading)l->heading;
+            ml->reversed = l->heading == VEER_HEADING_TANGENT && l->reversed;
+            if (l->heading == VEER_HEADING_TOWARD) {
+                ml->toward_x = l->toward_x;
+                ml->toward_y = l->toward_y;
+            }
+            ml->has_corner_tolerance = true;
+            ml->corner_tolerance = l->corner_tolerance;
+        } else if (l->kind == VEER_LEG_SPIN) {
+            ml->yaw = l->yaw;
+            ml->turn = l->direction > 0   ? veer_v1_Turn_TURN_COUNTER_CLOCKWISE
+                       : l->direction < 0 ? veer_v1_Turn_TURN_CLOCKWISE
+                                          : veer_v1_Turn_TURN_SHORTER;
+        } else if (l->kind == VEER_LEG_PIVOT) {
+            ml->pivot_x = l->pivot_x;
+            ml->pivot_y = l->pivot_y;
+            ml->angle = l->angle;
+        }
+    }
+    int nw = r->waypoint_count < 0 ? 0 : r->waypoint_count > VEER_MAX_WAYPOINTS ? VEER_MAX_WAYPOINTS : r->waypoint_count;
+    m->waypoints_count = (pb_size_t)nw;
+    for (int w = 0; w < nw; w++) {
+        const veer_waypoint *wp = &r->waypoints[w];
+        veer_v1_Waypoint *mw = &m->waypoints[w];
+        mw->x = wp->x;
+        mw->y = wp->y;
+        mw->has_yaw = wp->has_yaw != 0;
+        mw->yaw = wp->has_yaw ? wp->yaw : 0.0;
+        mw->stop = wp->stop != 0;
+        mw->dwell = wp->dwell;
+    }
+}
+
+/* ---- options and diagnostics ------------------------------------------- */
+
+veer_status veer__wire_options_from_pb(const veer_v1_PlanOptions *m, veer_plan_options *out, veer_diag *diag) {
+    veer_plan_options o = veer_default_plan_options();
+    if (m->has_grid_points) {
+        if (m->grid_points > 10000000u)
+            return bad(diag, VEER_ERR_VALUE, "%s is out of range (%.0f)", "options.grid_points", (double)m->grid_points);
+        o.grid_points = (int)m->grid_points;
+    }
+    if (m->has_accel_polygon_sides) {
+        if (m->accel_polygon_sides > 10000000u)
+            return bad(diag, VEER_ERR_VALUE, "%s is out of range (%.0f)", "options.accel_polygon_sides",
+                       (double)m->accel_polygon_sides);
+        o.accel_polygon_sides = (int)m->accel_polygon_sides;
+    }
+    *out = o;
+    return VEER_OK;
+}
+
+void veer__wire_options_to_pb(const veer_plan_options *o, veer_v1_PlanOptions *m) {
+    memset(m, 0, sizeof *m);
+    m->has_grid_points = m->has_accel_polygon_sides = true;
+    m->grid_points = o->grid_points > 0 ? (uint32_t)o->grid_points : 0u;
+    m->accel_polygon_sides = o->accel_polygon_sides > 0 ? (uint32_t)o->accel_polygon_sides : 0u;
+}
+
+void veer__wire_diag_to_pb(const veer_diag *d, veer_v1_Diagnostic *m) {
+    memset(m, 0, sizeof *m);
+    m->status = (veer_v1_Status)veer__wire_status_to_pb(d->status);
+    const char *nul = memchr(d->message, '\0', sizeof d->message);
+    size_t n = nul ? (size_t)(nul - d->message) : sizeof d->message - 1;
+    if (n > sizeof m->message - 1) n = sizeof m->message - 1;
+    memcpy(m->message, d->message, n);
+    m->message[n] = '\0';
+    /* Our messages are ASCII; anything else becomes '?' so the reply stays valid proto3. */
+    for (size_t i = 0; i < n; i++)
+        if ((unsigned char)m->message[i] >= 0x80) m->message[i] = '?';
+    m->leg = d->leg;
+    m->waypoint = d->waypoint;
+    m->grid_index = d->grid_index;
+    m->s = isfinite(d->s) ? d->s : -1.0;
+    m->limit_kind = (veer_v1_LimitKind)d->limit.kind;
+    m->limit_module = d->limit.module;
+    if (d->limit.kind != VEER_LIMIT_NONE) veer_limit_name(d->limit, m->limit_name, sizeof m->limit_name);
+}
