@@ -726,9 +726,9 @@ static veer_status build_travel(builder *b, int li, int w0) {
         turn[i] = atan2(cross2(dx[i - 1], dy[i - 1], dx[i], dy[i]), dot2(dx[i - 1], dy[i - 1], dx[i], dy[i]));
         if (fabs(turn[i]) > MAX_TURN_)
             return veer__fail(b->diag, VEER_ERR_GEOMETRY, li, w0 + i - 1, -1, b->s, none,
-                              "waypoint %d: corner too sharp to pass through (turns %.1f degrees, at most 175); "
-                              "make it a stop",
-                              w0 + i - 1, fabs(turn[i]) / DEG_);
+                              "leg %d, waypoint %d: corner too sharp to pass through (turns %.1f degrees, at "
+                              "most 175); make it a stop",
+                              li, w0 + i - 1, fabs(turn[i]) / DEG_);
         if (fabs(turn[i]) < STRAIGHT_TURN_) continue;
         double d0[2] = {dx[i - 1], dy[i - 1]}, d1[2] = {dx[i], dy[i]};
         shape[i] = corner_shape_of(d0, d1);

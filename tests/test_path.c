@@ -130,6 +130,7 @@ static veer_route route_all_kinds(veer_heading_kind h, int reversed) {
 }
 
 /* ---- route helpers -------------------------------------------------------- */
+/* Reference: the contract written in include/veer/route.h (no outside source). */
 
 Test(route, defaults) {
     veer_route r = veer_default_route(1.5, -2.0, 0.25);
@@ -629,6 +630,7 @@ Test(path_heading, hold_keeps_start_yaw) {
 }
 
 Test(path_heading, spin_directions) {
+    /* spin contract (route.h): shorter way in (-pi, pi], ccw in [0, 2pi), cw in (-2pi, 0] */
     struct {
         double from, to;
         int dir;
@@ -703,6 +705,8 @@ Test(path_heading, pivot_is_a_rigid_rotation) {
 }
 
 /* ---- segmentation ----------------------------------------------------------- */
+/* Reference: the segment contract in src/internal.h and route.h (rest to rest,
+ * dwell, automatic spins); positions and angles checked by plain arithmetic. */
 
 Test(path_segments, stops_split_and_carry_dwell) {
     veer_route r = veer_default_route(0, 0, 0);
@@ -826,10 +830,12 @@ Test(path_segments, start_mismatch_refused_names_the_leg) {
     leg_add(&r3, tw);
     wp_add(&r3, 4, 0, 1);
     cr_assert_eq(veer__path_build(&r3, &g_path, &g_diag), VEER_ERR_GEOMETRY);
-    cr_assert(strstr(g_diag.message, "leg 0") && strstr(g_diag.message, "toward"), "%s", g_diag.message);
+    cr_assert(strstr(g_diag.message, "leg 0 starts facing") && strstr(g_diag.message, "toward"), "%s", g_diag.message);
 }
 
 /* ---- bad input -------------------------------------------------------------- */
+/* Reference: the checks listed in route.h; the project rule that bad input gets
+ * a named status and a message, never a crash, and leaves a valid output. */
 
 typedef void (*mutator)(veer_route *r);
 
@@ -912,48 +918,49 @@ Test(path_bad_input, each_named_and_leaves_empty_path) {
         const char *name;
         mutator m;
         veer_status want;
-        int leg; /* expected diag.leg, -2: do not check */
+        int leg;            /* expected diag.leg */
+        const char *needle; /* text the message must hold, or NULL */
     } cases[] = {
-        {"no legs", m_no_legs, VEER_ERR_VALUE, -1},
-        {"negative leg count", m_neg_legs, VEER_ERR_VALUE, -1},
-        {"too many legs", m_many_legs, VEER_ERR_CAPACITY, -1},
-        {"too many waypoints", m_many_wps, VEER_ERR_CAPACITY, -1},
-        {"negative waypoint count", m_neg_wps, VEER_ERR_VALUE, -1},
-        {"legs take more waypoints than exist", m_too_few_wps, VEER_ERR_VALUE, 0},
-        {"waypoints left over", m_unused_wps, VEER_ERR_VALUE, -1},
-        {"NaN start", m_nan_start, VEER_ERR_VALUE, -1},
-        {"inf start yaw", m_inf_yaw, VEER_ERR_VALUE, -1},
-        {"huge coordinate", m_huge_x, VEER_ERR_VALUE, 0},
-        {"NaN waypoint", m_nan_wp, VEER_ERR_VALUE, 0},
-        {"NaN waypoint yaw", m_nan_wp_yaw, VEER_ERR_VALUE, 0},
-        {"NaN toward point", m_nan_toward, VEER_ERR_VALUE, 0},
-        {"inf spin yaw", m_nan_spin, VEER_ERR_VALUE, 1},
-        {"NaN pivot point", m_nan_pivot, VEER_ERR_VALUE, 2},
-        {"NaN dwell", m_nan_dwell, VEER_ERR_VALUE, 2},
-        {"negative leg dwell", m_neg_dwell, VEER_ERR_VALUE, 0},
-        {"negative waypoint dwell", m_neg_wp_dwell, VEER_ERR_VALUE, 0},
-        {"zero corner tolerance", m_zero_tol, VEER_ERR_VALUE, 0},
-        {"negative corner tolerance", m_neg_tol, VEER_ERR_VALUE, 0},
-        {"NaN corner tolerance", m_nan_tol, VEER_ERR_VALUE, 0},
-        {"unknown leg kind", m_bad_kind, VEER_ERR_VALUE, 1},
-        {"unspecified leg kind", m_zero_kind, VEER_ERR_VALUE, 1},
-        {"unknown heading", m_bad_heading, VEER_ERR_VALUE, 0},
-        {"unspecified heading", m_zero_heading, VEER_ERR_VALUE, 0},
-        {"unknown spin direction", m_bad_dir, VEER_ERR_VALUE, 1},
-        {"reversed not 0/1", m_bad_reversed, VEER_ERR_VALUE, 0},
-        {"stop not 0/1", m_bad_stop, VEER_ERR_VALUE, 0},
-        {"has_yaw not 0/1", m_bad_has_yaw, VEER_ERR_VALUE, 0},
-        {"spin leg with waypoints", m_spin_with_wps, VEER_ERR_VALUE, 1},
-        {"NaN start steer", m_nan_steer, VEER_ERR_VALUE, -1},
-        {"travel leg without waypoints", m_travel_no_wps, VEER_ERR_VALUE, 3},
-        {"coincident waypoints", m_coincident, VEER_ERR_GEOMETRY, 0},
-        {"first waypoint at the start", m_first_at_start, VEER_ERR_GEOMETRY, 0},
-        {"corner sharper than 175 degrees", m_sharp, VEER_ERR_GEOMETRY, 0},
-        {"toward point on the path", m_toward_through, VEER_ERR_GEOMETRY, 0},
-        {"toward point 0.5 mm from a blend", m_toward_near_blend, VEER_ERR_GEOMETRY, 0},
-        {"spin to the same yaw", m_spin_zero, VEER_ERR_GEOMETRY, 1},
-        {"ccw spin to the same yaw", m_spin_zero_ccw, VEER_ERR_GEOMETRY, 1},
-        {"pivot by zero", m_pivot_zero, VEER_ERR_GEOMETRY, 2},
+        {"no legs", m_no_legs, VEER_ERR_VALUE, -1, NULL},
+        {"negative leg count", m_neg_legs, VEER_ERR_VALUE, -1, NULL},
+        {"too many legs", m_many_legs, VEER_ERR_CAPACITY, -1, "33"},
+        {"too many waypoints", m_many_wps, VEER_ERR_CAPACITY, -1, NULL},
+        {"negative waypoint count", m_neg_wps, VEER_ERR_VALUE, -1, NULL},
+        {"legs take more waypoints than exist", m_too_few_wps, VEER_ERR_VALUE, 0, NULL},
+        {"waypoints left over", m_unused_wps, VEER_ERR_VALUE, -1, NULL},
+        {"NaN start", m_nan_start, VEER_ERR_VALUE, -1, NULL},
+        {"inf start yaw", m_inf_yaw, VEER_ERR_VALUE, -1, NULL},
+        {"huge coordinate", m_huge_x, VEER_ERR_VALUE, 0, NULL},
+        {"NaN waypoint", m_nan_wp, VEER_ERR_VALUE, 0, NULL},
+        {"NaN waypoint yaw", m_nan_wp_yaw, VEER_ERR_VALUE, 0, NULL},
+        {"NaN toward point", m_nan_toward, VEER_ERR_VALUE, 0, NULL},
+        {"inf spin yaw", m_nan_spin, VEER_ERR_VALUE, 1, NULL},
+        {"NaN pivot point", m_nan_pivot, VEER_ERR_VALUE, 2, NULL},
+        {"NaN dwell", m_nan_dwell, VEER_ERR_VALUE, 2, NULL},
+        {"negative leg dwell", m_neg_dwell, VEER_ERR_VALUE, 0, NULL},
+        {"negative waypoint dwell", m_neg_wp_dwell, VEER_ERR_VALUE, 0, NULL},
+        {"zero corner tolerance", m_zero_tol, VEER_ERR_VALUE, 0, NULL},
+        {"negative corner tolerance", m_neg_tol, VEER_ERR_VALUE, 0, NULL},
+        {"NaN corner tolerance", m_nan_tol, VEER_ERR_VALUE, 0, NULL},
+        {"unknown leg kind", m_bad_kind, VEER_ERR_VALUE, 1, NULL},
+        {"unspecified leg kind", m_zero_kind, VEER_ERR_VALUE, 1, NULL},
+        {"unknown heading", m_bad_heading, VEER_ERR_VALUE, 0, NULL},
+        {"unspecified heading", m_zero_heading, VEER_ERR_VALUE, 0, NULL},
+        {"unknown spin direction", m_bad_dir, VEER_ERR_VALUE, 1, NULL},
+        {"reversed not 0/1", m_bad_reversed, VEER_ERR_VALUE, 0, NULL},
+        {"stop not 0/1", m_bad_stop, VEER_ERR_VALUE, 0, NULL},
+        {"has_yaw not 0/1", m_bad_has_yaw, VEER_ERR_VALUE, 0, NULL},
+        {"spin leg with waypoints", m_spin_with_wps, VEER_ERR_VALUE, 1, NULL},
+        {"NaN start steer", m_nan_steer, VEER_ERR_VALUE, -1, NULL},
+        {"travel leg without waypoints", m_travel_no_wps, VEER_ERR_VALUE, 3, NULL},
+        {"coincident waypoints", m_coincident, VEER_ERR_GEOMETRY, 0, "waypoint 1: coincides with waypoint 0"},
+        {"first waypoint at the start", m_first_at_start, VEER_ERR_GEOMETRY, 0, NULL},
+        {"corner sharper than 175 degrees", m_sharp, VEER_ERR_GEOMETRY, 0, "leg 0, waypoint 0: corner too sharp"},
+        {"toward point on the path", m_toward_through, VEER_ERR_GEOMETRY, 0, "within 1 mm"},
+        {"toward point 0.5 mm from a blend", m_toward_near_blend, VEER_ERR_GEOMETRY, 0, "within 1 mm"},
+        {"spin to the same yaw", m_spin_zero, VEER_ERR_GEOMETRY, 1, "spin to the yaw it already has"},
+        {"ccw spin to the same yaw", m_spin_zero_ccw, VEER_ERR_GEOMETRY, 1, NULL},
+        {"pivot by zero", m_pivot_zero, VEER_ERR_GEOMETRY, 2, NULL},
     };
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
         static veer_route r, copy;
@@ -967,9 +974,10 @@ Test(path_bad_input, each_named_and_leaves_empty_path) {
         cr_expect_eq(g_diag.status, st, "%s", cases[i].name);
         cr_expect(g_diag.message[0] != '\0' && strlen(g_diag.message) < sizeof g_diag.message, "%s: no message",
                   cases[i].name);
-        if (cases[i].leg != -2)
-            cr_expect_eq(g_diag.leg, cases[i].leg, "%s: diag.leg %d (%s)", cases[i].name, g_diag.leg,
-                         g_diag.message);
+        cr_expect_eq(g_diag.leg, cases[i].leg, "%s: diag.leg %d (%s)", cases[i].name, g_diag.leg, g_diag.message);
+        if (cases[i].needle)
+            cr_expect(strstr(g_diag.message, cases[i].needle) != NULL, "%s: message '%s' lacks '%s'", cases[i].name,
+                      g_diag.message, cases[i].needle);
         cr_expect_eq(g_path.piece_count, 0, "%s", cases[i].name);
         cr_expect_eq(g_path.segment_count, 0, "%s", cases[i].name);
         cr_expect_eq(memcmp(&r, &copy, sizeof r), 0, "%s: route changed", cases[i].name);
@@ -1003,6 +1011,7 @@ Test(path_bad_input, diag_cleared_on_success) {
 }
 
 Test(path_capacity, largest_route_fits) {
+    /* capacities in src/internal.h must hold the largest route route.h allows */
     /* 64 stop waypoints on a zig-zag with tangent heading: every stop turns,
      * so every stop gets an automatic spin */
     static veer_route r;
