@@ -1024,3 +1024,74 @@ Test(path_capacity, largest_route_fits) {
     cr_assert_eq(g_path.segment_count, 2 * VEER_MAX_WAYPOINTS - 2, "%d", g_path.segment_count);
     check_joins(0);
 }
+
+/* ---- random routes ----------------------------------------------------------- */
+
+/* Property check (common practice, no source): random routes, many of them
+ * invalid, never crash; an accepted one has finite q, q', q'' everywhere,
+ * continuous pose, C2 joins and nonzero q'; a refused one has a message and an
+ * empty path. */
+Test(path_random, never_crash_never_nan) {
+    int ok = 0, refused = 0;
+    g_rng = 777u;
+    for (int trial = 0; trial < 1500; trial++) {
+        static veer_route r;
+        r = veer_default_route(40 * rnd() - 20, 40 * rnd() - 20, 8 * rnd() - 4);
+        int legs = 1 + (int)(5 * rnd());
+        double x = r.start_x, y = r.start_y;
+        for (int l = 0; l < legs; l++) {
+            double u = rnd();
+            veer_leg leg = veer_default_leg(u < 0.6 ? VEER_LEG_TRAVEL : u < 0.8 ? VEER_LEG_SPIN : VEER_LEG_PIVOT);
+            leg.heading = (veer_heading_kind)(1 + (int)(4 * rnd()));
+            leg.reversed = rnd() < 0.3;
+            leg.toward_x = 40 * rnd() - 20, leg.toward_y = 40 * rnd() - 20;
+            leg.corner_tolerance = 0.01 + 2 * rnd();
+            leg.yaw = 10 * rnd() - 5;
+            leg.direction = (int)(3 * rnd()) - 1;
+            leg.pivot_x = x + 4 * rnd() - 2, leg.pivot_y = y + 4 * rnd() - 2;
+            leg.angle = 6 * rnd() - 3;
+            leg.dwell = rnd() < 0.5 ? 0.0 : rnd();
+            if (veer_route_add_leg(&r, &leg) != VEER_OK) break;
+            if (leg.kind != VEER_LEG_TRAVEL) continue;
+            int n = 1 + (int)(5 * rnd());
+            for (int k = 0; k < n; k++) {
+                x += 10 * rnd() - 5, y += 10 * rnd() - 5;
+                veer_waypoint w = veer_default_waypoint(x, y);
+                w.stop = rnd() < 0.3;
+                w.has_yaw = rnd() < 0.5;
+                w.yaw = 10 * rnd() - 5;
+                if (veer_route_add_waypoint(&r, &w) != VEER_OK) break;
+            }
+        }
+        /* now and then a broken value */
+        if (rnd() < 0.1) r.waypoints[(int)(rnd() * r.waypoint_count)].x = T_NAN;
+        veer_status st = veer__path_build(&r, &g_path, &g_diag);
+        if (st != VEER_OK) {
+            refused++;
+            cr_assert(g_diag.message[0] != '\0');
+            cr_assert_eq(g_path.piece_count, 0);
+            continue;
+        }
+        ok++;
+        double prev[3] = {r.start_x, r.start_y, r.start_yaw};
+        for (int k = 0; k < g_path.segment_count; k++) {
+            const veer_path_segment *sg = &g_path.segments[k];
+            cr_assert_gt(sg->s_end, sg->s_begin);
+            for (int i = 0; i <= 60; i++) {
+                double q[3], dq[3], ddq[3];
+                eval(k, sg->s_begin + (sg->s_end - sg->s_begin) * i / 60.0, q, dq, ddq);
+                for (int c = 0; c < 3; c++) cr_assert(isfinite(q[c]) && isfinite(dq[c]) && isfinite(ddq[c]));
+                cr_assert_gt(fabs(dq[0]) + fabs(dq[1]) + fabs(dq[2]), 0.1);
+                if (i == 0)
+                    for (int c = 0; c < 3; c++)
+                        cr_assert(fabs(q[c] - prev[c]) < 1e-9, "trial %d segment %d q[%d] jumps", trial, k, c);
+                if (i == 60) memcpy(prev, q, sizeof prev);
+            }
+        }
+        for (int c = 0; c < 3; c++) cr_assert(fabs(prev[c] - g_path.end_pose[c]) < 1e-9);
+        if (g_path.piece_count <= VEER_PATH_MAX_SEGMENTS) check_joins(0);
+    }
+    cr_log_info("random routes: %d built, %d refused", ok, refused);
+    cr_assert_gt(ok, 100);
+    cr_assert_gt(refused, 100);
+}
