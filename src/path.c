@@ -19,6 +19,19 @@
 
 enum { PIECE_LINE = 1, PIECE_CORNER = 2, PIECE_SPIN = 3, PIECE_PIVOT = 4 };
 
+/* Layout of veer_path_piece's private fields.
+ *   LINE    c[k][0] start, c[k][1] unit direction (k = x, y); p = c0 + c1 (s - s0)
+ *   CORNER  c[k][0..7] coefficients in t = (s - s0) / len
+ *   SPIN    c[0][0], c[1][0] position, c[0][1] yaw at s0, c[0][2] +-1
+ *   PIVOT   c[0][0], c[1][0] centre C, c[0][1], c[1][1] p0 - C, c[0][2] yaw at s0, c[0][3] +-1
+ * yaw_p by heading (travel pieces):
+ *   HOLD     [0] yaw
+ *   TANGENT  line [0] yaw; corner [0] yaw at s0, [1..2] d0
+ *   TOWARD   [0..1] point, [2] unwrap reference; corners add (start s, reference)
+ *            of further regions at [3..4], [5..6], [7..8]
+ *   BLEND    [0..5] knots (s, yaw) before, after and after that (global s)
+ *   all      [9..11] start-mismatch fade: m, L_fade, s where it starts */
+
 #define DEG_ (VEER_PI / 180.0)
 #define COINCIDENT_ 1e-6       /* m: consecutive points closer than this are one point */
 #define MAX_TURN_ (175.0 * DEG_) /* sharper pass-through corners must be stops */
