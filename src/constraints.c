@@ -50,6 +50,10 @@ void veer__row_ctx_init(veer_row_ctx *ctx, const veer_drive_def *drive, const ve
         double ang = (2 * j + 1) * VEER_PI / sides;
         ctx->face_c[j] = cos(ang);
         ctx->face_s[j] = sin(ang);
+        /* the face joins vertices j and j + 1, at heights A sin(2 pi j / sides) ... */
+        double h0 = sin(2.0 * VEER_PI * j / sides), h1 = sin(2.0 * VEER_PI * (j + 1) / sides);
+        double h = h0 < h1 ? h0 : h1;
+        ctx->face_h[j] = h < 1e-12 ? 0.0 : limits->body_accel * h; /* sin(pi) is not exactly 0 */
     }
     ctx->face_r = limits->body_accel * cos(VEER_PI / sides);
     ctx->linear = veer__drive_wheel_matrix(drive, ctx->J) > 0;
@@ -77,6 +81,35 @@ static int accel_rows(veer_row *rows, double f, double df, double limit, veer_li
     return 2;
 }
 
+/* Body acceleration |p' u + p'' x| <= A: a polygon inscribed in the circle,
+ * built in the path's tangent frame with a vertex on the tangent, so that
+ * straight-line braking and accelerating use the full limit. The normal
+ * acceleration an_x * x has a known sign (x >= 0), so only the faces on its
+ * side can bind, and of those only the faces that reach down to the highest
+ * normal acceleration the point's speed bound xmax allows. */
+static int accel_polygon_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double xmax, veer_row *rows) {
+    const double *dq = pk->dq, *ddq = pk->ddq;
+    double sp = hypot(dq[0], dq[1]);
+    if (!set(ctx->limits->body_accel) || !(sp > 0.0 || hypot(ddq[0], ddq[1]) > 0.0)) return 0;
+    double tx = 1.0, ty = 0.0;
+    if (sp > 0.0) {
+        tx = dq[0] / sp;
+        ty = dq[1] / sp;
+    }
+    double at_u = sp, at_x = ddq[0] * tx + ddq[1] * ty; /* tangential: at_u u + at_x x */
+    double an_x = -ddq[0] * ty + ddq[1] * tx;            /* normal: an_x x */
+    double side = an_x >= 0.0 ? 1.0 : -1.0;
+    double an_max = fabs(an_x) * xmax; /* inf * 0 is NaN: then every face is kept */
+    veer_limit_id id = veer__limit(VEER_LIMIT_BODY_ACCEL, -1);
+    int m = 0;
+    for (int j = 0; j < ctx->faces; j++) {
+        if (ctx->face_h[j] > an_max * (1.0 + 1e-9)) continue;
+        double ca = ctx->face_c[j], sa = side * ctx->face_s[j];
+        rows[m++] = (veer_row){ca * at_u, ca * at_x + sa * an_x, ctx->face_r, id};
+    }
+    return m;
+}
+
 int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, veer_row *rows, double *xmax,
                      veer_limit_id *xmax_id) {
     const veer_drive_def *drive = ctx->drive;
@@ -91,33 +124,6 @@ int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, veer_row
     speed_row(sp, lim->body_speed, xmax, xmax_id, veer__limit(VEER_LIMIT_BODY_SPEED, -1));
     speed_row(dq[2], lim->yaw_rate, xmax, xmax_id, veer__limit(VEER_LIMIT_YAW_RATE, -1));
 
-    /* Body acceleration |p' u + p'' x| <= A: a polygon inscribed in the circle,
-     * built in the path's tangent frame with a vertex on the tangent, so that
-     * straight-line braking and accelerating use the full limit. Only the
-     * faces on the side of the normal acceleration can bind (x >= 0). */
-    if (set(lim->body_accel) && (sp > 0.0 || hypot(ddq[0], ddq[1]) > 0.0)) {
-        double tx = 1.0, ty = 0.0;
-        if (sp > 0.0) {
-            tx = dq[0] / sp;
-            ty = dq[1] / sp;
-        }
-        double at_u = sp, at_x = ddq[0] * tx + ddq[1] * ty; /* tangential: at_u u + at_x x */
-        double an_x = -ddq[0] * ty + ddq[1] * tx;            /* normal: an_x x */
-        double side = an_x >= 0.0 ? 1.0 : -1.0;
-        veer_limit_id id = veer__limit(VEER_LIMIT_BODY_ACCEL, -1);
-        if (an_x == 0.0) {
-            /* No normal acceleration: every face is a multiple of the tangential
-             * row, so only the two faces next to the tangent vertices count. */
-            double ca = ctx->face_c[0];
-            rows[m++] = (veer_row){ca * at_u, ca * at_x, ctx->face_r, id};
-            rows[m++] = (veer_row){-ca * at_u, -ca * at_x, ctx->face_r, id};
-        } else {
-            for (int j = 0; j < ctx->faces; j++) {
-                double ca = ctx->face_c[j], sa = side * ctx->face_s[j];
-                rows[m++] = (veer_row){ca * at_u, ca * at_x + sa * an_x, ctx->face_r, id};
-            }
-        }
-    }
     m += accel_rows(rows + m, dq[2], ddq[2], lim->yaw_accel, veer__limit(VEER_LIMIT_YAW_ACCEL, -1));
 
     int n = ctx->module_count;
@@ -164,6 +170,7 @@ int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, veer_row
             m += accel_rows(rows + m, f, df, ml->wheel_accel, veer__limit(VEER_LIMIT_WHEEL_ACCEL, i));
         }
     }
+    m += accel_polygon_rows(ctx, pk, *xmax, rows + m);
     return m;
 }
 

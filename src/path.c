@@ -82,7 +82,7 @@ static double corner_mean_speed(const double d0[2], const double d1[2], double c
                                 0.90617984593866396};
     static const double w[5] = {0.23692688505618942, 0.47862867049936619, 0.568888888888889,
                                 0.47862867049936619, 0.23692688505618942};
-    const int panels = 16;
+    const int panels = 4;
     double sum = 0.0, dsum = 0.0;
     double ex = d0[0] + d1[0], ey = d0[1] + d1[1];
     for (int p = 0; p < panels; p++) {

@@ -37,6 +37,7 @@ typedef struct {
     int module_count;
     int faces;                          /* polygon faces that can bind: sides / 2 */
     double face_c[VEER_MAX_POLYGON_FACES], face_s[VEER_MAX_POLYGON_FACES];
+    double face_h[VEER_MAX_POLYGON_FACES]; /* lowest normal acceleration on each face */
     double face_r;                      /* body_accel * cos(pi / sides) */
     int linear;                         /* 1: wheel_rate = J xi */
     double J[VEER_MAX_MODULES][3];
