@@ -26,8 +26,9 @@ MAX_WAYPOINTS = 64  # VEER_MAX_WAYPOINTS, include/veer/route.h
 DIAG_MESSAGE_SIZE = 200  # VEER_DIAG_MESSAGE_SIZE, include/veer/status.h
 
 _HERE = pathlib.Path(__file__).resolve().parent
-# bindings/python/veer -> repository root, only meaningful in a source tree.
-REPO_ROOT = _HERE.parents[2] if len(_HERE.parents) > 2 else _HERE
+# bindings/python/veer -> repository root, when the package runs from a source tree.
+_ROOT = _HERE.parents[2] if len(_HERE.parents) > 2 else _HERE
+REPO_ROOT = _ROOT if (_ROOT / "include" / "veer" / "veer.h").is_file() else None
 
 _LIB_NAMES = ("libveer.so", "libveer.dylib", "veer.dll")
 
@@ -44,7 +45,7 @@ def candidate_paths():
         out.append(pathlib.Path(env))
     for name in _LIB_NAMES:
         out.append(_HERE / name)
-    for sub in ("build/ci", "build"):
+    for sub in ("build/ci", "build") if REPO_ROOT is not None else ():
         for name in _LIB_NAMES:
             out.append(REPO_ROOT / sub / name)
     return out

@@ -39,11 +39,13 @@ def _proto_dir():
     d = os.environ.get("VEER_PROTO_DIR")
     if d:
         return pathlib.Path(d)
-    return _lib.REPO_ROOT / "proto"
+    return _lib.REPO_ROOT / "proto" if _lib.REPO_ROOT is not None else None
 
 
 def _generate():
     proto = _proto_dir()
+    if proto is None:
+        return None
     files = [proto / "veer" / "v1" / ("%s.proto" % n) for n in PROTO_NAMES]
     if not all(f.is_file() for f in files):
         return None

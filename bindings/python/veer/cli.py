@@ -159,6 +159,11 @@ def _parser():
     return ap
 
 
+def console():
+    """Entry point of the `veer` console script."""
+    raise SystemExit(main())
+
+
 def main(argv=None):
     args = _parser().parse_args(argv)
     try:
@@ -199,6 +204,12 @@ def main(argv=None):
             sys.stdout.write("\n")
         print("veer: %s" % exc, file=sys.stderr)
         return 1
+    except BrokenPipeError:
+        try:
+            sys.stdout = open(os.devnull, "w")
+        except OSError:
+            pass
+        return 0
     except OSError as exc:
         print("veer: %s" % exc, file=sys.stderr)
         return 1

@@ -184,12 +184,27 @@ def _request_bytes(request):
     if isinstance(request, dict):
         msg = PlanRequest()
         try:
-            json_format.ParseDict(request, msg)
+            json_format.ParseDict(_json_floats(request), msg)
         except (json_format.ParseError, TypeError, ValueError, AttributeError, RecursionError) as exc:
             raise PlanError("ERR_VALUE", "request is not a PlanRequest in the proto3 JSON mapping: %s" % exc) from None
         return msg.SerializeToString()
     raise PlanError("ERR_VALUE", "request must be a veer.v1.PlanRequest, a dict in the proto3 JSON mapping or a path "
                     "to a JSON file, got %s" % type(request).__name__)
+
+
+def _json_floats(v, depth=0):
+    """Python's float NaN and infinities spelled as the proto3 JSON mapping
+    spells them ("NaN", "Infinity", "-Infinity"), so that they reach libveer,
+    which names the field they are in."""
+    if depth > 64:
+        raise ValueError("request nested too deeply")
+    if isinstance(v, float) and not math.isfinite(v):
+        return "NaN" if math.isnan(v) else ("Infinity" if v > 0 else "-Infinity")
+    if isinstance(v, dict):
+        return {k: _json_floats(x, depth + 1) for k, x in v.items()}
+    if isinstance(v, list):
+        return [_json_floats(x, depth + 1) for x in v]
+    return v
 
 
 def _field_bytes(buf, number):
@@ -500,13 +515,22 @@ class Plan:
         """Path geometry at path position s: (q, q', q'') with q = (x, y, yaw).
         For an array of positions each is an array of shape (n, 3)."""
         h = self._h()
-        arr = np.asarray(s, dtype=float) if not isinstance(s, numbers.Real) else None
-        if arr is None:
+        arr = None
+        if isinstance(s, numbers.Real):
             vals = [self._real(s, "s")]
         else:
+            try:
+                arr = np.asarray(s, dtype=float)
+            except (TypeError, ValueError):
+                raise PlanError("ERR_VALUE", "s must be a number or a 1-D array of numbers, got %s"
+                                % type(s).__name__) from None
             if arr.ndim != 1 or not np.all(np.isfinite(arr)):
                 raise PlanError("ERR_VALUE", "s must be a finite number or a 1-D array of finite numbers")
             vals = arr.tolist()
+        length = self.length
+        for v in vals:
+            if not -1e-9 * max(1.0, length) <= v <= length * (1 + 1e-12) + 1e-9:
+                raise PlanError("ERR_VALUE", "s = %r is outside the path [0, %.9g]" % (v, length))
         q = np.empty((len(vals), 3))
         dq = np.empty((len(vals), 3))
         ddq = np.empty((len(vals), 3))
