@@ -78,3 +78,19 @@ def test_samples_match_rigid_body_kinematics(veer, name, request_):
             assert close(smp.wheel_rate, J @ xi, np.max(np.abs(J @ xi)))
             assert close(smp.wheel_accel, J @ xid, np.max(np.abs(J @ xid)))
     assert moving > 100  # most random times fall in motion, so the checks above ran
+
+
+@pytest.mark.parametrize("name,request_", [c for c in CASES if c[1]["drive"]["kind"] != "DRIVE_KIND_STEERED"],
+                         ids=[c[0] for c in CASES if c[1]["drive"]["kind"] != "DRIVE_KIND_STEERED"])
+def test_fixed_wheels_report_their_direction(veer, name, request_):
+    # drive.h: the mecanum, omni and differential kinds report their fixed
+    # wheel direction as the steer angle (omni: the wheel's drive_angle, the
+    # direction it pushes; mecanum and differential wheels drive along body x).
+    p = veer.plan(request_)
+    drive = p.drive()
+    want = np.array([m["drive_angle"] for m in drive["modules"]] if drive["kind"] == "omni"
+                    else [0.0] * p.module_count)
+    for t in np.linspace(0.0, p.duration, 17):
+        smp = p.sample(float(t))
+        assert np.allclose(np.remainder(smp.steer - want + math.pi, 2 * math.pi) - math.pi, 0.0, atol=1e-12)
+        assert np.allclose(smp.steer_rate, 0.0)
