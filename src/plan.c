@@ -98,6 +98,38 @@ typedef struct {
     size_t bytes;
 } workspace;
 
+/* Speed zones: x <= cap^2 / |p'|^2 with the smallest cap of each point and
+ * its neighbours (a zone entered between two grid points holds at both). */
+static void apply_speed_caps(const veer_plan *plan, int j, int n, const double *s, workspace *ws) {
+    double prev = VEER_UNLIMITED, cur, next;
+    int zprev = -1, zcur = -1, znext = -1;
+    veer_point_kin pk;
+    veer__point_kin(&plan->path, j, s[0], &pk);
+    cur = plan->cap.cap(plan->cap.user, pk.q, &zcur);
+    for (int k = 0; k < n; k++) {
+        double sp2 = pk.dq[0] * pk.dq[0] + pk.dq[1] * pk.dq[1];
+        if (k + 1 < n) {
+            veer__point_kin(&plan->path, j, s[k + 1], &pk);
+            next = plan->cap.cap(plan->cap.user, pk.q, &znext);
+        } else {
+            next = VEER_UNLIMITED;
+            znext = -1;
+        }
+        double c = cur;
+        int z = zcur;
+        if (prev < c) c = prev, z = zprev;
+        if (next < c) c = next, z = znext;
+        if (isfinite(c) && c >= 0.0 && sp2 > 0.0 && c * c / sp2 < ws->xmax[k]) {
+            ws->xmax[k] = c * c / sp2;
+            ws->xmax_id[k] = veer__limit(VEER_LIMIT_SPEED_ZONE, z);
+        }
+        prev = cur;
+        zprev = zcur;
+        cur = next;
+        zcur = znext;
+    }
+}
+
 static veer_status solve_segment(veer_plan *plan, int j, workspace *ws, veer_diag *diag) {
     veer_plan_segment *sg = &plan->segs[j];
     const veer_path_segment *ps = &plan->path.segments[j];
@@ -115,6 +147,7 @@ static veer_status solve_segment(veer_plan *plan, int j, workspace *ws, veer_dia
                               ps->leg, s[k]);
         ws->row_count[k] = c;
     }
+    if (plan->cap.cap) apply_speed_caps(plan, j, n, s, ws);
     veer_topp_problem p = {n, s, ws->xmax, ws->xmax_id, ws->rows, ws->row_count, m};
     int bad = 0;
     veer_status st = veer__topp_solve(&p, x, ws->K, &bad);
@@ -229,6 +262,12 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
 
 veer_status veer_plan_create(const veer_drive_def *drive, const veer_limits *limits, const veer_route *route,
                              const veer_plan_options *options, veer_plan **out, veer_diag *diag) {
+    return veer__plan_create_with(drive, limits, route, options, NULL, out, diag);
+}
+
+veer_status veer__plan_create_with(const veer_drive_def *drive, const veer_limits *limits, const veer_route *route,
+                                   const veer_plan_options *options, const veer_speed_cap *cap, veer_plan **out,
+                                   veer_diag *diag) {
     veer__diag_ok(diag);
     veer_limit_id none = veer__limit(VEER_LIMIT_NONE, -1);
     if (!out) return veer__fail(diag, VEER_ERR_NULL, -1, -1, -1, -1.0, none, "out is NULL");
@@ -256,6 +295,7 @@ veer_status veer_plan_create(const veer_drive_def *drive, const veer_limits *lim
     plan->route = *route;
     plan->module_count = M;
     plan->steered = drive->kind == VEER_DRIVE_STEERED;
+    if (cap && cap->cap) plan->cap = *cap;
     veer__row_ctx_init(&plan->rows, &plan->drive, &plan->limits, &plan->options);
     if ((st = veer__path_build(route, &plan->path, diag)) == VEER_OK) st = build(plan, diag);
     if (st != VEER_OK) {

@@ -80,6 +80,23 @@ veer_status veer__topp_solve(const veer_topp_problem *p, double *x, double *work
  * a relative slack of 2e-3). */
 veer_limit_id veer__topp_binding(const veer_topp_problem *p, const double *x, int k);
 
+/* ---- position-dependent speed caps (speed zones) ------------------------ */
+
+/* A body-speed cap that depends on where the cart is: cap(user, pose, &zone)
+ * returns the cap in m/s (+inf where none applies) and the zone index that
+ * sets it. The planner applies at each grid point the smallest cap of the
+ * point and its two neighbours, so a zone that begins between two grid
+ * points already holds at the point before it. */
+typedef struct {
+    double (*cap)(const void *user, const double pose[3], int *zone);
+    const void *user;
+} veer_speed_cap;
+
+/* veer_plan_create with an optional speed cap (NULL: none). */
+veer_status veer__plan_create_with(const veer_drive_def *drive, const veer_limits *limits, const veer_route *route,
+                                   const veer_plan_options *options, const veer_speed_cap *cap, veer_plan **out,
+                                   veer_diag *diag);
+
 /* ---- the plan object (plan.c) ------------------------------------------ */
 
 typedef struct {
@@ -99,6 +116,7 @@ struct veer_plan {
     veer_limits limits;
     veer_plan_options options;
     veer_row_ctx rows;            /* row builder context (points into drive and limits above) */
+    veer_speed_cap cap;           /* speed zones, cap.cap NULL if none */
     veer_route route;
     veer_path path;
     int module_count;
@@ -134,5 +152,21 @@ veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, cons
  * reference steer angles ref[] (continuity). */
 void veer__module_setpoints(const veer_plan *plan, int seg, const veer_point_kin *pk, double sdot, double sddot,
                             const double *ref, veer_module_setpoint *out);
+
+/* ---- stop.c: controlled stop along the path ----------------------------- */
+
+/* Advances a controlled stop by dt seconds (internally in steps of at most
+ * 1 ms) from path position *s with speed *sdot in segment seg, braking as
+ * hard as the limits allow; *sddot gets the last deceleration. Returns 1
+ * while still moving, 0 once at rest. Bounded work: ceil(dt / 1 ms) steps. */
+int veer__stop_step(const veer_plan *plan, int seg, double *s, double *sdot, double *sddot, double dt);
+
+/* The plan's state at time t as (segment, s, sdot, sddot); returns the
+ * phase (veer_phase). */
+int veer__plan_state(const veer_plan *plan, double t, int *seg, double *s, double *sdot, double *sddot);
+
+/* Fills a sample for a moving state (s, sdot, sddot) in segment seg with
+ * steer angles continued from the plan's grid. */
+void veer__sample_state(const veer_plan *plan, int seg, double s, double sdot, double sddot, veer_sample *out);
 
 #endif

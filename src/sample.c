@@ -76,69 +76,94 @@ static void fill_body(veer_sample *o, const veer_point_kin *pk, double sdot, dou
     o->accel_body[2] = o->accel_world[2];
 }
 
-static void sample_at(const veer_plan *plan, double t, veer_sample *o) {
-    int M = plan->module_count;
-    memset(o, 0, sizeof *o);
-    o->t = t;
-    o->module_count = M;
-    /* The segment whose timeline holds t. */
+/* The segment whose timeline holds t. */
+static int segment_at_time(const veer_plan *plan, double t) {
     int j = 0;
     while (j + 1 < plan->segment_count && t >= plan->segs[j + 1].t_resteer) j++;
+    return j;
+}
+
+int veer__plan_state(const veer_plan *plan, double t, int *seg, double *s, double *sdot, double *sddot) {
+    int j = segment_at_time(plan, t);
     const veer_plan_segment *sg = &plan->segs[j];
-    o->leg = plan->path.segments[j].leg;
-    veer_point_kin pk;
+    *seg = j;
+    *sdot = *sddot = 0.0;
+    if (t < sg->t_move) {
+        *s = plan->s[sg->k0];
+        return VEER_PHASE_RESTEER;
+    }
+    if (t >= sg->t_move + sg->move_time) {
+        *s = plan->s[sg->k1];
+        return (j + 1 == plan->segment_count && t >= plan->duration) ? VEER_PHASE_DONE : VEER_PHASE_DWELL;
+    }
+    /* Within a grid interval sddot is constant: s(t) is a quadratic. */
+    int k = sg->k0 + find(plan->t + sg->k0, sg->k1 - sg->k0 + 1, t);
+    if (k >= sg->k1) k = sg->k1 - 1;
+    double ds = plan->s[k + 1] - plan->s[k];
+    double v0 = sqrt(plan->x[k]);
+    double u = (plan->x[k + 1] - plan->x[k]) / (2.0 * ds);
+    double tau = t - plan->t[k];
+    double v = v0 + u * tau;
+    double pos = plan->s[k] + v0 * tau + 0.5 * u * tau * tau;
+    *sdot = v > 0.0 ? v : 0.0;
+    *sddot = u;
+    *s = pos < plan->s[k] ? plan->s[k] : pos > plan->s[k + 1] ? plan->s[k + 1] : pos;
+    return VEER_PHASE_MOVING;
+}
+
+void veer__sample_state(const veer_plan *plan, int seg, double s, double sdot, double sddot, veer_sample *o) {
+    const veer_plan_segment *sg = &plan->segs[seg];
+    int M = plan->module_count;
+    /* Steer references: the grid's continuous angles, interpolated in s. */
+    int k = sg->k0 + find(plan->s + sg->k0, sg->k1 - sg->k0 + 1, s);
+    if (k >= sg->k1) k = sg->k1 - 1;
+    double ds = plan->s[k + 1] - plan->s[k];
+    double f = ds > 0.0 ? (s - plan->s[k]) / ds : 0.0;
+    f = f < 0.0 ? 0.0 : f > 1.0 ? 1.0 : f;
     double ref[VEER_MAX_MODULES] = {0};
-    if (t < sg->t_move) { /* re-steer phase: modules turn at steady rates, body at rest */
+    for (int i = 0; i < M; i++) {
+        double a = plan->steer[(size_t)k * (size_t)M + (size_t)i];
+        double b = plan->steer[(size_t)(k + 1) * (size_t)M + (size_t)i];
+        ref[i] = a + (b - a) * f;
+    }
+    veer_point_kin pk;
+    veer__point_kin(&plan->path, seg, s, &pk);
+    o->module_count = M;
+    o->leg = plan->path.segments[seg].leg;
+    o->s = s;
+    o->sdot = sdot;
+    o->sddot = sddot;
+    fill_body(o, &pk, sdot, sddot);
+    veer__module_setpoints(plan, seg, &pk, sdot, sddot, ref, o->modules);
+    if (!(sdot > 0.0))
+        for (int i = 0; i < M; i++) o->modules[i].steer = ref[i];
+}
+
+static void sample_at(const veer_plan *plan, double t, veer_sample *o) {
+    memset(o, 0, sizeof *o);
+    int j;
+    double s, sdot, sddot;
+    int phase = veer__plan_state(plan, t, &j, &s, &sdot, &sddot);
+    if (phase == VEER_PHASE_RESTEER) { /* modules turn at steady rates, body at rest */
+        const veer_plan_segment *sg = &plan->segs[j];
         double T = sg->resteer_time, f = T > 0.0 ? (t - sg->t_resteer) / T : 1.0;
         if (f < 0.0) f = 0.0;
-        o->phase = VEER_PHASE_RESTEER;
-        o->s = plan->s[sg->k0];
-        veer__point_kin(&plan->path, j, o->s, &pk);
+        veer_point_kin pk;
+        veer__point_kin(&plan->path, j, s, &pk);
+        o->module_count = plan->module_count;
+        o->leg = plan->path.segments[j].leg;
+        o->s = s;
         fill_body(o, &pk, 0.0, 0.0);
-        for (int i = 0; i < M; i++) {
+        for (int i = 0; i < plan->module_count; i++) {
             double a = sg->steer_from[i], b = sg->steer_to[i];
             o->modules[i].steer = a + (b - a) * f;
             o->modules[i].steer_rate = T > 0.0 ? (b - a) / T : 0.0;
         }
-        return;
+    } else {
+        veer__sample_state(plan, j, s, sdot, sddot, o);
     }
-    double t_end = sg->t_move + sg->move_time;
-    int k;
-    double sdot, sddot, s;
-    if (t < t_end) {
-        o->phase = VEER_PHASE_MOVING;
-        k = sg->k0 + find(plan->t + sg->k0, sg->k1 - sg->k0 + 1, t);
-        if (k >= sg->k1) k = sg->k1 - 1;
-        double ds = plan->s[k + 1] - plan->s[k];
-        double v0 = sqrt(plan->x[k]);
-        sddot = (plan->x[k + 1] - plan->x[k]) / (2.0 * ds);
-        double tau = t - plan->t[k];
-        sdot = v0 + sddot * tau;
-        if (sdot < 0.0) sdot = 0.0;
-        s = plan->s[k] + v0 * tau + 0.5 * sddot * tau * tau;
-        if (s > plan->s[k + 1]) s = plan->s[k + 1];
-        if (s < plan->s[k]) s = plan->s[k];
-        double f = (s - plan->s[k]) / ds;
-        for (int i = 0; i < M; i++) {
-            double a = plan->steer[(size_t)k * (size_t)M + (size_t)i];
-            double b = plan->steer[(size_t)(k + 1) * (size_t)M + (size_t)i];
-            ref[i] = a + (b - a) * f;
-        }
-    } else { /* dwell at the segment's end, or done */
-        o->phase = (j + 1 == plan->segment_count && t >= plan->duration) ? VEER_PHASE_DONE : VEER_PHASE_DWELL;
-        k = sg->k1;
-        s = plan->s[k];
-        sdot = sddot = 0.0;
-        for (int i = 0; i < M; i++) ref[i] = plan->steer[(size_t)k * (size_t)M + (size_t)i];
-    }
-    o->s = s;
-    o->sdot = sdot;
-    o->sddot = sddot;
-    veer__point_kin(&plan->path, j, s, &pk);
-    fill_body(o, &pk, sdot, sddot);
-    veer__module_setpoints(plan, j, &pk, sdot, sddot, ref, o->modules);
-    if (o->phase != VEER_PHASE_MOVING)
-        for (int i = 0; i < M; i++) o->modules[i].steer = ref[i];
+    o->t = t;
+    o->phase = phase;
 }
 
 veer_status veer_plan_sample(const veer_plan *plan, double t, veer_sample *out) {

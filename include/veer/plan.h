@@ -127,6 +127,30 @@ VEER_API int veer_plan_grid_count(const veer_plan *plan);
 VEER_API VEER_NODISCARD veer_status veer_plan_grid(const veer_plan *plan, int k, double *s, double *sdot,
                                                    veer_limit_id *binding);
 
+/* Controlled stop (in the manner of IEC 60204-1 stop categories 1 and 2): from
+ * the plan's state at time t the cart brakes along the planned path as hard
+ * as its limits allow (the largest deceleration every limit permits at each
+ * point, integrated in 1 ms steps), then stands. Steering modules keep the
+ * angles the path gives them; a stop during a re-steer phase or a dwell is
+ * immediate (the body already stands). The player and the range checks use
+ * the same braking. */
+typedef struct {
+    double t;           /* s: plan time the stop starts */
+    int leg;            /* leg it happens in */
+    double s_start;     /* path position and speed when it starts */
+    double sdot_start;
+    double s_end;       /* path position where the cart comes to rest */
+    double duration;    /* s from the start of the stop to rest */
+} veer_stop_info;
+
+VEER_API VEER_NODISCARD veer_status veer_plan_stop_info(const veer_plan *plan, double t, veer_stop_info *out);
+
+/* The state tau seconds into a controlled stop begun at plan time t_stop
+ * (tau clamped to [0, duration]; afterwards the cart stands). phase is
+ * MOVING while braking and DONE once at rest. */
+VEER_API VEER_NODISCARD veer_status veer_plan_stop_sample(const veer_plan *plan, double t_stop, double tau,
+                                                          veer_sample *out);
+
 #ifdef __cplusplus
 }
 #endif

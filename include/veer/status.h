@@ -62,7 +62,8 @@ VEER_API const char *veer_status_name(veer_status status);
     X(YAW_RATE, 7, "yaw_rate")                      \
     X(YAW_ACCEL, 8, "yaw_accel")                    \
     X(NONHOLONOMIC, 9, "no_sideways_motion")        \
-    X(PATH_END, 10, "stop_at_end")
+    X(PATH_END, 10, "stop_at_end")                  \
+    X(SPEED_ZONE, 11, "speed_zone")
 
 typedef enum {
 #define VEER_LIMIT_ENUM_(name, value, text) VEER_LIMIT_##name = value,
@@ -72,7 +73,7 @@ typedef enum {
 
 typedef struct {
     int kind;   /* a veer_limit_kind */
-    int module; /* module index for per-module limits, -1 for body limits */
+    int module; /* module index for per-module limits, zone index for speed_zone, -1 for body limits */
 } veer_limit_id;
 
 /* Writes the limit's name ("wheel_speed[2]", "body_accel") into buf, always
