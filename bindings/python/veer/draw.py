@@ -156,6 +156,10 @@ def figure(plan, title=None, footprints=14, rate_hz=None):
         ax.add_patch(Polygon(_to_world(pose, box), closed=True, fill=False, ec=edge, lw=1.1 if j in (0, len(times) - 1)
                              else 0.6, zorder=4))
         ax.add_patch(Polygon(_to_world(pose, nose), closed=True, fc=edge, ec="none", alpha=0.8, zorder=4))
+        if j % 2 == 0 or j == len(times) - 1:
+            tip = _to_world(pose, nose[1:2])[0]
+            ax.annotate("%.1f s" % t, tip, xytext=(3, -9), textcoords="offset points", fontsize=6, color=edge,
+                        zorder=6)
     # waypoints, pivot and toward points
     wps = list(req.route.waypoints)
     span = np.ptp(pts, axis=0).max() if len(pts) > 1 else 1.0
