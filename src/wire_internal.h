@@ -114,6 +114,7 @@ typedef struct {
     double ratio_b;      /* ... of b */
     double limit_excess; /* largest (b's ratio - max(1, a's ratio)) over the limit kinds */
     double duration;     /* s, |duration a - duration b| */
+    int worst_kind;      /* the veer_limit_kind of limit_excess */
 } veer_wire_figures;
 void veer__wire_compare(const veer_plan *a, const veer_plan *b, int samples, veer_wire_figures *f);
 
