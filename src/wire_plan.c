@@ -370,7 +370,7 @@ void veer__wire_compare(const veer_plan *a, const veer_plan *b, int samples, vee
         double t = T * q / (samples - 1);
         veer_sample sa, sb;
         if (veer_plan_sample(a, t, &sa) != VEER_OK || veer_plan_sample(b, t, &sb) != VEER_OK) {
-            f->position = f->angle = INFINITY;
+            f->position = f->angle = VEER_UNLIMITED;
             return;
         }
         f->position = fmax(f->position, hypot(sa.pose[0] - sb.pose[0], sa.pose[1] - sb.pose[1]));
@@ -465,7 +465,7 @@ static int choose_knots(const veer_plan *plan, int j, double ev, double es, doub
             double h = fmin(sj - si, s[best + 1] - sj); /* this interval and the shortest the next can be */
             double dv = fmin(0.5 * ev, 0.25 * eu * h / fmax((double)kb.cv * V_STEP, V_STEP));
             int64_t c0 = kb.cv, r = (int64_t)floor(dv / V_STEP), c_best = c0;
-            double e_best = INFINITY;
+            double e_best = VEER_UNLIMITED;
             for (int64_t c = c0 - r; c <= c0 + r; c++) {
                 if (c < 1) continue;
                 double e = fabs(D + interval_time(sj - si, vi, (double)c * V_STEP) - (t[best] - t[i]));
@@ -488,7 +488,7 @@ static int choose_knots(const veer_plan *plan, int j, double ev, double es, doub
 /* A step small against the plan's shortest grid interval h: below
  * h / 256, from the ladder 1e-5, 5e-6, 2e-6, 1e-6, ... */
 static double quantum(const veer_plan *plan) {
-    double h = INFINITY;
+    double h = VEER_UNLIMITED;
     for (int j = 0; j < plan->segment_count; j++)
         for (int k = plan->segs[j].k0; k < plan->segs[j].k1; k++) h = fmin(h, plan->s[k + 1] - plan->s[k]);
     double q = QUANTUM;
