@@ -419,7 +419,7 @@ Test(wire_values, bad_values_are_named) {
     cr_expect(strstr(d.message, "track_width") != NULL, "%s", d.message);
     md.has_track_width = false;
     md.has_wheel_radius = true;
-    md.wheel_radius = NAN;
+    md.wheel_radius = (double)NAN;
     cr_expect_eq(veer__wire_drive_from_pb(&md, &drive, &d), VEER_ERR_VALUE);
 
     veer_v1_Limits ml = {0};
@@ -433,9 +433,9 @@ Test(wire_values, bad_values_are_named) {
     cr_expect_eq(veer__wire_limits_from_pb(&ml, 4, &lim, &d), VEER_ERR_VALUE);
     ml.modules_count = 0;
     ml.has_body_speed = true;
-    ml.body_speed = -INFINITY;
+    ml.body_speed = -(double)INFINITY;
     cr_expect_eq(veer__wire_limits_from_pb(&ml, 4, &lim, &d), VEER_ERR_VALUE);
-    ml.body_speed = INFINITY; /* + infinity is the same as unset */
+    ml.body_speed = (double)INFINITY; /* + infinity is the same as unset */
     cr_expect_eq(veer__wire_limits_from_pb(&ml, 4, &lim, &d), VEER_OK);
 
     veer_v1_Route *mr = calloc(1, sizeof *mr);
@@ -452,7 +452,7 @@ Test(wire_values, bad_values_are_named) {
     mr->waypoints_count = 3; /* one left over */
     cr_expect_eq(veer__wire_route_from_pb(mr, 4, route, &d), VEER_ERR_VALUE);
     mr->waypoints_count = 2;
-    mr->waypoints[1].y = NAN;
+    mr->waypoints[1].y = (double)NAN;
     cr_expect_eq(veer__wire_route_from_pb(mr, 4, route, &d), VEER_ERR_VALUE);
     cr_expect_eq(d.waypoint, 1);
     mr->waypoints[1].y = 1.0;
@@ -730,7 +730,7 @@ Test(wire_plan, setpoint_table_matches_the_plan_table) {
             cr_assert_eq(mods[i].c[3].v[r], o->modules[i].wheel_accel);
         }
     }
-    cr_expect_eq(veer_plan_table_pb(w->plan_bytes, w->plan_size, NAN, buf, need, &got), VEER_ERR_VALUE);
+    cr_expect_eq(veer_plan_table_pb(w->plan_bytes, w->plan_size, (double)NAN, buf, need, &got), VEER_ERR_VALUE);
     cr_expect_eq(veer_plan_table_pb(w->plan_bytes, w->plan_size, -5.0, buf, need, &got), VEER_ERR_VALUE);
     for (int c = 0; c < 9; c++) free_column(&col[c]);
     for (int i = 0; i <= VEER_MAX_MODULES; i++)
