@@ -86,7 +86,7 @@ veer_status veer_plan_request_pb(const uint8_t *request, size_t request_size, ui
     rep->library_version = VEER_VERSION_HEX;
     veer_status st = veer__wire_decode(veer_v1_PlanRequest_fields, &w->req, request, request_size, "request", &diag);
     if (st == VEER_OK) st = plan_request(w, &plan, &diag);
-    if (st == VEER_OK) st = veer__wire_plan_to_pb(plan, w->req.cart_id, &rep->plan, &diag);
+    if (st == VEER_OK) st = veer__wire_plan_to_pb(plan, &w->req, &rep->plan, &diag);
     if (st == VEER_OK) {
         rep->status = (veer_v1_Status)veer__wire_status_to_pb(VEER_OK);
         rep->has_diagnostic = true;

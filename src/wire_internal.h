@@ -72,10 +72,14 @@ void veer__sha256_final(veer_sha256 *c, uint8_t digest[32]);
 
 /* ---- wire_plan.c: plans <-> Plan messages -------------------------------- */
 
-/* Fills m with the plan's canonical Plan message: drive, limits, route,
- * options, the compressed profile (checked against the plan by sampling),
- * duration, length, cart_id and the content hash. */
-veer_status veer__wire_plan_to_pb(const veer_plan *plan, const char *cart_id, veer_v1_Plan *m, veer_diag *diag);
+/* Fills m with the plan's Plan message: drive, limits, route, options, the
+ * compressed profile (checked against the plan by sampling), duration,
+ * length, cart_id and the content hash. With request (the checked request
+ * the plan was made from) its drive, limits and route messages are carried
+ * as they were phrased; otherwise the canonical ones are written. Options
+ * are always written in full. */
+veer_status veer__wire_plan_to_pb(const veer_plan *plan, const veer_v1_PlanRequest *request, veer_v1_Plan *m,
+                                  veer_diag *diag);
 
 /* SHA-256 of m's encoding with content_hash left empty (m is restored). */
 veer_status veer__wire_plan_hash(veer_v1_Plan *m, uint8_t digest[32]);

@@ -556,22 +556,28 @@ static int samples_for(double duration) {
  * between its sample times. */
 #define MARGIN 0.9
 
-veer_status veer__wire_plan_to_pb(const veer_plan *plan, const char *cart_id, veer_v1_Plan *m, veer_diag *diag) {
+veer_status veer__wire_plan_to_pb(const veer_plan *plan, const veer_v1_PlanRequest *request, veer_v1_Plan *m,
+                                  veer_diag *diag) {
     memset(m, 0, sizeof *m);
     m->schema_version = VEER_WIRE_SCHEMA_VERSION;
     m->library_version = VEER_VERSION_HEX;
     m->path_model = VEER_WIRE_PATH_MODEL;
     m->has_drive = m->has_limits = m->has_route = m->has_options = m->has_profile = true;
-    veer__wire_drive_to_pb(&plan->drive, &m->drive);
-    veer__wire_limits_to_pb(&plan->limits, plan->module_count, &m->limits);
-    veer__wire_route_to_pb(&plan->route, plan->module_count, &m->route);
-    veer__wire_options_to_pb(&plan->options, &m->options);
-    if (cart_id) {
+    veer__wire_options_to_pb(&plan->options, &m->options); /* always explicit: grid size and polygon */
+    if (request) {
+        m->drive = request->drive;
+        if (request->has_limits) m->limits = request->limits;
+        m->route = request->route;
+        const char *cart_id = request->cart_id;
         size_t n = strlen(cart_id);
         if (n >= sizeof m->cart_id || !veer__wire_utf8_ok(cart_id))
             return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
                               "cart_id must be UTF-8 of at most %zu bytes", sizeof m->cart_id - 1);
         memcpy(m->cart_id, cart_id, n + 1);
+    } else {
+        veer__wire_drive_to_pb(&plan->drive, &m->drive);
+        veer__wire_limits_to_pb(&plan->limits, plan->module_count, &m->limits);
+        veer__wire_route_to_pb(&plan->route, plan->module_count, &m->route);
     }
 
     size_t wb = VEER__WIRE_PLAN_WORK_BYTES, tb = (size_t)plan->n * sizeof(qknot);
