@@ -37,27 +37,37 @@ void veer__module_velocity(const veer_drive_def *drive, int i, const veer_point_
 
 static int set(double v) { return isfinite(v); }
 
+static void polygon_init(veer_polygon *pg, int sides, double radius) {
+    pg->faces = sides / 2;
+    /* Faces of the polygon inscribed in the circle of radius `radius`, with a
+     * vertex on the tangent: normals at odd multiples of pi / sides. */
+    for (int j = 0; j < pg->faces && j < VEER_MAX_POLYGON_FACES; j++) {
+        double ang = (2 * j + 1) * VEER_PI / sides;
+        pg->c[j] = cos(ang);
+        pg->s[j] = sin(ang);
+        /* the face joins vertices j and j + 1, at heights r sin(2 pi j / sides) ... */
+        double h0 = sin(2.0 * VEER_PI * j / sides), h1 = sin(2.0 * VEER_PI * (j + 1) / sides);
+        double h = h0 < h1 ? h0 : h1;
+        pg->h[j] = h < 1e-12 ? 0.0 : h; /* sin(pi) is not exactly 0 */
+    }
+    pg->r = radius * cos(VEER_PI / sides);
+    pg->radius = radius;
+}
+
 void veer__row_ctx_init(veer_row_ctx *ctx, const veer_drive_def *drive, const veer_limits *limits,
                         const veer_plan_options *opt) {
     ctx->drive = drive;
     ctx->limits = limits;
     ctx->module_count = veer_drive_module_count(drive);
-    int sides = opt->accel_polygon_sides;
-    ctx->faces = sides / 2;
-    /* Faces of the polygon inscribed in the circle of radius body_accel,
-     * with a vertex on the tangent: normals at odd multiples of pi / sides. */
-    for (int j = 0; j < ctx->faces && j < VEER_MAX_POLYGON_FACES; j++) {
-        double ang = (2 * j + 1) * VEER_PI / sides;
-        ctx->face_c[j] = cos(ang);
-        ctx->face_s[j] = sin(ang);
-        /* the face joins vertices j and j + 1, at heights A sin(2 pi j / sides) ... */
-        double h0 = sin(2.0 * VEER_PI * j / sides), h1 = sin(2.0 * VEER_PI * (j + 1) / sides);
-        double h = h0 < h1 ? h0 : h1;
-        ctx->face_h[j] = h < 1e-12 ? 0.0 : limits->body_accel * h; /* sin(pi) is not exactly 0 */
-    }
-    ctx->face_r = limits->body_accel * cos(VEER_PI / sides);
+    polygon_init(&ctx->accel, opt->accel_polygon_sides, limits->body_accel);
+    polygon_init(&ctx->traction, opt->traction_polygon_sides, 1.0);
     ctx->linear = veer__drive_wheel_matrix(drive, ctx->J) > 0;
-    ctx->m = ctx->faces + 2 + 2 * ctx->module_count;
+    ctx->degraded = 0;
+    for (int i = 0; i < ctx->module_count; i++) {
+        veer__module_position(drive, i, ctx->pos[i]);
+        ctx->degraded |= drive->modules[i].out;
+    }
+    ctx->m = ctx->accel.faces + 2 + ctx->module_count * (4 + ctx->traction.faces);
 }
 
 static void tighten(double *xmax, veer_limit_id *id, double bound, veer_limit_id which) {
@@ -81,36 +91,81 @@ static int accel_rows(veer_row *rows, double f, double df, double limit, veer_li
     return 2;
 }
 
-/* Body acceleration |p' u + p'' x| <= A: a polygon inscribed in the circle,
- * built in the path's tangent frame with a vertex on the tangent, so that
- * straight-line braking and accelerating use the full limit. The normal
- * acceleration an_x * x has a known sign (x >= 0), so only the faces on its
- * side can bind, and of those only the faces that reach down to the highest
- * normal acceleration the point's speed bound xmax allows. */
-static int accel_polygon_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double xmax, veer_row *rows) {
-    const double *dq = pk->dq, *ddq = pk->ddq;
-    double sp = hypot(dq[0], dq[1]);
-    if (!set(ctx->limits->body_accel) || !(sp > 0.0 || hypot(ddq[0], ddq[1]) > 0.0)) return 0;
+/* |p' u + p'' x| <= R for a point with path derivatives p', p'' (world):
+ * a polygon inscribed in the circle, built in the path's tangent frame with
+ * a vertex on the tangent, so that straight-line braking and accelerating
+ * use the full limit. The normal acceleration an_x * x has a known sign
+ * (x >= 0), so only the faces on its side can bind, and of those only the
+ * faces that reach down to the highest normal acceleration the point's
+ * speed bound xmax allows. radius scales the polygon (R = pg->radius * scale). */
+static int polygon_rows(const veer_polygon *pg, double scale, const double p1[2], const double p2[2], double xmax,
+                        veer_limit_id id, veer_row *rows) {
+    double sp = hypot(p1[0], p1[1]);
+    if (!(sp > 0.0 || hypot(p2[0], p2[1]) > 0.0)) return 0;
     double tx = 1.0, ty = 0.0;
     if (sp > 0.0) {
-        tx = dq[0] / sp;
-        ty = dq[1] / sp;
+        tx = p1[0] / sp;
+        ty = p1[1] / sp;
     }
-    double at_u = sp, at_x = ddq[0] * tx + ddq[1] * ty; /* tangential: at_u u + at_x x */
-    double an_x = -ddq[0] * ty + ddq[1] * tx;            /* normal: an_x x */
+    double at_u = sp, at_x = p2[0] * tx + p2[1] * ty; /* tangential: at_u u + at_x x */
+    double an_x = -p2[0] * ty + p2[1] * tx;            /* normal: an_x x */
     double side = an_x >= 0.0 ? 1.0 : -1.0;
-    double an_max = fabs(an_x) * xmax; /* inf * 0 is NaN: then every face is kept */
-    veer_limit_id id = veer__limit(VEER_LIMIT_BODY_ACCEL, -1);
+    double an_max = fabs(an_x) * xmax / (pg->radius * scale); /* inf * 0 is NaN: then every face is kept */
     int m = 0;
-    for (int j = 0; j < ctx->faces; j++) {
-        if (ctx->face_h[j] > an_max * (1.0 + 1e-9)) continue;
-        double ca = ctx->face_c[j], sa = side * ctx->face_s[j];
-        rows[m++] = (veer_row){ca * at_u, ca * at_x + sa * an_x, ctx->face_r, id};
+    for (int j = 0; j < pg->faces; j++) {
+        if (pg->h[j] > an_max * (1.0 + 1e-9)) continue;
+        double ca = pg->c[j], sa = side * pg->s[j];
+        rows[m++] = (veer_row){ca * at_u, ca * at_x + sa * an_x, pg->r * scale, id};
     }
     return m;
 }
 
-int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, veer_row *rows, double *xmax,
+/* Path derivatives (world) of the contact point of a module at body offset r. */
+static void contact_point(const veer_point_kin *pk, const double r[2], double p1[2], double p2[2]) {
+    double c = cos(pk->q[2]), sn = sin(pk->q[2]);
+    double wx = c * r[0] - sn * r[1], wy = sn * r[0] + c * r[1]; /* R(yaw) r */
+    double w = pk->dq[2], dw = pk->ddq[2];
+    /* p_i = p + R r:  p_i' = p' + yaw' J R r,  p_i'' = p'' + yaw'' J R r - yaw'^2 R r */
+    p1[0] = pk->dq[0] - w * wy;
+    p1[1] = pk->dq[1] + w * wx;
+    p2[0] = pk->ddq[0] - dw * wy - w * w * wx;
+    p2[1] = pk->ddq[1] + dw * wx - w * w * wy;
+}
+
+/* Rows of one module with wheel rate f sdot (f >= 0) and rate of change
+ * f u + df x: speed, acceleration, motor curve (linearized at x_lin, see
+ * below), traction. */
+static int module_rows(const veer_row_ctx *ctx, int i, const veer_point_kin *pk, double f, double df, double x_lin,
+                       veer_row *rows, double *xmax, veer_limit_id *xmax_id) {
+    const veer_module_limits *ml = &ctx->limits->modules[i];
+    int m = 0;
+    speed_row(f, ml->wheel_rate, xmax, xmax_id, veer__limit(VEER_LIMIT_WHEEL_SPEED, i));
+    m += accel_rows(rows + m, f, df, ml->wheel_accel, veer__limit(VEER_LIMIT_WHEEL_ACCEL, i));
+    if (set(ml->motor_stall_accel) && f > 0.0) {
+        /* Driving: f u + df x <= A (1 - f sqrt(x) / w_free). sqrt is concave,
+         * so its tangent at x_lin lies above it, sqrt(x) <= sqrt(x0)/2 +
+         * x / (2 sqrt(x0)): the row is never looser than the motor curve and
+         * exact at x_lin. Braking may use the stall acceleration. */
+        veer_limit_id id = veer__limit(VEER_LIMIT_MOTOR, i);
+        double A = ml->motor_stall_accel, wf = ml->motor_free_rate;
+        double x_free = wf * wf / (f * f);
+        speed_row(f, wf, xmax, xmax_id, id);
+        double x0 = x_lin > 1e-6 * x_free ? x_lin : (x_lin > 0.0 ? 1e-6 * x_free : 0.25 * x_free);
+        if (x0 > x_free) x0 = x_free;
+        double r0 = sqrt(x0);
+        rows[m++] = (veer_row){f, df + A * f / (2.0 * wf * r0), A * (1.0 - f * r0 / (2.0 * wf)), id};
+        rows[m++] = (veer_row){-f, -df, A, id};
+    }
+    if (set(ml->traction_mu)) {
+        double p1[2], p2[2];
+        contact_point(pk, ctx->pos[i], p1, p2);
+        m += polygon_rows(&ctx->traction, ml->traction_mu * VEER_GRAVITY, p1, p2, *xmax,
+                          veer__limit(VEER_LIMIT_TRACTION, i), rows + m);
+    }
+    return m;
+}
+
+int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double x_lin, veer_row *rows, double *xmax,
                      veer_limit_id *xmax_id) {
     const veer_drive_def *drive = ctx->drive;
     const veer_limits *lim = ctx->limits;
@@ -118,28 +173,37 @@ int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, veer_row
     *xmax = VEER_UNLIMITED;
     *xmax_id = veer__limit(VEER_LIMIT_NONE, -1);
     const double *dq = pk->dq, *ddq = pk->ddq;
-    double sp = hypot(dq[0], dq[1]);
 
-    /* Body speed and yaw rate. */
-    speed_row(sp, lim->body_speed, xmax, xmax_id, veer__limit(VEER_LIMIT_BODY_SPEED, -1));
+    /* Body speed and yaw rate, yaw acceleration. */
+    speed_row(hypot(dq[0], dq[1]), lim->body_speed, xmax, xmax_id, veer__limit(VEER_LIMIT_BODY_SPEED, -1));
     speed_row(dq[2], lim->yaw_rate, xmax, xmax_id, veer__limit(VEER_LIMIT_YAW_RATE, -1));
-
     m += accel_rows(rows + m, dq[2], ddq[2], lim->yaw_accel, veer__limit(VEER_LIMIT_YAW_ACCEL, -1));
 
-    int n = ctx->module_count;
-    if (!ctx->linear) {
-        double r = drive->wheel_radius;
-        for (int i = 0; i < n; i++) {
-            const veer_module_limits *ml = &lim->modules[i];
+    if (drive->kind == VEER_DRIVE_DIFFERENTIAL) {
+        double g = hypot(pk->xi[0], pk->xi[1]) + fabs(pk->xi[2]);
+        if (fabs(pk->xi[1]) > 1e-6 * (g > 1.0 ? g : 1.0)) {
+            *xmax = 0.0;
+            *xmax_id = veer__limit(VEER_LIMIT_NONHOLONOMIC, -1);
+            return -1;
+        }
+    }
+    if (ctx->linear && ctx->degraded && veer__drive_driven(drive, pk->xi) < 2) {
+        *xmax = 0.0;
+        *xmax_id = veer__limit(VEER_LIMIT_MODULE_OUT, -1);
+        return -1;
+    }
+    for (int i = 0; i < ctx->module_count; i++) {
+        if (drive->modules[i].out) continue;
+        double f, df;
+        if (!ctx->linear) {
             double v[2], dv[2];
             veer__module_velocity(drive, i, pk, v, dv);
             double sp2 = v[0] * v[0] + v[1] * v[1], spd = sqrt(sp2);
-            speed_row(spd / r, ml->wheel_rate, xmax, xmax_id, veer__limit(VEER_LIMIT_WHEEL_SPEED, i));
             if (spd > VEER_STILL) {
                 double dphi = (v[0] * dv[1] - v[1] * dv[0]) / sp2; /* d steer / ds */
-                speed_row(dphi, ml->steer_rate, xmax, xmax_id, veer__limit(VEER_LIMIT_STEER_RATE, i));
+                speed_row(dphi, lim->modules[i].steer_rate, xmax, xmax_id, veer__limit(VEER_LIMIT_STEER_RATE, i));
             }
-            /* Wheel acceleration along the wheel's direction e: (v.e) u + (v'.e) x. */
+            /* Wheel rate along the wheel's direction e: (v.e) u + (v'.e) x. */
             double ex, ey;
             if (spd > VEER_STILL) {
                 ex = v[0] / spd;
@@ -149,28 +213,21 @@ int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, veer_row
                 ex = d > 0.0 ? dv[0] / d : 1.0;
                 ey = d > 0.0 ? dv[1] / d : 0.0;
             }
-            m += accel_rows(rows + m, spd / r, (dv[0] * ex + dv[1] * ey) / r, ml->wheel_accel,
-                            veer__limit(VEER_LIMIT_WHEEL_ACCEL, i));
-        }
-    } else {
-        const double(*J)[3] = ctx->J;
-        if (drive->kind == VEER_DRIVE_DIFFERENTIAL) {
-            double g = hypot(pk->xi[0], pk->xi[1]) + fabs(pk->xi[2]);
-            if (fabs(pk->xi[1]) > 1e-6 * (g > 1.0 ? g : 1.0)) {
-                *xmax = 0.0;
-                *xmax_id = veer__limit(VEER_LIMIT_NONHOLONOMIC, -1);
-                return -1;
+            f = spd / drive->wheel_radius;
+            df = (dv[0] * ex + dv[1] * ey) / drive->wheel_radius;
+        } else {
+            const double *J = ctx->J[i];
+            f = J[0] * pk->xi[0] + J[1] * pk->xi[1] + J[2] * pk->xi[2];
+            df = J[0] * pk->dxi[0] + J[1] * pk->dxi[1] + J[2] * pk->dxi[2];
+            if (f < 0.0) { /* the direction the wheel turns */
+                f = -f;
+                df = -df;
             }
         }
-        for (int i = 0; i < n; i++) {
-            const veer_module_limits *ml = &lim->modules[i];
-            double f = J[i][0] * pk->xi[0] + J[i][1] * pk->xi[1] + J[i][2] * pk->xi[2];
-            double df = J[i][0] * pk->dxi[0] + J[i][1] * pk->dxi[1] + J[i][2] * pk->dxi[2];
-            speed_row(f, ml->wheel_rate, xmax, xmax_id, veer__limit(VEER_LIMIT_WHEEL_SPEED, i));
-            m += accel_rows(rows + m, f, df, ml->wheel_accel, veer__limit(VEER_LIMIT_WHEEL_ACCEL, i));
-        }
+        m += module_rows(ctx, i, pk, f, df, x_lin, rows + m, xmax, xmax_id);
     }
-    m += accel_polygon_rows(ctx, pk, *xmax, rows + m);
+    if (set(lim->body_accel))
+        m += polygon_rows(&ctx->accel, 1.0, dq, ddq, *xmax, veer__limit(VEER_LIMIT_BODY_ACCEL, -1), rows + m);
     return m;
 }
 
@@ -192,11 +249,20 @@ veer_status veer__limits_check(const veer_drive_def *drive, const veer_limits *l
     if ((st = check_one(diag, lim->body_accel, veer__limit(VEER_LIMIT_BODY_ACCEL, -1), 0))) return st;
     if ((st = check_one(diag, lim->yaw_rate, veer__limit(VEER_LIMIT_YAW_RATE, -1), 0))) return st;
     if ((st = check_one(diag, lim->yaw_accel, veer__limit(VEER_LIMIT_YAW_ACCEL, -1), 0))) return st;
+    if ((st = check_one(diag, lim->body_jerk, veer__limit(VEER_LIMIT_BODY_JERK, -1), 0))) return st;
     int n = veer_drive_module_count(drive);
     for (int i = 0; i < n; i++) {
         const veer_module_limits *ml = &lim->modules[i];
         if ((st = check_one(diag, ml->wheel_rate, veer__limit(VEER_LIMIT_WHEEL_SPEED, i), 0))) return st;
         if ((st = check_one(diag, ml->wheel_accel, veer__limit(VEER_LIMIT_WHEEL_ACCEL, i), 0))) return st;
+        if ((st = check_one(diag, ml->wheel_jerk, veer__limit(VEER_LIMIT_WHEEL_JERK, i), 0))) return st;
+        if ((st = check_one(diag, ml->traction_mu, veer__limit(VEER_LIMIT_TRACTION, i), 0))) return st;
+        veer_limit_id mid = veer__limit(VEER_LIMIT_MOTOR, i);
+        if ((st = check_one(diag, ml->motor_stall_accel, mid, 0))) return st;
+        if ((st = check_one(diag, ml->motor_free_rate, mid, 0))) return st;
+        if (isfinite(ml->motor_stall_accel) != isfinite(ml->motor_free_rate))
+            return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, mid,
+                              "motor_curve[%d]: set both motor_stall_accel and motor_free_rate, or neither", i);
         if (drive->kind != VEER_DRIVE_STEERED) continue;
         if ((st = check_one(diag, ml->steer_rate, veer__limit(VEER_LIMIT_STEER_RATE, i), 0))) return st;
         veer_limit_id rid = veer__limit(VEER_LIMIT_STEER_RANGE, i);

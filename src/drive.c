@@ -105,6 +105,19 @@ veer_status veer_drive_check(const veer_drive_def *drive, veer_diag *diag) {
     if (!veer__length_ok(drive->wheel_radius))
         return VEER__DRIVE_FAIL(diag, VEER_ERR_VALUE, "wheel radius must be in [1e-4, 1e3] m, got %g",
                                 drive->wheel_radius);
+    int working = 0;
+    for (int i = 0; i < n; i++) {
+        if (drive->modules[i].out != 0 && drive->modules[i].out != 1)
+            return VEER__DRIVE_FAIL(diag, VEER_ERR_VALUE, "module %d: out must be 0 or 1, got %d", i,
+                                    drive->modules[i].out);
+        working += !drive->modules[i].out;
+    }
+    if (drive->kind == VEER_DRIVE_DIFFERENTIAL && working < 2)
+        return veer__fail(diag, VEER_ERR_INFEASIBLE, -1, -1, -1, -1.0, veer__limit(VEER_LIMIT_MODULE_OUT, -1),
+                          "a differential drive with a side out cannot drive under control");
+    if (working < 2)
+        return veer__fail(diag, VEER_ERR_INFEASIBLE, -1, -1, -1, -1.0, veer__limit(VEER_LIMIT_MODULE_OUT, -1),
+                          "only %d module%s working: at least 2 are needed", working, working == 1 ? "" : "s");
     switch (drive->kind) {
     case VEER_DRIVE_STEERED:
         st = veer__drive_steered_check(drive, diag);
@@ -134,6 +147,48 @@ int veer__drive_wheel_matrix(const veer_drive_def *drive, double J[VEER_MAX_MODU
         return veer__drive_differential_matrix(drive, J);
     default:
         return 0;
+    }
+}
+
+int veer__drive_driven(const veer_drive_def *drive, const double twist[3]) {
+    int n = veer_drive_module_count(drive), count = 0;
+    double J[VEER_MAX_MODULES][3], rate[VEER_MAX_MODULES], top = 0.0;
+    if (veer__drive_wheel_matrix(drive, J) == 0) { /* steered: every working module can push any way */
+        for (int i = 0; i < n; i++) count += !drive->modules[i].out;
+        return count;
+    }
+    /* Traction along a direction no working wheel pushes: the component of
+     * the twist in the null space of the working wheels' rows. */
+    double N[3][3] = {{0.0}}, b[3] = {0.0, 0.0, 0.0}, t[3];
+    for (int i = 0; i < n; i++) {
+        rate[i] = J[i][0] * twist[0] + J[i][1] * twist[1] + J[i][2] * twist[2];
+        if (fabs(rate[i]) > top) top = fabs(rate[i]);
+        if (drive->modules[i].out) continue;
+        for (int r = 0; r < 3; r++) {
+            b[r] += J[i][r] * rate[i];
+            for (int c = 0; c < 3; c++) N[r][c] += J[i][r] * J[i][c];
+        }
+    }
+    if (veer__drive_solve3((const double(*)[3])N, b, t) != 0) return 0; /* a direction is not driven at all */
+    for (int i = 0; i < n; i++) count += !drive->modules[i].out && fabs(rate[i]) > 1e-3 * top;
+    return count;
+}
+
+void veer__module_position(const veer_drive_def *drive, int i, double r[2]) {
+    static const double sign[4][2] = {{1.0, 1.0}, {1.0, -1.0}, {-1.0, -1.0}, {-1.0, 1.0}};
+    switch (drive->kind) {
+    case VEER_DRIVE_MECANUM: /* front-left, front-right, rear-right, rear-left */
+        r[0] = sign[i & 3][0] * drive->half_wheelbase;
+        r[1] = sign[i & 3][1] * drive->half_track;
+        break;
+    case VEER_DRIVE_DIFFERENTIAL: /* left, right */
+        r[0] = 0.0;
+        r[1] = (i == 0 ? 0.5 : -0.5) * drive->track_width;
+        break;
+    default:
+        r[0] = drive->modules[i].x;
+        r[1] = drive->modules[i].y;
+        break;
     }
 }
 
@@ -193,13 +248,23 @@ veer_status veer_drive_inverse(const veer_drive_def *drive, const double twist_b
         double J[VEER_MAX_MODULES][3];
         veer__drive_wheel_matrix(drive, J);
         for (int i = 0; i < n; i++) {
-            w[i] = J[i][0] * twist_body[0] + J[i][1] * twist_body[1] + J[i][2] * twist_body[2];
+            w[i] = drive->modules[i].out ? 0.0
+                                         : J[i][0] * twist_body[0] + J[i][1] * twist_body[1] + J[i][2] * twist_body[2];
             s[i] = drive->kind == VEER_DRIVE_OMNI ? drive->modules[i].drive_angle : 0.0;
         }
     }
     if (!all_finite(s, n) || !all_finite(w, n)) return VEER_ERR_VALUE; /* overflow from a huge twist */
     memcpy(steer, s, (size_t)n * sizeof s[0]);
     memcpy(wheel_rate, w, (size_t)n * sizeof w[0]);
+    return VEER_OK;
+}
+
+veer_status veer_drive_driven_wheels(const veer_drive_def *drive, const double twist_body[3], int *count) {
+    if (!drive || !twist_body || !count) return VEER_ERR_NULL;
+    veer_status st = veer_drive_check(drive, NULL);
+    if (st != VEER_OK) return st;
+    if (!all_finite(twist_body, 3)) return VEER_ERR_VALUE;
+    *count = veer__drive_driven(drive, twist_body);
     return VEER_OK;
 }
 
@@ -222,7 +287,7 @@ veer_status veer_drive_forward(const veer_drive_def *drive, const double *steer,
         double J[VEER_MAX_MODULES][3], N[3][3] = {{0.0}}, b[3] = {0.0, 0.0, 0.0};
         veer__drive_wheel_matrix(drive, J);
         for (int i = 0; i < n; i++)
-            for (int r = 0; r < 3; r++) {
+            for (int r = 0; r < 3 && !drive->modules[i].out; r++) {
                 b[r] += J[i][r] * wheel_rate[i];
                 for (int c = 0; c < 3; c++) N[r][c] += J[i][r] * J[i][c];
             }

@@ -37,7 +37,7 @@ void veer__drive_steered_inverse(const veer_drive_def *drive, const double twist
         const double ux = vx - wz * drive->modules[i].y;
         const double uy = vy + wz * drive->modules[i].x;
         const double speed = hypot(ux, uy);
-        if (!(speed >= STAND_SPEED)) {
+        if (!(speed >= STAND_SPEED) || drive->modules[i].out) { /* standing, or out of service: keep the angle */
             steer[i] = prev_steer ? prev_steer[i] : 0.0;
             wheel_rate[i] = 0.0;
             continue;
@@ -66,6 +66,7 @@ int veer__drive_steered_forward(const veer_drive_def *drive, const double *steer
     double N[3][3] = {{0.0}}, b[3] = {0.0, 0.0, 0.0};
     const double r = drive->wheel_radius;
     for (int i = 0; i < drive->module_count; i++) {
+        if (drive->modules[i].out) continue;
         const double x = drive->modules[i].x, y = drive->modules[i].y;
         const double tread = wheel_rate[i] * r;
         const double ux = tread * cos(steer[i]), uy = tread * sin(steer[i]);

@@ -47,6 +47,13 @@ double veer__wrap(double a);
 /* Linear drives (mecanum, omni, differential): wheel_rate = J * (vx, vy, wz).
  * Writes veer_drive_module_count() rows; returns 0 for steered drives. */
 int veer__drive_wheel_matrix(const veer_drive_def *drive, double J[VEER_MAX_MODULES][3]);
+/* How many working wheels drive the body twist (steered: working modules);
+ * 0 when the working wheels cannot drive some component of it at all. A
+ * motion that fewer than two working wheels drive has lost its traction. */
+int veer__drive_driven(const veer_drive_def *drive, const double twist[3]);
+/* Where module i touches the ground, body frame, m (mecanum and differential
+ * from their dimensions; a differential side at its track's midpoint). */
+void veer__module_position(const veer_drive_def *drive, int i, double r[2]);
 
 /* Fails a drive call: no leg, waypoint, grid point, path position or limit. */
 #define VEER__DRIVE_FAIL(diag, status, ...) \

@@ -17,8 +17,12 @@ veer_limits veer_default_limits(void) {
         l.modules[i].steer_rate = VEER_UNLIMITED;
         l.modules[i].steer_min = -VEER_UNLIMITED;
         l.modules[i].steer_max = VEER_UNLIMITED;
+        l.modules[i].traction_mu = VEER_UNLIMITED;
+        l.modules[i].motor_stall_accel = VEER_UNLIMITED;
+        l.modules[i].motor_free_rate = VEER_UNLIMITED;
+        l.modules[i].wheel_jerk = VEER_UNLIMITED;
     }
-    l.body_speed = l.body_accel = l.yaw_rate = l.yaw_accel = VEER_UNLIMITED;
+    l.body_speed = l.body_accel = l.yaw_rate = l.yaw_accel = l.body_jerk = VEER_UNLIMITED;
     return l;
 }
 
@@ -27,6 +31,8 @@ veer_plan_options veer_default_plan_options(void) {
     memset(&o, 0, sizeof o);
     o.grid_points = 1000;
     o.accel_polygon_sides = 32;
+    o.traction_polygon_sides = 16;
+    o.duration_target = 0.0;
     return o;
 }
 
@@ -35,9 +41,18 @@ static veer_status check_options(const veer_plan_options *o, veer_diag *diag) {
     if (o->grid_points < VEER_GRID_MIN || o->grid_points > VEER_GRID_MAX)
         return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, none, "grid_points must be in [%d, %d], got %d",
                           VEER_GRID_MIN, VEER_GRID_MAX, o->grid_points);
-    if (o->accel_polygon_sides < 8 || o->accel_polygon_sides > 256 || o->accel_polygon_sides % 2)
+    if (o->accel_polygon_sides < 8 || o->accel_polygon_sides > 2 * VEER_MAX_POLYGON_FACES || o->accel_polygon_sides % 2)
         return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, none,
-                          "accel_polygon_sides must be even and in [8, 256], got %d", o->accel_polygon_sides);
+                          "accel_polygon_sides must be even and in [8, %d], got %d", 2 * VEER_MAX_POLYGON_FACES,
+                          o->accel_polygon_sides);
+    if (o->traction_polygon_sides < 8 || o->traction_polygon_sides > 2 * VEER_MAX_POLYGON_FACES ||
+        o->traction_polygon_sides % 2)
+        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, none,
+                          "traction_polygon_sides must be even and in [8, %d], got %d", 2 * VEER_MAX_POLYGON_FACES,
+                          o->traction_polygon_sides);
+    if (!isfinite(o->duration_target) || o->duration_target < 0.0)
+        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, none,
+                          "duration_target must be >= 0 s (0: as fast as possible), got %g", o->duration_target);
     return VEER_OK;
 }
 
@@ -130,33 +145,59 @@ static void apply_speed_caps(const veer_plan *plan, int j, int n, const double *
     }
 }
 
-static veer_status solve_segment(veer_plan *plan, int j, workspace *ws, veer_diag *diag) {
+/* Does any module have a motor curve? Its rows are linearized, so the solve
+ * is repeated at the profile it found. */
+static int has_motor_curve(const veer_plan *plan) {
+    for (int i = 0; i < plan->module_count; i++)
+        if (isfinite(plan->limits.modules[i].motor_stall_accel) && !plan->drive.modules[i].out) return 1;
+    return 0;
+}
+
+/* Rows, solve and times of segment j with the limits behind ctx, starting at
+ * sdot^2 = x_start. With a motor curve the solve repeats twice more with the
+ * curve linearized at the previous profile: every row stays conservative
+ * and the last one is exact where the profile runs. */
+static veer_status solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx, double x_start, workspace *ws,
+                                 veer_diag *diag) {
     veer_plan_segment *sg = &plan->segs[j];
     const veer_path_segment *ps = &plan->path.segments[j];
-    int n = sg->k1 - sg->k0 + 1, m = plan->rows.m;
+    int n = sg->k1 - sg->k0 + 1, m = ctx->m;
     double *s = plan->s + sg->k0, *x = plan->x + sg->k0;
-    for (int k = 0; k < n; k++) {
-        veer_point_kin pk;
-        veer__point_kin(&plan->path, j, s[k], &pk);
-        memcpy(ws->xi + 3 * k, pk.xi, sizeof pk.xi);
-        int c = veer__point_rows(&plan->rows, &pk, ws->rows + (size_t)k * (size_t)m, &ws->xmax[k], &ws->xmax_id[k]);
-        if (c < 0)
-            return veer__fail(diag, VEER_ERR_INFEASIBLE, ps->leg, ps->waypoint, sg->k0 + k, s[k], ws->xmax_id[k],
-                              "leg %d: a differential drive cannot move sideways (at s = %.3f); use heading "
-                              "tangent or a spin leg",
-                              ps->leg, s[k]);
-        ws->row_count[k] = c;
-    }
-    if (plan->cap.cap) apply_speed_caps(plan, j, n, s, ws);
+    int passes = has_motor_curve(plan) ? 3 : 1;
     veer_topp_problem p = {n, s, ws->xmax, ws->xmax_id, ws->rows, ws->row_count, m};
-    int bad = 0;
-    veer_status st = veer__topp_solve(&p, x, ws->K, &bad);
-    if (st != VEER_OK) {
-        char name[48];
-        veer_limit_id id = ws->xmax_id[bad];
-        veer_limit_name(id, name, sizeof name);
-        return veer__fail(diag, st, ps->leg, ps->waypoint, sg->k0 + bad, s[bad], id,
-                          "leg %d: no motion fits the limits at s = %.3f (limit %s)", ps->leg, s[bad], name);
+    for (int pass = 0; pass < passes; pass++) {
+        for (int k = 0; k < n; k++) {
+            veer_point_kin pk;
+            veer__point_kin(&plan->path, j, s[k], &pk);
+            memcpy(ws->xi + 3 * k, pk.xi, sizeof pk.xi);
+            int c = veer__point_rows(ctx, &pk, pass ? x[k] : 0.0, ws->rows + (size_t)k * (size_t)m, &ws->xmax[k],
+                                     &ws->xmax_id[k]);
+            if (c < 0 && ws->xmax_id[k].kind == VEER_LIMIT_MODULE_OUT)
+                return veer__fail(diag, VEER_ERR_INFEASIBLE, ps->leg, ps->waypoint, sg->k0 + k, s[k], ws->xmax_id[k],
+                                  "leg %d: at s = %.3f the motion needs traction the working wheels cannot give "
+                                  "(fewer than two of them drive it) with a module out",
+                                  ps->leg, s[k]);
+            if (c < 0)
+                return veer__fail(diag, VEER_ERR_INFEASIBLE, ps->leg, ps->waypoint, sg->k0 + k, s[k], ws->xmax_id[k],
+                                  "leg %d: a differential drive cannot move sideways (at s = %.3f); use heading "
+                                  "tangent or a spin leg",
+                                  ps->leg, s[k]);
+            ws->row_count[k] = c;
+        }
+        if (plan->cap.cap) apply_speed_caps(plan, j, n, s, ws);
+        int bad = 0;
+        veer_status st = veer__topp_solve(&p, x_start, x, ws->K, &bad);
+        if (st != VEER_OK && bad == 0 && x_start > 0.0)
+            return veer__fail(diag, st, ps->leg, ps->waypoint, sg->k0, s[0], veer__limit(VEER_LIMIT_START_STATE, -1),
+                              "leg %d: from %.3f m/s there is no room to stop before s = %.3f within the limits",
+                              ps->leg, sqrt(x_start) * hypot(ws->xi[0], ws->xi[1]), s[n - 1]);
+        if (st != VEER_OK) {
+            char name[48];
+            veer_limit_id id = ws->xmax_id[bad];
+            veer_limit_name(id, name, sizeof name);
+            return veer__fail(diag, st, ps->leg, ps->waypoint, sg->k0 + bad, s[bad], id,
+                              "leg %d: no motion fits the limits at s = %.3f (limit %s)", ps->leg, s[bad], name);
+        }
     }
     double t = 0.0;
     for (int k = 0; k < n; k++) {
@@ -168,9 +209,196 @@ static veer_status solve_segment(veer_plan *plan, int j, workspace *ws, veer_dia
                               ps->leg, s[k]);
         plan->binding[sg->k0 + k] = veer__topp_binding(&p, x, k);
         if (k > 0) t += 2.0 * (s[k] - s[k - 1]) / (sqrt(x[k - 1]) + sqrt(x[k]));
-        plan->t[sg->k0 + k] = t; /* relative to the segment's motion start; shifted below */
+        plan->t[sg->k0 + k] = t; /* relative to the segment's motion start */
     }
     sg->move_time = t;
+    return VEER_OK;
+}
+
+/* When the motion of segment j ends (the cart comes to rest at its end). */
+static double arrival_of(const veer_plan *plan, int j) {
+    double t = 0.0;
+    for (int i = 0; i <= j; i++) {
+        t += plan->segs[i].resteer_time + plan->segs[i].move_time;
+        if (i < j) t += plan->segs[i].dwell;
+    }
+    return t;
+}
+
+/* The limit that binds over most of segments a..b (kind NONE if none does). */
+static veer_limit_id main_binding(const veer_plan *plan, int a, int b) {
+    veer_limit_id ids[64];
+    double share[64];
+    int n = 0;
+    veer_limit_id best = veer__limit(VEER_LIMIT_NONE, -1);
+    double top = 0.0;
+    for (int j = a; j <= b; j++)
+        for (int k = plan->segs[j].k0; k < plan->segs[j].k1; k++) {
+            veer_limit_id id = plan->binding[k];
+            if (id.kind == VEER_LIMIT_NONE) continue;
+            int f = 0;
+            while (f < n && (ids[f].kind != id.kind || ids[f].module != id.module)) f++;
+            if (f == n) {
+                if (n == 64) continue;
+                ids[n] = id;
+                share[n++] = 0.0;
+            }
+            share[f] += plan->s[k + 1] - plan->s[k];
+            if (share[f] > top) {
+                top = share[f];
+                best = id;
+            }
+        }
+    return best;
+}
+
+/* Re-solves segments a..b with body speed and yaw rate capped at lambda
+ * times their peaks v0, w0 on the fastest plan (a cap of 0 peak is left
+ * off); returns the arrival at the end of b. */
+static veer_status paced(veer_plan *plan, int a, int b, double lambda, double v0, double w0, workspace *ws,
+                         double *arrival, veer_diag *diag) {
+    veer_limits lim = plan->limits;
+    if (v0 > 0.0 && lambda * v0 < lim.body_speed) lim.body_speed = lambda * v0;
+    if (w0 > 0.0 && lambda * w0 < lim.yaw_rate) lim.yaw_rate = lambda * w0;
+    veer_row_ctx ctx;
+    veer__row_ctx_init(&ctx, &plan->drive, &lim, &plan->options);
+    for (int j = a; j <= b; j++) {
+        veer_status st = solve_segment(plan, j, &ctx, j == 0 ? plan->x_start : 0.0, ws, diag);
+        if (st != VEER_OK) return st;
+    }
+    *arrival = arrival_of(plan, b);
+    return VEER_OK;
+}
+
+/* Timed stops and a duration target: each stretch of segments that ends at
+ * a timed stop is slowed, when the fastest plan would arrive early, by a
+ * common cap on body speed and yaw rate (lambda times the stretch's peaks,
+ * lambda found by bisection) so the cart still accelerates and brakes at
+ * its limits; arriving late is refused with the lateness and the limit that
+ * binds over most of the stretch. */
+static veer_status meet_arrivals(veer_plan *plan, workspace *ws, veer_diag *diag) {
+    const veer_path *path = &plan->path;
+    for (int w = 0; w < plan->route.waypoint_count; w++) {
+        if (!plan->route.waypoints[w].timed) continue;
+        int found = 0;
+        for (int j = 0; j < path->segment_count && !found; j++) found = path->segments[j].waypoint == w;
+        if (!found)
+            return veer__fail(diag, VEER_ERR_VALUE, -1, w, -1, -1.0, veer__limit(VEER_LIMIT_NONE, -1),
+                              "waypoint %d is timed but the cart passes through it: make it a stop", w);
+    }
+    int first = 0;
+    double last_target = -1.0;
+    for (int j = 0; j < path->segment_count; j++) {
+        const veer_path_segment *ps = &path->segments[j];
+        double T;
+        int wpi = ps->waypoint;
+        if (wpi >= 0 && plan->route.waypoints[wpi].timed && (j + 1 == path->segment_count ||
+                                                          path->segments[j + 1].waypoint != wpi)) {
+            T = plan->route.waypoints[wpi].arrival;
+        } else if (j + 1 == path->segment_count && plan->options.duration_target > 0.0) {
+            T = plan->options.duration_target - plan->segs[j].dwell;
+            wpi = -1;
+        } else {
+            continue;
+        }
+        if (!(T > last_target))
+            return veer__fail(diag, VEER_ERR_VALUE, ps->leg, wpi, -1, -1.0, veer__limit(VEER_LIMIT_NONE, -1),
+                              "leg %d: arrival %.3f s is not after the previous timed arrival %.3f s", ps->leg, T,
+                              last_target);
+        double fast = arrival_of(plan, j);
+        if (fast > T + 1e-6) {
+            veer_limit_id id = main_binding(plan, first, j);
+            char name[48];
+            veer_limit_name(id, name, sizeof name);
+            veer_status st = veer__fail(diag, VEER_ERR_LATE, ps->leg, wpi, -1, ps->s_end, id,
+                                        "leg %d: %s at %.3f s is %.3f s too early for the fastest plan (%.3f s); "
+                                        "%s binds most of the way",
+                                        ps->leg, wpi >= 0 ? "the timed stop" : "the duration target", T, fast - T,
+                                        fast, name);
+            if (diag) diag->value = fast - T;
+            return st;
+        }
+        if (fast < T - 1e-5) {
+            double v0 = 0.0, w0 = 0.0;
+            for (int q = first; q <= j; q++)
+                for (int k = plan->segs[q].k0; k <= plan->segs[q].k1; k++) {
+                    double qq[3], dq[3], ddq[3];
+                    veer__path_eval(path, q, plan->s[k], qq, dq, ddq);
+                    double v = sqrt(plan->x[k]);
+                    v0 = fmax(v0, v * hypot(dq[0], dq[1]));
+                    w0 = fmax(w0, v * fabs(dq[2]));
+                }
+            double lo = 1.0, hi = 1.0, arr = fast;
+            veer_status st = VEER_OK;
+            for (int it = 0; it < 60 && arr < T; it++) { /* bracket: slow enough */
+                hi = lo;
+                lo *= 0.5;
+                if ((st = paced(plan, first, j, lo, v0, w0, ws, &arr, diag))) return st;
+            }
+            for (int it = 0; it < 60 && fabs(arr - T) > 1e-5; it++) {
+                double mid = 0.5 * (lo + hi);
+                if ((st = paced(plan, first, j, mid, v0, w0, ws, &arr, diag))) return st;
+                if (arr > T)
+                    lo = mid;
+                else
+                    hi = mid;
+            }
+        }
+        last_target = T;
+        first = j + 1;
+    }
+    return VEER_OK;
+}
+
+/* Re-planning on the move: the start twist must be the path's own direction
+ * of motion at the start; returns sdot^2 there (0 at rest). */
+static veer_status start_state(veer_plan *plan, double *x_start, veer_diag *diag) {
+    const veer_route *r = &plan->route;
+    *x_start = 0.0;
+    if (!r->has_start_twist) return VEER_OK;
+    veer_limit_id id = veer__limit(VEER_LIMIT_START_STATE, -1);
+    const double *tw = r->start_twist;
+    if (!isfinite(tw[0]) || !isfinite(tw[1]) || !isfinite(tw[2]))
+        return veer__fail(diag, VEER_ERR_VALUE, 0, -1, -1, -1.0, id, "start_twist is not finite");
+    double mag = hypot(hypot(tw[0], tw[1]), tw[2]);
+    if (mag < 1e-9) return VEER_OK;
+    veer_point_kin pk;
+    veer__point_kin(&plan->path, 0, plan->path.segments[0].s_begin, &pk);
+    double xi2 = pk.xi[0] * pk.xi[0] + pk.xi[1] * pk.xi[1] + pk.xi[2] * pk.xi[2];
+    double sdot = xi2 > 0.0 ? (tw[0] * pk.xi[0] + tw[1] * pk.xi[1] + tw[2] * pk.xi[2]) / xi2 : 0.0;
+    double ex = tw[0] - pk.xi[0] * sdot, ey = tw[1] - pk.xi[1] * sdot, ez = tw[2] - pk.xi[2] * sdot;
+    double lin = hypot(tw[0], tw[1]), lin_path = hypot(pk.xi[0], pk.xi[1]);
+    double dang = lin > 1e-9 && lin_path > 0.0
+                      ? fabs(atan2(tw[0] * pk.xi[1] - tw[1] * pk.xi[0], tw[0] * pk.xi[0] + tw[1] * pk.xi[1]))
+                      : 0.0;
+    if (!(sdot > 0.0) || hypot(hypot(ex, ey), ez) > 0.01 * mag + 1e-6 || dang > 0.5 * VEER_PI / 180.0)
+        return veer__fail(diag, VEER_ERR_INFEASIBLE, 0, -1, -1, plan->path.segments[0].s_begin, id,
+                          "the cart moves with twist (%.3f m/s, %.3f m/s, %.3f rad/s) but the route starts along "
+                          "(%.3f, %.3f, %.3f) per unit path speed: start the route along the current motion, or "
+                          "stop first (no transition is added)",
+                          tw[0], tw[1], tw[2], pk.xi[0], pk.xi[1], pk.xi[2]);
+    if (plan->steered) {
+        for (int i = 0; i < plan->module_count; i++) {
+            if (plan->drive.modules[i].out) continue;
+            double v[2], dv[2];
+            veer__module_velocity(&plan->drive, i, &pk, v, dv);
+            if (hypot(v[0], v[1]) <= 1e-9) continue;
+            double dir = atan2(v[1], v[0]);
+            if (!r->has_start_steer) {
+                plan->route.start_steer[i] = dir;
+                continue;
+            }
+            double d = r->start_steer[i] - veer__steer_near(dir, r->start_steer[i]);
+            if (fabs(d) > VEER_PI / 180.0)
+                return veer__fail(diag, VEER_ERR_INFEASIBLE, 0, -1, -1, plan->path.segments[0].s_begin,
+                                  veer__limit(VEER_LIMIT_START_STATE, i),
+                                  "module %d points at %.3f rad but the motion needs %.3f rad (or reversed): a moving "
+                                  "cart cannot re-steer; stop first",
+                                  i, r->start_steer[i], veer__steer_near(dir, r->start_steer[i]));
+        }
+        plan->route.has_start_steer = 1;
+    }
+    *x_start = sdot * sdot;
     return VEER_OK;
 }
 
@@ -207,6 +435,9 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
         sg->dwell = ps->dwell;
     }
 
+    veer_status st = start_state(plan, &plan->x_start, diag);
+    if (st != VEER_OK) return st;
+
     workspace ws;
     int m = plan->rows.m;
     ws.bytes = (size_t)longest * ((size_t)m * sizeof(veer_row) + 5 * sizeof(double) + sizeof(veer_limit_id) + sizeof(int));
@@ -219,23 +450,27 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     ws.xmax_id = (veer_limit_id *)(ws.xi + 3 * (size_t)longest);
     ws.row_count = (int *)(ws.xmax_id + longest);
 
-    veer_status st = VEER_OK;
     double from[VEER_MAX_MODULES];
     for (int i = 0; i < M; i++) from[i] = plan->route.has_start_steer ? plan->route.start_steer[i] : 0.0;
-    double clock = 0.0;
     for (int j = 0; j < path->segment_count && st == VEER_OK; j++) {
-        veer_plan_segment *sg = &plan->segs[j];
-        st = solve_segment(plan, j, &ws, diag);
+        st = solve_segment(plan, j, &plan->rows, j == 0 ? plan->x_start : 0.0, &ws, diag);
         if (st == VEER_OK) st = veer__steer_segment(plan, j, from, ws.xi, diag);
-        if (st != VEER_OK) break;
+        for (int i = 0; i < M && st == VEER_OK; i++) from[i] = plan->steer[(size_t)plan->segs[j].k1 * (size_t)M + (size_t)i];
+    }
+    if (st == VEER_OK && plan->x_start > 0.0) plan->segs[0].resteer_time = 0.0; /* already pointing along the motion */
+    if (st == VEER_OK) st = meet_arrivals(plan, &ws, diag);
+    veer__free(w, ws.bytes);
+    if (st != VEER_OK) return st;
+
+    /* The timeline: re-steer, motion, dwell, segment after segment. */
+    double clock = 0.0;
+    for (int j = 0; j < path->segment_count; j++) {
+        veer_plan_segment *sg = &plan->segs[j];
         sg->t_resteer = clock;
         sg->t_move = clock + sg->resteer_time;
         for (int q = sg->k0; q <= sg->k1; q++) plan->t[q] += sg->t_move;
         clock = sg->t_move + sg->move_time + sg->dwell;
-        for (int i = 0; i < M; i++) from[i] = plan->steer[(size_t)sg->k1 * (size_t)M + (size_t)i];
     }
-    veer__free(w, ws.bytes);
-    if (st != VEER_OK) return st;
     plan->duration = clock;
 
     /* Leg summaries from the segments. */
@@ -286,6 +521,13 @@ veer_status veer__plan_create_with(const veer_drive_def *drive, const veer_limit
             if (!isfinite(route->start_steer[i]))
                 return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, none, "start_steer[%d] is not finite", i);
 
+    for (int w = 0; w < route->waypoint_count && w < VEER_MAX_WAYPOINTS; w++) {
+        const veer_waypoint *wp = &route->waypoints[w];
+        if (!wp->timed) continue;
+        if (!isfinite(wp->arrival) || wp->arrival < 0.0)
+            return veer__fail(diag, VEER_ERR_VALUE, -1, w, -1, -1.0, none,
+                              "waypoint %d: arrival must be a time >= 0 s, got %g", w, wp->arrival);
+    }
     veer_plan *plan = veer__calloc(1, sizeof *plan);
     if (!plan) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, none, "out of memory");
     plan->alloc_size = sizeof *plan;

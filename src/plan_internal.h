@@ -30,17 +30,31 @@ void veer__module_velocity(const veer_drive_def *drive, int i, const veer_point_
 /* What the row builder needs, prepared once per plan: the drive and
  * limits (borrowed, must outlive the context), the body-acceleration
  * polygon's faces and the wheel matrix of fixed-wheel drives. */
-#define VEER_MAX_POLYGON_FACES 128
+#define VEER_MAX_POLYGON_FACES 32 /* polygons have at most 64 sides */
+/* The most u-rows one grid point can have: body acceleration, yaw
+ * acceleration, and per module acceleration, motor curve and traction. */
+#define VEER_MAX_POINT_ROWS (VEER_MAX_POLYGON_FACES + 2 + VEER_MAX_MODULES * (4 + VEER_MAX_POLYGON_FACES))
+#define VEER_GRAVITY 9.80665 /* m/s^2, standard gravity (3rd CGPM, 1901) */
+/* The faces of a polygon inscribed in a circle that can bind (see
+ * constraints.c): half of them, with their lowest heights. */
+typedef struct {
+    int faces;
+    double c[VEER_MAX_POLYGON_FACES], s[VEER_MAX_POLYGON_FACES];
+    double h[VEER_MAX_POLYGON_FACES]; /* lowest normal component on each face, unit circle */
+    double r;                         /* radius * cos(pi / sides) */
+    double radius;
+} veer_polygon;
+
 typedef struct {
     const veer_drive_def *drive;
     const veer_limits *limits;
     int module_count;
-    int faces;                          /* polygon faces that can bind: sides / 2 */
-    double face_c[VEER_MAX_POLYGON_FACES], face_s[VEER_MAX_POLYGON_FACES];
-    double face_h[VEER_MAX_POLYGON_FACES]; /* lowest normal acceleration on each face */
-    double face_r;                      /* body_accel * cos(pi / sides) */
+    veer_polygon accel;                 /* body acceleration, radius body_accel */
+    veer_polygon traction;              /* module traction, unit radius (scaled by mu g) */
     int linear;                         /* 1: wheel_rate = J xi */
+    int degraded;                       /* 1: a module is out */
     double J[VEER_MAX_MODULES][3];
+    double pos[VEER_MAX_MODULES][2];    /* module contact points, body frame */
     int m;                              /* most u-rows a point can have */
 } veer_row_ctx;
 
@@ -48,10 +62,12 @@ void veer__row_ctx_init(veer_row_ctx *ctx, const veer_drive_def *drive, const ve
                         const veer_plan_options *opt);
 
 /* Rows at one grid point. x-only rows are folded into *xmax (and *xmax_id);
- * rows that involve u are written to rows (at most ctx->m).
+ * rows that involve u are written to rows (at most ctx->m). x_lin is where
+ * the motor curve is linearized (the profile's sdot^2 there, or <= 0 for a
+ * first guess); its row is conservative for any x_lin.
  * Returns the number of u-rows, or -1 if the drive cannot follow the path
  * there (differential drive asked to move sideways: *xmax_id says so). */
-int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, veer_row *rows, double *xmax,
+int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double x_lin, veer_row *rows, double *xmax,
                      veer_limit_id *xmax_id);
 
 /* Checks limits against the drive: NaN/negative -> ERR_VALUE, zero -> ERR_INFEASIBLE. */
@@ -72,9 +88,11 @@ typedef struct {
 /* Fills x[n] (sdot^2) with the time-optimal profile: backward controllable
  * sets, then the forward greedy pass (Pham & Pham, IEEE T-RO 2018), using the
  * first-order interpolation scheme (an interval's acceleration rows hold at
- * both of its ends). work needs n doubles. Returns VEER_OK, or
- * VEER_ERR_INFEASIBLE with *bad_index the first point where no motion fits. */
-veer_status veer__topp_solve(const veer_topp_problem *p, double *x, double *work, int *bad_index);
+ * both of its ends), starting at x_start (0: rest; more: a moving start,
+ * which must leave room to stop). work needs n doubles. Returns VEER_OK, or
+ * VEER_ERR_INFEASIBLE with *bad_index the first point where no motion fits
+ * (0 for a moving start without room to stop). */
+veer_status veer__topp_solve(const veer_topp_problem *p, double x_start, double *x, double *work, int *bad_index);
 
 /* The limit binding at point k of a solved profile (kind NONE if none within
  * a relative slack of 2e-3). */
@@ -129,6 +147,7 @@ struct veer_plan {
     veer_plan_segment segs[VEER_PATH_MAX_SEGMENTS];
     int leg_count;
     veer_leg_summary legs[VEER_MAX_LEGS];
+    double x_start;               /* sdot^2 at the start (re-planning on the move), 0 at rest */
     double duration;
 };
 

@@ -19,12 +19,12 @@ void veer__module_setpoints(const veer_plan *plan, int seg, const veer_point_kin
             veer__module_velocity(d, i, pk, v, dv);
             double sp2 = v[0] * v[0] + v[1] * v[1], sp = sqrt(sp2);
             veer_module_setpoint *o = &out[i];
-            if (sp <= VEER_STILL) { /* the module stands: keep the angle, rate along dv */
+            if (sp <= VEER_STILL || d->modules[i].out) { /* the module stands: keep the angle, rate along dv */
                 double e = ref[i];
                 o->steer = e;
                 o->steer_rate = 0.0;
                 o->wheel_rate = 0.0;
-                o->wheel_accel = (dv[0] * cos(e) + dv[1] * sin(e)) * x / d->wheel_radius;
+                o->wheel_accel = d->modules[i].out ? 0.0 : (dv[0] * cos(e) + dv[1] * sin(e)) * x / d->wheel_radius;
                 continue;
             }
             double st = veer__steer_near(atan2(v[1], v[0]), ref[i]);
@@ -43,8 +43,9 @@ void veer__module_setpoints(const veer_plan *plan, int seg, const veer_point_kin
         double df = J[i][0] * pk->dxi[0] + J[i][1] * pk->dxi[1] + J[i][2] * pk->dxi[2];
         out[i].steer = ref[i];
         out[i].steer_rate = 0.0;
-        out[i].wheel_rate = f * sdot;
-        out[i].wheel_accel = f * sddot + df * x;
+        int on = !d->modules[i].out;
+        out[i].wheel_rate = on ? f * sdot : 0.0;
+        out[i].wheel_accel = on ? f * sddot + df * x : 0.0;
     }
 }
 

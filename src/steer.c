@@ -77,7 +77,7 @@ veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, cons
     for (int i = 0; i < M; i++) {
         sg->steer_from[i] = from[i];
         sg->steer_to[i] = from[i];
-        if (!plan->steered) {
+        if (!plan->steered || plan->drive.modules[i].out) { /* fixed wheels, or out of service: the angle stays */
             for (int k = sg->k0; k <= sg->k1; k++) plan->steer[(size_t)k * (size_t)M + (size_t)i] = from[i];
             continue;
         }

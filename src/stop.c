@@ -17,12 +17,12 @@
 /* Hardest deceleration the limits allow at (s, x) in segment seg; -inf when
  * no limit bounds braking. */
 static double hardest_decel(const veer_plan *plan, int seg, double s, double x) {
-    veer_row rows[VEER_MAX_POLYGON_FACES + 2 + 2 * VEER_MAX_MODULES];
+    veer_row rows[VEER_MAX_POINT_ROWS];
     veer_point_kin pk;
     double xmax;
     veer_limit_id id;
     veer__point_kin(&plan->path, seg, s, &pk);
-    int m = veer__point_rows(&plan->rows, &pk, rows, &xmax, &id);
+    int m = veer__point_rows(&plan->rows, &pk, x, rows, &xmax, &id);
     double lo = -VEER_UNLIMITED;
     for (int j = 0; j < m; j++) {
         if (!(rows[j].a < 0.0)) continue;

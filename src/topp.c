@@ -24,7 +24,7 @@ typedef struct {
     double p, q;
 } bound;
 
-#define VEER_STAGE_ROWS (2 * (VEER_MAX_POLYGON_FACES + 2 + 2 * VEER_MAX_MODULES) + 1)
+#define VEER_STAGE_ROWS (2 * VEER_MAX_POINT_ROWS + 1)
 
 typedef struct {
     bound up[VEER_STAGE_ROWS], lo[VEER_STAGE_ROWS];
@@ -102,17 +102,22 @@ static double stage_max_x(const stage *st) {
     return lo;
 }
 
-veer_status veer__topp_solve(const veer_topp_problem *p, double *x, double *K, int *bad_index) {
+veer_status veer__topp_solve(const veer_topp_problem *p, double x_start, double *x, double *K, int *bad_index) {
     int n = p->n;
     stage st;
     /* Backward pass: controllable sets K_k = [0, K[k]], rest at the end. */
     K[n - 1] = 0.0;
     for (int k = n - 2; k >= 0; k--) {
         stage_build(p, k, K[k + 1], &st);
-        K[k] = k == 0 ? 0.0 : stage_max_x(&st);
+        K[k] = stage_max_x(&st);
     }
-    /* Forward pass: from rest, the greatest acceleration that stays controllable. */
-    x[0] = 0.0;
+    /* A moving start must lie in the first controllable set: room to stop. */
+    if (x_start > K[0] * (1.0 + 1e-9) + 1e-12) {
+        if (bad_index) *bad_index = 0;
+        return VEER_ERR_INFEASIBLE;
+    }
+    /* Forward pass: the greatest acceleration that stays controllable. */
+    x[0] = x_start;
     for (int k = 0; k < n - 1; k++) {
         stage_build(p, k, K[k + 1], &st);
         double U, dU, L, dL;
@@ -129,7 +134,7 @@ veer_status veer__topp_solve(const veer_topp_problem *p, double *x, double *K, i
             return VEER_ERR_INFEASIBLE;
         }
     }
-    if (n == 2) { /* a single interval cannot move from rest to rest */
+    if (n == 2 && !(x_start > 0.0)) { /* a single interval cannot move from rest to rest */
         if (bad_index) *bad_index = 0;
         return VEER_ERR_INFEASIBLE;
     }

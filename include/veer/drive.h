@@ -27,6 +27,7 @@ typedef enum {
 typedef struct {
     double x, y;        /* mount position in the body frame, m (steered, omni) */
     double drive_angle; /* omni: direction the wheel pushes, rad from body x */
+    int out;            /* 1: module out of service (lifted or failed): it neither drives nor limits */
 } veer_module_def;
 
 /* Fill with veer_default_drive_def(kind) and change what differs.
@@ -92,6 +93,16 @@ VEER_API VEER_NODISCARD veer_status veer_drive_inverse(const veer_drive_def *dri
  * Checks like veer_drive_inverse and writes nothing on failure. */
 VEER_API VEER_NODISCARD veer_status veer_drive_forward(const veer_drive_def *drive, const double *steer,
                                                        const double *wheel_rate, double twist_body[3]);
+
+/* Degraded drives: how many working wheels drive the body motion twist_body
+ * (rates above 1e-3 of the largest). With a module out, a motion that fewer
+ * than 2 working wheels drive has lost its traction (with 45-degree mecanum
+ * rollers and one wheel off the floor, one diagonal keeps a single driven
+ * wheel); 0 means no working wheel can push some component of it at all.
+ * Steered drives report their working modules. The planner refuses a path
+ * that needs a lost motion, naming the leg and position. */
+VEER_API VEER_NODISCARD veer_status veer_drive_driven_wheels(const veer_drive_def *drive, const double twist_body[3],
+                                                             int *count);
 
 #ifdef __cplusplus
 }

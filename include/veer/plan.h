@@ -28,6 +28,21 @@ typedef struct {
     double steer_rate;  /* rad/s, relative to the body (steered drives) */
     double steer_min;   /* rad, lowest steer angle the module reaches; -VEER_UNLIMITED: continuous */
     double steer_max;   /* rad, highest; +VEER_UNLIMITED: continuous */
+    /* Traction: the contact point's acceleration (including its centripetal
+     * part) may not exceed traction_mu * g, g = 9.80665 m/s^2 (standard
+     * gravity). That is the friction force mu * (the module's share of the
+     * weight) over the module's share of the mass, the two shares taken
+     * equal. Rubber on dry concrete is about 0.8 kinetic and 1.0 static
+     * (Serway & Beichner, Physics for Scientists and Engineers, Table 5.2);
+     * measure your own tyres on your own ground. Unset: no traction limit. */
+    double traction_mu;
+    /* DC motor torque-speed line: driving in the direction the wheel turns,
+     * the wheel acceleration available falls linearly from motor_stall_accel
+     * (rad/s^2) at rest to zero at motor_free_rate (rad/s); braking may use
+     * motor_stall_accel. Both unset: no motor curve; both set or neither. */
+    double motor_stall_accel;
+    double motor_free_rate;
+    double wheel_jerk;  /* rad/s^3, rate of change of the wheel acceleration */
 } veer_module_limits;
 
 typedef struct {
@@ -36,6 +51,7 @@ typedef struct {
     double body_accel;  /* m/s^2, magnitude of the body origin's acceleration */
     double yaw_rate;    /* rad/s */
     double yaw_accel;   /* rad/s^2 */
+    double body_jerk;   /* m/s^3, rate of change of the body origin's acceleration */
 } veer_limits;
 
 /* Every limit unset. */
@@ -43,7 +59,12 @@ VEER_API veer_limits veer_default_limits(void);
 
 typedef struct {
     int grid_points;         /* grid points over the whole plan, default 1000, 16..200000 */
-    int accel_polygon_sides; /* sides of the polygon inscribed in the body-acceleration circle, default 32, 8..256 */
+    int accel_polygon_sides; /* sides of the polygon inscribed in the body-acceleration circle, default 32, even, 8..64 */
+    int traction_polygon_sides; /* the same for each module's traction circle, default 16, even, 8..64 */
+    /* s from the start to the end of the plan (dwells and re-steer phases
+     * included); 0: as fast as the limits allow. Met like a timed stop at
+     * the end (see veer_waypoint.arrival). */
+    double duration_target;
 } veer_plan_options;
 
 VEER_API veer_plan_options veer_default_plan_options(void);

@@ -58,6 +58,8 @@ typedef struct {
     int has_yaw;  /* 0 or 1 */
     int stop;     /* 1: come to rest here; 0: pass through (rounded corner). The leg's last waypoint is always a stop. */
     double dwell; /* s to stand still at a stop, >= 0 */
+    int timed;    /* 1: a stop that must be reached at `arrival` */
+    double arrival; /* s from plan start when the cart must come to rest here (timed stops) */
 } veer_waypoint;
 
 typedef enum {
@@ -97,6 +99,13 @@ typedef struct {
     double start_x, start_y, start_yaw;  /* pose the cart starts from at rest */
     int has_start_steer;                 /* 1: start_steer holds the modules' angles at the start */
     double start_steer[VEER_MAX_MODULES];/* rad relative to body x; otherwise all modules start at 0 */
+    /* Re-planning on the move: the cart's twist (vx, vy in m/s, wz in rad/s,
+     * body frame) at the start. The first leg must start in the direction of
+     * that motion (within 1 percent of the speed, 0.5 degree of direction),
+     * and the steered modules must already point along it; otherwise the plan
+     * is refused (no silent transition). has_start_twist 0: start at rest. */
+    int has_start_twist;
+    double start_twist[3];
     int leg_count;
     veer_leg legs[VEER_MAX_LEGS];
     int waypoint_count;

@@ -36,7 +36,8 @@ extern "C" {
     X(ERR_BUFFER, 8, "the output buffer is too small")                         \
     X(ERR_DECODE, 9, "the bytes do not decode as the expected message")        \
     X(ERR_VERSION, 10, "the message was made by an incompatible schema version") \
-    X(ERR_STATE, 11, "the call does not fit the object's current state")
+    X(ERR_STATE, 11, "the call does not fit the object's current state")       \
+    X(ERR_LATE, 12, "a timed arrival is earlier than the fastest plan can make")
 
 typedef enum {
 #define VEER_STATUS_ENUM_(name, value, text) VEER_##name = value,
@@ -63,7 +64,13 @@ VEER_API const char *veer_status_name(veer_status status);
     X(YAW_ACCEL, 8, "yaw_accel")                    \
     X(NONHOLONOMIC, 9, "no_sideways_motion")        \
     X(PATH_END, 10, "stop_at_end")                  \
-    X(SPEED_ZONE, 11, "speed_zone")
+    X(SPEED_ZONE, 11, "speed_zone")                 \
+    X(TRACTION, 12, "traction")                     \
+    X(MOTOR, 13, "motor_curve")                     \
+    X(MODULE_OUT, 14, "module_out")                 \
+    X(START_STATE, 15, "start_state")               \
+    X(BODY_JERK, 16, "body_jerk")                   \
+    X(WHEEL_JERK, 17, "wheel_jerk")
 
 typedef enum {
 #define VEER_LIMIT_ENUM_(name, value, text) VEER_LIMIT_##name = value,
@@ -92,6 +99,7 @@ typedef struct {
     int grid_index;     /* grid point index in the plan, or -1 */
     double s;           /* path position (m on travel legs, rad on spin and pivot legs), or -1 */
     veer_limit_id limit;/* the limit involved, kind NONE if none */
+    double value;       /* the figure the message is about (ERR_LATE: seconds late), else 0 */
 } veer_diag;
 
 /* Allocator hook. alloc(size, ctx) returns memory aligned for any type or
