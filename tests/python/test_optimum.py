@@ -82,8 +82,8 @@ def test_duration_matches_lp_optimum(veer, name, request_):
     legs = p.legs
     t_moving = p.duration - sum(g.resteer_time for g in legs) - sum(g.dwell_time for g in legs)
     RESULTS[name] = (t_lp, t_grid, t_moving)
-    print("%s: LP %.6f s, veer grid %.6f s (%+.4f %%), veer plan %.6f s (%+.4f %%)"
-          % (name, t_lp, t_grid, 100 * (t_grid / t_lp - 1), t_moving, 100 * (t_moving / t_lp - 1)))
+    print("%s: LP %.6f s, veer grid %.6f s (%+.2e), veer plan %.6f s (%+.2e)"
+          % (name, t_lp, t_grid, t_grid / t_lp - 1, t_moving, t_moving / t_lp - 1))
     assert math.isfinite(t_lp) and t_lp > 0
     assert abs(t_grid - t_lp) <= TOLERANCE * t_lp
     assert abs(t_moving - t_lp) <= TOLERANCE * t_lp

@@ -66,11 +66,13 @@ class Diag(ctypes.Structure):
         ("grid_index", ctypes.c_int),
         ("s", ctypes.c_double),
         ("limit", LimitId),
+        ("value", ctypes.c_double),
     ]
 
 
 class ModuleDef(ctypes.Structure):
-    _fields_ = [("x", ctypes.c_double), ("y", ctypes.c_double), ("drive_angle", ctypes.c_double)]
+    _fields_ = [("x", ctypes.c_double), ("y", ctypes.c_double), ("drive_angle", ctypes.c_double),
+                ("out", ctypes.c_int)]
 
 
 class DriveDef(ctypes.Structure):
@@ -94,6 +96,10 @@ class ModuleLimits(ctypes.Structure):
         ("steer_rate", ctypes.c_double),
         ("steer_min", ctypes.c_double),
         ("steer_max", ctypes.c_double),
+        ("traction_mu", ctypes.c_double),
+        ("motor_stall_accel", ctypes.c_double),
+        ("motor_free_rate", ctypes.c_double),
+        ("wheel_jerk", ctypes.c_double),
     ]
 
 
@@ -104,11 +110,13 @@ class Limits(ctypes.Structure):
         ("body_accel", ctypes.c_double),
         ("yaw_rate", ctypes.c_double),
         ("yaw_accel", ctypes.c_double),
+        ("body_jerk", ctypes.c_double),
     ]
 
 
 class PlanOptions(ctypes.Structure):
-    _fields_ = [("grid_points", ctypes.c_int), ("accel_polygon_sides", ctypes.c_int)]
+    _fields_ = [("grid_points", ctypes.c_int), ("accel_polygon_sides", ctypes.c_int),
+                ("traction_polygon_sides", ctypes.c_int), ("duration_target", ctypes.c_double)]
 
 
 class Waypoint(ctypes.Structure):
@@ -119,6 +127,8 @@ class Waypoint(ctypes.Structure):
         ("has_yaw", ctypes.c_int),
         ("stop", ctypes.c_int),
         ("dwell", ctypes.c_double),
+        ("timed", ctypes.c_int),
+        ("arrival", ctypes.c_double),
     ]
 
 
@@ -147,6 +157,8 @@ class Route(ctypes.Structure):
         ("start_yaw", ctypes.c_double),
         ("has_start_steer", ctypes.c_int),
         ("start_steer", ctypes.c_double * MAX_MODULES),
+        ("has_start_twist", ctypes.c_int),
+        ("start_twist", ctypes.c_double * 3),
         ("leg_count", ctypes.c_int),
         ("legs", Leg * MAX_LEGS),
         ("waypoint_count", ctypes.c_int),
@@ -190,6 +202,15 @@ class Sample(ctypes.Structure):
         ("module_count", ctypes.c_int),
         ("modules", ModuleSetpoint * MAX_MODULES),
     ]
+
+
+def out_struct(cls, slack=512):
+    """An instance of cls for the C side to write into, with spare room after
+    it, so that a library built from newer headers (a field appended to
+    veer_diag, say) cannot write past Python's memory. The ABI test checks
+    the layouts themselves."""
+    buf = (ctypes.c_char * (ctypes.sizeof(cls) + slack))()
+    return cls.from_buffer(buf)
 
 
 STRUCTS = {

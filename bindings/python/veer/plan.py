@@ -13,6 +13,7 @@ import json
 import math
 import numbers
 import os
+import warnings
 
 import numpy as np
 
@@ -268,7 +269,9 @@ def _plan_reply(lib, data):
     PlanRequest = _pb.message("PlanRequest")
     grid = 1000
     try:
-        req = PlanRequest.FromString(data)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # garbage bytes: the C side names the error
+            req = PlanRequest.FromString(data)
         if req.options.HasField("grid_points"):
             grid = max(16, min(int(req.options.grid_points), 200000))
     except Exception:  # garbage bytes: the C side names the error
@@ -331,7 +334,7 @@ class Plan:
             raise PlanError("ERR_VALUE", "plan bytes must be bytes, got %s" % type(data).__name__)
         self._bytes = bytes(data)
         handle = ctypes.c_void_p()
-        diag = _lib.Diag()
+        diag = _lib.out_struct(_lib.Diag)
         st = self._lib.veer_plan_decode_pb(self._bytes, len(self._bytes), ctypes.byref(handle), ctypes.byref(diag))
         if st != 0 or not handle.value:
             raise PlanError._from_diag(self._lib, st, diag)
@@ -362,7 +365,7 @@ class Plan:
         except _convert.ConvertError as exc:
             raise PlanError(exc.status, exc.text) from None
         handle = ctypes.c_void_p()
-        diag = _lib.Diag()
+        diag = _lib.out_struct(_lib.Diag)
         st = lib.veer_plan_create(ctypes.byref(drive), ctypes.byref(limits), ctypes.byref(route), ctypes.byref(opts),
                                   ctypes.byref(handle), ctypes.byref(diag))
         if st != 0 or not handle.value:
@@ -408,7 +411,7 @@ class Plan:
         out = []
         h = self._h()
         for i in range(int(self._lib.veer_plan_leg_count(h))):
-            ls = _lib.LegSummary()
+            ls = _lib.out_struct(_lib.LegSummary)
             st = self._lib.veer_plan_leg(h, i, ctypes.byref(ls))
             if st != 0:
                 raise PlanError(self._lib.status_name(st), "veer_plan_leg(%d) failed" % i)
@@ -470,7 +473,7 @@ class Plan:
     def sample(self, t):
         """The state at time t (s, clamped to [0, duration])."""
         t = self._real(t, "t")
-        out = _lib.Sample()
+        out = _lib.out_struct(_lib.Sample)
         st = self._lib.veer_plan_sample(self._h(), t, ctypes.byref(out))
         if st != 0:
             raise PlanError(self._lib.status_name(st), "veer_plan_sample(t = %r) failed: %s"
