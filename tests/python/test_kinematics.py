@@ -94,3 +94,29 @@ def test_fixed_wheels_report_their_direction(veer, name, request_):
         smp = p.sample(float(t))
         assert np.allclose(np.remainder(smp.steer - want + math.pi, 2 * math.pi) - math.pi, 0.0, atol=1e-12)
         assert np.allclose(smp.steer_rate, 0.0)
+
+
+DENSE = CASES + [("body_accel_curve", scenarios.get("body_accel_curve"))]
+
+
+@pytest.mark.parametrize("name,request_", DENSE, ids=[c[0] for c in DENSE])
+def test_dense_samples_stay_within_the_limits(veer, name, request_):
+    # Issue 3 and design.md: the cart's setpoints stay within the limits
+    # (0.5 % allowance for the compact profile). Sampled at 1 kHz, between the
+    # grid points too, where the planner's rows are not evaluated.
+    p = veer.plan(request_)
+    lim = p.limits()
+    tab = p.table(1000.0)
+    worst = {}
+    for key, arr in (("wheel_rate", tab.wheel_rate), ("steer_rate", tab.steer_rate), ("wheel_accel", tab.wheel_accel)):
+        L = np.array([m[key] for m in lim["modules"]])
+        if arr.size and np.any(np.isfinite(L)):
+            worst[key] = float(np.max(np.abs(arr) / L))
+    v = np.hypot(tab.twist_world[:, 0], tab.twist_world[:, 1])
+    a = np.hypot(tab.accel_world[:, 0], tab.accel_world[:, 1])
+    for key, val in (("body_speed", v), ("body_accel", a), ("yaw_rate", np.abs(tab.twist_world[:, 2])),
+                     ("yaw_accel", np.abs(tab.accel_world[:, 2]))):
+        if math.isfinite(lim[key]):
+            worst[key] = float(np.max(val) / lim[key])
+    over = {k: round(w, 4) for k, w in worst.items() if w > 1.005}
+    assert not over, "peak / limit above 1.005: %s" % over

@@ -72,7 +72,8 @@ def footprint(drive):
     if x1 - x0 < 0.2:
         x0, x1 = -0.1 + x0, 0.1 + x1
     box = np.array([[x0, y0], [x1, y0], [x1, y1], [x0, y1]])
-    nose = np.array([[x1, 0.35 * y0], [x1 + 0.25 * (x1 - x0), 0.0], [x1, 0.35 * y1]])
+    L = x1 - x0
+    nose = np.array([[x1 - 0.3 * L, 0.3 * y0], [x1, 0.0], [x1 - 0.3 * L, 0.3 * y1]])  # front marker, inside
     return box, nose
 
 
@@ -155,7 +156,7 @@ def figure(plan, title=None, footprints=14, rate_hz=None):
         edge = "#1a9850" if j == 0 else ("#d73027" if j == len(times) - 1 else "#555555")
         ax.add_patch(Polygon(_to_world(pose, box), closed=True, fill=False, ec=edge, lw=1.1 if j in (0, len(times) - 1)
                              else 0.6, zorder=4))
-        ax.add_patch(Polygon(_to_world(pose, nose), closed=True, fc=edge, ec="none", alpha=0.8, zorder=4))
+        ax.add_patch(Polygon(_to_world(pose, nose), closed=True, fc=edge, ec="none", alpha=0.45, zorder=4))
         if j % 2 == 0 or j == len(times) - 1:
             tip = _to_world(pose, nose[1:2])[0]
             ax.annotate("%.1f s" % t, tip, xytext=(3, -9), textcoords="offset points", fontsize=6, color=edge,
