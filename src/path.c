@@ -294,8 +294,9 @@ static void piece_eval(const veer_path_piece *pc, double s, double q[3], double 
         double sg = pc->c[0][3], a = sg * u, ca = cos(a), sa = sin(a);
         double ox = pc->c[0][1], oy = pc->c[1][1];
         double rx = ca * ox - sa * oy, ry = sa * ox + ca * oy;
-        q[0] = pc->c[0][0] + rx, q[1] = pc->c[1][0] + ry, q[2] = pc->c[0][2] + a;
-        dq[0] = -sg * ry, dq[1] = sg * rx, dq[2] = sg;
+        double turn = pc->c[0][4]; /* 1: rigid pivot, 0: orbit with the yaw held */
+        q[0] = pc->c[0][0] + rx, q[1] = pc->c[1][0] + ry, q[2] = pc->c[0][2] + turn * a;
+        dq[0] = -sg * ry, dq[1] = sg * rx, dq[2] = turn * sg;
         ddq[0] = -rx, ddq[1] = -ry, ddq[2] = 0.0;
         return;
     }
@@ -388,6 +389,8 @@ static veer_status check_leg(const veer_leg *leg, int li, veer_diag *diag) {
             return veer__fail(diag, VEER_ERR_VALUE, li, -1, -1, -1.0, none,
                               "leg %d: a %s leg takes no waypoints (it has %d)", li,
                               leg->kind == VEER_LEG_SPIN ? "spin" : "pivot", leg->waypoint_count);
+        if (leg->kind == VEER_LEG_PIVOT && leg->hold_yaw != 0 && leg->hold_yaw != 1)
+            return veer__fail(diag, VEER_ERR_VALUE, li, -1, -1, -1.0, none, "leg %d: hold_yaw must be 0 or 1", li);
         if (leg->kind == VEER_LEG_SPIN && leg->direction != 0 && leg->direction != 1 && leg->direction != -1)
             return veer__fail(diag, VEER_ERR_VALUE, li, -1, -1, -1.0, none,
                               "leg %d: spin direction must be 0, +1 or -1 (it is %d)", li, leg->direction);
@@ -553,6 +556,10 @@ static veer_status build_pivot(builder *b, int li) {
     pc->c[1][1] = b->y - leg->pivot_y;
     pc->c[0][2] = b->yaw;
     pc->c[0][3] = leg->angle > 0.0 ? 1.0 : -1.0;
+    pc->c[0][4] = leg->hold_yaw ? 0.0 : 1.0; /* yaw turns with the rotation, or is held (an orbit) */
+    if (leg->hold_yaw && hypot(pc->c[0][1], pc->c[1][1]) < 1e-6)
+        return veer__fail(b->diag, VEER_ERR_GEOMETRY, li, -1, -1, b->s, veer__limit(VEER_LIMIT_NONE, -1),
+                          "leg %d: an orbit about the point the cart stands on does not move it", li);
     double q[3], dq[3], ddq[3];
     piece_eval(pc, pc->s0 + len, q, dq, ddq);
     b->s += len;

@@ -59,44 +59,53 @@ static void stage_build(const veer_topp_problem *pr, int k, double hi_next, stag
     for (int j = 0; j < pr->row_count[k + 1]; j++) stage_add(st, r1[j].a + d2 * r1[j].b, r1[j].b, r1[j].c);
 }
 
-/* U(x), L(x) and the slopes of the bounds that define them (ties go to the
- * steeper piece to the right: the right derivative of F). */
-static void stage_eval(const stage *st, double x, double *U, double *dU, double *L, double *dL) {
-    double u_hi = st->up[0].p + st->up[0].q * x, s_hi = st->up[0].q;
+/* U(x) and L(x), and the bounds that define them (ties go to the steeper
+ * piece to the right: the right derivative of F). */
+static void stage_eval(const stage *st, double x, double *U, const bound **bu, double *L, const bound **bl) {
+    const bound *hi = &st->up[0], *lo = &st->lo[0];
+    double u_hi = hi->p + hi->q * x;
     for (int j = 1; j < st->nup; j++) {
         double v = st->up[j].p + st->up[j].q * x;
-        if (v < u_hi || (v == u_hi && st->up[j].q < s_hi)) {
+        if (v < u_hi || (v == u_hi && st->up[j].q < hi->q)) {
             u_hi = v;
-            s_hi = st->up[j].q;
+            hi = &st->up[j];
         }
     }
-    double u_lo = st->lo[0].p + st->lo[0].q * x, s_lo = st->lo[0].q;
+    double u_lo = lo->p + lo->q * x;
     for (int j = 1; j < st->nlo; j++) {
         double v = st->lo[j].p + st->lo[j].q * x;
-        if (v > u_lo || (v == u_lo && st->lo[j].q > s_lo)) {
+        if (v > u_lo || (v == u_lo && st->lo[j].q > lo->q)) {
             u_lo = v;
-            s_lo = st->lo[j].q;
+            lo = &st->lo[j];
         }
     }
     *U = u_hi;
-    *dU = s_hi;
     *L = u_lo;
-    *dL = s_lo;
+    if (bu) *bu = hi;
+    if (bl) *bl = lo;
 }
 
-/* Largest x in [0, cap] with L(x) <= U(x). */
+/* Largest x in [0, cap] with L(x) <= U(x). Each Newton step goes to where
+ * the active upper and lower bounds cross, computed from their own
+ * coefficients (exact even when x is huge). */
 static double stage_max_x(const stage *st) {
     double x = st->cap < VEER_X_BIG ? st->cap : VEER_X_BIG;
-    double lo = 0.0, hi = x;
+    double lo = 0.0;
     for (int it = 0; it < 100; it++) {
-        double U, dU, L, dL;
-        stage_eval(st, x, &U, &dU, &L, &dL);
-        double F = U - L, dF = dU - dL;
+        double U, L;
+        const bound *bu, *bl;
+        stage_eval(st, x, &U, &bu, &L, &bl);
+        double F = U - L;
         if (F >= -1e-13 * (1.0 + fabs(U) + fabs(L))) return x;
-        hi = x;
-        double next = dF < 0.0 ? x - F / dF : 0.5 * (lo + hi);
-        if (!(next < hi) || next < lo) next = 0.5 * (lo + hi); /* guard against rounding */
-        if (hi - next <= 1e-15 * hi) return next;
+        double dF = bu->q - bl->q, next;
+        if (dF < 0.0) {
+            next = (bl->p - bu->p) / dF; /* p_u + q_u x = p_l + q_l x */
+            if (!(next < x)) next = x * (1.0 - 1e-15);
+        } else {
+            next = 0.5 * (lo + x); /* cannot happen for a concave F with F(0) >= 0; guard */
+        }
+        if (next < lo) next = lo;
+        if (x - next <= 1e-15 * x) return next;
         x = next;
     }
     return lo;
@@ -120,8 +129,8 @@ veer_status veer__topp_solve(const veer_topp_problem *p, double x_start, double 
     x[0] = x_start;
     for (int k = 0; k < n - 1; k++) {
         stage_build(p, k, K[k + 1], &st);
-        double U, dU, L, dL;
-        stage_eval(&st, x[k], &U, &dU, &L, &dL);
+        double U, L;
+        stage_eval(&st, x[k], &U, NULL, &L, NULL);
         double next = x[k] + 2.0 * (p->s[k + 1] - p->s[k]) * U;
         if (next > K[k + 1]) next = K[k + 1];
         x[k + 1] = next > 0.0 ? next : 0.0;

@@ -32,7 +32,8 @@
  *   rest-to-rest stretch of the same leg, after the stop's dwell).
  * - A spin leg turns in place to yaw; a pivot leg rotates the body rigidly
  *   about (pivot_x, pivot_y) by angle (a pivot about the body origin is a
- *   spin). Neither may be of zero size.
+ *   spin); with hold_yaw it circles the point instead, keeping its yaw (an
+ *   orbit, as a target strafing round a post). Neither may be of zero size.
  * - Checked when planning: every number finite, positions and angles within
  *   +-1e6, dwells >= 0, corner_tolerance > 0, kinds, headings and spin
  *   directions known, flags 0 or 1, each travel leg with >= 1 waypoint, spin
@@ -91,6 +92,7 @@ typedef struct {
     /* pivot */
     double pivot_x, pivot_y;     /* world point the body rotates about, m */
     double angle;                /* signed rotation, rad, counter-clockwise positive */
+    int hold_yaw;                /* pivot: 1 circles the point keeping the yaw (an orbit); 0 turns with it */
     /* all kinds */
     double dwell;                /* s to stand still at the end of the leg, >= 0 */
 } veer_leg;

@@ -21,6 +21,11 @@ VEER_API unsigned veer_version(void);
 /* The same as a static string, "0.1.0". */
 VEER_API const char *veer_version_string(void);
 
+/* sizeof a public struct by its C name ("veer_route", "veer_limits",
+ * "veer_sample", ...), 0 for an unknown name: lets foreign callers that
+ * mirror the structs (ctypes) check their layout against the library. */
+VEER_API size_t veer_sizeof(const char *type_name);
+
 #ifdef __cplusplus
 }
 #endif

@@ -146,6 +146,7 @@ class Leg(ctypes.Structure):
         ("pivot_x", ctypes.c_double),
         ("pivot_y", ctypes.c_double),
         ("angle", ctypes.c_double),
+        ("hold_yaw", ctypes.c_int),
         ("dwell", ctypes.c_double),
     ]
 
@@ -266,6 +267,7 @@ _PROTOTYPES = {
     "veer_plan_grid": (ctypes.c_int, [ctypes.c_void_p, ctypes.c_int, _c_double_p, _c_double_p,
                                       ctypes.POINTER(LimitId)]),
     # bytes API (include/veer/wire.h)
+    "veer_sizeof": (ctypes.c_size_t, [ctypes.c_char_p]),
     "veer_wire_schema_version": (ctypes.c_uint, []),
     "veer_plan_request_pb": (ctypes.c_int, [_c_ubyte_p, ctypes.c_size_t, ctypes.c_void_p, ctypes.c_size_t,
                                             _c_size_p]),
@@ -346,6 +348,7 @@ def load():
             tried.append("%s (%s)" % (path, exc))
             continue
         _check_version(lib)
+        _check_layout(lib)
         _loaded = lib
         return lib
     found = ctypes.util.find_library("veer")
@@ -353,6 +356,7 @@ def load():
         try:
             lib = Library(found)
             _check_version(lib)
+            _check_layout(lib)
             _loaded = lib
             return lib
         except OSError as exc:
@@ -370,3 +374,19 @@ def _check_version(lib):
     if have[:2] != want[:2]:
         raise LibraryNotFound("%s is libveer %d.%d.%d; this package needs %d.%d.x"
                               % ((lib.path,) + have + want[:2]))
+
+
+def _check_layout(lib):
+    """Where the library reports its struct sizes (veer_sizeof), each mirrored
+    Structure must have the library's size: a library built from other
+    headers is refused instead of being handed structs of the wrong shape."""
+    if not lib.has("veer_sizeof"):
+        return
+    bad = []
+    for name, cls in STRUCTS.items():
+        have = int(lib.veer_sizeof(name.encode()))
+        if have and have != ctypes.sizeof(cls):
+            bad.append("%s: %d bytes in the library, %d here" % (name, have, ctypes.sizeof(cls)))
+    if bad:
+        raise LibraryNotFound("%s was built from headers this package does not mirror (%s); use the package from "
+                              "the same source tree" % (lib.path, "; ".join(bad)))
