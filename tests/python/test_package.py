@@ -106,7 +106,7 @@ ABI_FIELDS = {
     "veer_plan_options": ["grid_points", "accel_polygon_sides", "traction_polygon_sides", "duration_target"],
     "veer_waypoint": ["x", "y", "yaw", "has_yaw", "stop", "dwell", "timed", "arrival"],
     "veer_leg": ["kind", "waypoint_count", "heading", "reversed", "toward_x", "toward_y", "corner_tolerance", "yaw",
-                 "direction", "pivot_x", "pivot_y", "angle", "dwell"],
+                 "direction", "pivot_x", "pivot_y", "angle", "hold_yaw", "dwell"],
     "veer_route": ["start_x", "start_y", "start_yaw", "has_start_steer", "start_steer", "has_start_twist",
                    "start_twist", "leg_count", "legs",
                    "waypoint_count", "waypoints"],
@@ -140,6 +140,24 @@ def test_ctypes_structures_match_the_headers(tmp_path):
         assert int(got[st]) == ctypes.sizeof(cls), st
         for f in fields:
             assert int(got["%s.%s" % (st, f)]) == getattr(cls, f).offset, (st, f)
+
+
+def test_library_reports_the_same_struct_sizes(veer):
+    # veer_sizeof (version.h) is the library's own sizeof of each public struct.
+    from veer import _lib
+
+    lib = veer.library()
+    if not lib.has("veer_sizeof"):
+        pytest.skip("library without veer_sizeof")
+    known = 0
+    for name, cls in _lib.STRUCTS.items():
+        have = lib.veer_sizeof(name.encode())
+        if have:
+            known += 1
+            assert have == ctypes.sizeof(cls), name
+    for name in ("veer_drive_def", "veer_limits", "veer_route", "veer_sample", "veer_diag"):
+        assert lib.veer_sizeof(name.encode()) > 0, name
+    assert lib.veer_sizeof(b"no_such_struct") == 0
 
 
 def test_pip_install_offline_into_a_venv(veer, tmp_path):
