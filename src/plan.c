@@ -211,7 +211,8 @@ static veer_status solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx
         if (k > 0) t += 2.0 * (s[k] - s[k - 1]) / (sqrt(x[k - 1]) + sqrt(x[k]));
         plan->t[sg->k0 + k] = t; /* relative to the segment's motion start */
     }
-    sg->move_time = t;
+    sg->raw_time = t;
+    sg->move_time = t + sg->tau;
     return VEER_OK;
 }
 

@@ -122,7 +122,9 @@ typedef struct {
     double t_resteer;             /* s: the re-steer phase before the motion starts */
     double resteer_time;          /* s */
     double t_move;                /* s: motion starts (= t_resteer + resteer_time) */
-    double move_time;             /* s */
+    double move_time;             /* s: raw_time + tau */
+    double raw_time;              /* s: the time-optimal law's motion time */
+    double tau;                   /* s: jerk-limiting window (the law averaged over it), 0: none */
     double dwell;                 /* s at rest after the motion */
     double steer_from[VEER_MAX_MODULES]; /* module angles when the re-steer phase starts */
     double steer_to[VEER_MAX_MODULES];   /* ... and when it ends (= steer at k0) */
@@ -179,6 +181,9 @@ void veer__module_setpoints(const veer_plan *plan, int seg, const veer_point_kin
  * hard as the limits allow; *sddot gets the last deceleration. Returns 1
  * while still moving, 0 once at rest. Bounded work: ceil(dt / 1 ms) steps. */
 int veer__stop_step(const veer_plan *plan, int seg, double *s, double *sdot, double *sddot, double dt);
+
+/* The motion law of segment j, r seconds after its motion starts. */
+void veer__segment_law(const veer_plan *plan, int j, double r, double *s, double *sdot, double *sddot);
 
 /* The plan's state at time t as (segment, s, sdot, sddot); returns the
  * phase (veer_phase). */

@@ -84,6 +84,87 @@ static int segment_at_time(const veer_plan *plan, double t) {
     return j;
 }
 
+/* The time-optimal law of segment j at r seconds after its motion starts
+ * (before: the start state continued; after: rest at the end). Within a
+ * grid interval sddot is constant: s(t) is a quadratic. */
+static void raw_at(const veer_plan *plan, int j, double r, double *s, double *v, double *u) {
+    const veer_plan_segment *sg = &plan->segs[j];
+    double v_start = sqrt(plan->x[sg->k0]);
+    if (r <= 0.0) {
+        *s = plan->s[sg->k0] + v_start * r;
+        *v = v_start;
+        *u = 0.0;
+        return;
+    }
+    if (r >= sg->raw_time) {
+        *s = plan->s[sg->k1];
+        *v = *u = 0.0;
+        return;
+    }
+    double t = sg->t_move + r;
+    int k = sg->k0 + find(plan->t + sg->k0, sg->k1 - sg->k0 + 1, t);
+    if (k >= sg->k1) k = sg->k1 - 1;
+    double ds = plan->s[k + 1] - plan->s[k];
+    double v0 = sqrt(plan->x[k]);
+    double a = (plan->x[k + 1] - plan->x[k]) / (2.0 * ds);
+    double tau = t - plan->t[k];
+    double vel = v0 + a * tau;
+    double pos = plan->s[k] + v0 * tau + 0.5 * a * tau * tau;
+    *v = vel > 0.0 ? vel : 0.0;
+    *u = a;
+    *s = pos < plan->s[k] ? plan->s[k] : pos > plan->s[k + 1] ? plan->s[k + 1] : pos;
+}
+
+/* Integral of the raw law's s over [a, b] seconds (relative to the motion
+ * start), interval by interval: exact for the piecewise quadratic. */
+static double raw_integral(const veer_plan *plan, int j, double a, double b) {
+    const veer_plan_segment *sg = &plan->segs[j];
+    double sum = 0.0, v_start = sqrt(plan->x[sg->k0]);
+    if (a < 0.0) { /* before the start: s0 + v0 r */
+        double e = b < 0.0 ? b : 0.0;
+        sum += plan->s[sg->k0] * (e - a) + 0.5 * v_start * (e * e - a * a);
+        a = e;
+    }
+    if (b > sg->raw_time) { /* after the end: at rest at s1 */
+        double e = a > sg->raw_time ? a : sg->raw_time;
+        sum += plan->s[sg->k1] * (b - e);
+        b = e;
+    }
+    if (b <= a) return sum;
+    int k = sg->k0 + find(plan->t + sg->k0, sg->k1 - sg->k0 + 1, sg->t_move + a);
+    for (; k < sg->k1; k++) {
+        double t0 = plan->t[k] - sg->t_move, t1 = plan->t[k + 1] - sg->t_move;
+        double lo = a > t0 ? a : t0, hi = b < t1 ? b : t1;
+        if (hi > lo) {
+            double v0 = sqrt(plan->x[k]), acc = (plan->x[k + 1] - plan->x[k]) / (2.0 * (plan->s[k + 1] - plan->s[k]));
+            double p = lo - t0, q = hi - t0; /* s = s_k + v0 tau + acc tau^2 / 2 */
+            sum += plan->s[k] * (q - p) + 0.5 * v0 * (q * q - p * p) + acc * (q * q * q - p * p * p) / 6.0;
+        }
+        if (t1 >= b) break;
+    }
+    return sum;
+}
+
+void veer__segment_law(const veer_plan *plan, int j, double r, double *s, double *sdot, double *sddot) {
+    const veer_plan_segment *sg = &plan->segs[j];
+    if (!(sg->tau > 0.0)) {
+        raw_at(plan, j, r, s, sdot, sddot);
+        return;
+    }
+    /* Jerk limit: the raw law averaged over a window of tau seconds. Its
+     * speed and acceleration are differences of the raw law's, so its jerk
+     * is (sddot(r) - sddot(r - tau)) / tau. */
+    double tau = sg->tau, s1, v1, u1, s0, v0, u0;
+    raw_at(plan, j, r, &s1, &v1, &u1);
+    raw_at(plan, j, r - tau, &s0, &v0, &u0);
+    double pos = raw_integral(plan, j, r - tau, r) / tau;
+    double lo = plan->s[sg->k0], hi = plan->s[sg->k1];
+    *s = pos < lo ? lo : pos > hi ? hi : pos;
+    *sdot = (s1 - s0) / tau;
+    if (*sdot < 0.0) *sdot = 0.0;
+    *sddot = (v1 - v0) / tau;
+}
+
 int veer__plan_state(const veer_plan *plan, double t, int *seg, double *s, double *sdot, double *sddot) {
     int j = segment_at_time(plan, t);
     const veer_plan_segment *sg = &plan->segs[j];
@@ -97,18 +178,7 @@ int veer__plan_state(const veer_plan *plan, double t, int *seg, double *s, doubl
         *s = plan->s[sg->k1];
         return (j + 1 == plan->segment_count && t >= plan->duration) ? VEER_PHASE_DONE : VEER_PHASE_DWELL;
     }
-    /* Within a grid interval sddot is constant: s(t) is a quadratic. */
-    int k = sg->k0 + find(plan->t + sg->k0, sg->k1 - sg->k0 + 1, t);
-    if (k >= sg->k1) k = sg->k1 - 1;
-    double ds = plan->s[k + 1] - plan->s[k];
-    double v0 = sqrt(plan->x[k]);
-    double u = (plan->x[k + 1] - plan->x[k]) / (2.0 * ds);
-    double tau = t - plan->t[k];
-    double v = v0 + u * tau;
-    double pos = plan->s[k] + v0 * tau + 0.5 * u * tau * tau;
-    *sdot = v > 0.0 ? v : 0.0;
-    *sddot = u;
-    *s = pos < plan->s[k] ? plan->s[k] : pos > plan->s[k + 1] ? plan->s[k + 1] : pos;
+    veer__segment_law(plan, j, t - sg->t_move, s, sdot, sddot);
     return VEER_PHASE_MOVING;
 }
 
