@@ -1,0 +1,434 @@
+/* Frames on the air (proto/veer/v1/link.proto): length, LinkFrame encoding,
+ * CRC-32. The ground side's sender (sealed plan cut into chunks), command
+ * frames and the parser of what a cart sends back; the cart side's gap
+ * report and player report frames.
+ * SPDX-License-Identifier: MIT */
+#include <string.h>
+#include <pb_decode.h>
+#include <pb_encode.h>
+#include "link_internal.h"
+
+#define NONE_ID veer__limit(VEER_LIMIT_NONE, -1)
+#define LINK_FAIL(diag, status, ...) veer__fail((diag), (status), -1, -1, -1, -1.0, NONE_ID, __VA_ARGS__)
+
+/* ---- reasons ------------------------------------------------------------ */
+
+const char *veer_link_reason_name(int reason) {
+    switch (reason) {
+#define VEER_LINK_REASON_NAME_(name, value, text) \
+    case value:                                   \
+        return #name;
+        VEER_LINK_REASON_TABLE(VEER_LINK_REASON_NAME_)
+#undef VEER_LINK_REASON_NAME_
+    default:
+        return "UNKNOWN";
+    }
+}
+
+const char *veer_link_reason_str(int reason) {
+    switch (reason) {
+#define VEER_LINK_REASON_STR_(name, value, text) \
+    case value:                                  \
+        return text;
+        VEER_LINK_REASON_TABLE(VEER_LINK_REASON_STR_)
+#undef VEER_LINK_REASON_STR_
+    default:
+        return "unknown reason";
+    }
+}
+
+/* ---- definition --------------------------------------------------------- */
+
+veer_link_def veer_default_link_def(void) {
+    veer_link_def d;
+    memset(&d, 0, sizeof d);
+    d.frame_size = VEER_LINK_FRAME_DEFAULT;
+    return d;
+}
+
+veer_status veer_link_def_check(const veer_link_def *def, veer_diag *diag) {
+    if (!def) return LINK_FAIL(diag, VEER_ERR_NULL, "link definition is NULL");
+    if (def->frame_size < VEER_LINK_FRAME_MIN || def->frame_size > VEER_LINK_FRAME_MAX)
+        return LINK_FAIL(diag, VEER_ERR_VALUE, "link frame_size %d is outside %d..%d bytes", def->frame_size,
+                         VEER_LINK_FRAME_MIN, VEER_LINK_FRAME_MAX);
+    uint8_t any = 0;
+    for (int i = 0; i < VEER_LINK_KEY_BYTES; i++) any |= def->key[i];
+    if (!any) return LINK_FAIL(diag, VEER_ERR_VALUE, "link key is all zero: set the cart's pre-shared key");
+    veer__diag_ok(diag);
+    return VEER_OK;
+}
+
+/* ---- chunking ----------------------------------------------------------- */
+
+static size_t varint_size(uint64_t v) {
+    size_t n = 1;
+    while (v >= 0x80u) v >>= 7, n++;
+    return n;
+}
+
+/* A field with a varint value, left out when zero (proto3). */
+static size_t varint_field(uint64_t v) { return v ? 1 + varint_size(v) : 0; }
+
+/* Frame size of chunk index with `data` bytes: length prefix, LinkFrame
+ * encoding as nanopb writes it, CRC. */
+static size_t chunk_frame_size(uint32_t cart, uint64_t plan_id, uint32_t index, uint32_t count, uint32_t sealed,
+                               uint32_t data) {
+    size_t chunk = varint_field(plan_id) + varint_field(index) + varint_field(count) + varint_field(sealed) +
+                   (data ? 1 + varint_size(data) + data : 0);
+    size_t body = varint_field(cart) + 1 + varint_size(chunk) + chunk;
+    return varint_size(body) + body + 4;
+}
+
+uint32_t veer__link_chunk_bytes(uint32_t count, uint32_t sealed) {
+    if (count == 0 || sealed == 0 || count > sealed) return 0;
+    uint32_t d = (uint32_t)(((uint64_t)sealed + count - 1) / count);
+    /* The pair must be what the sender makes: count = ceil(sealed / d). */
+    if ((uint32_t)(((uint64_t)sealed + d - 1) / d) != count) return 0;
+    return d;
+}
+
+uint32_t veer__link_chunk_length(uint32_t index, uint32_t count, uint32_t sealed) {
+    uint32_t d = veer__link_chunk_bytes(count, sealed);
+    if (!d || index >= count) return 0;
+    uint64_t off = (uint64_t)index * d;
+    return (uint32_t)((uint64_t)sealed - off < d ? (uint64_t)sealed - off : d);
+}
+
+int veer__link_chunking(uint32_t cart, uint64_t plan_id, uint32_t sealed, int frame_size, uint32_t *count,
+                        uint32_t *chunk_bytes) {
+    if (sealed == 0 || frame_size < VEER_LINK_FRAME_MIN || frame_size > VEER_LINK_FRAME_MAX) return 0;
+    uint32_t n = 1;
+    /* The header grows with the count's varints: iterate to the fixed point
+     * (monotone, a few rounds). */
+    for (int round = 0; round < 16; round++) {
+        uint32_t dmax = 0;
+        for (uint32_t d = (uint32_t)frame_size; d > 0; d--)
+            if (chunk_frame_size(cart, plan_id, n - 1, n, sealed, d) <= (size_t)frame_size) {
+                dmax = d;
+                break;
+            }
+        if (dmax == 0) return 0;
+        uint32_t need = (uint32_t)(((uint64_t)sealed + dmax - 1) / dmax);
+        if (need <= n) break;
+        n = need;
+    }
+    if (n > VEER_LINK_MAX_CHUNKS) return 0;
+    uint32_t d = veer__link_chunk_bytes(n, sealed);
+    if (!d) return 0;
+    *count = n;
+    *chunk_bytes = d;
+    return 1;
+}
+
+/* ---- encoding and decoding ---------------------------------------------- */
+
+static void put_crc(uint8_t *p, uint32_t crc) {
+    for (int i = 0; i < 4; i++) p[i] = (uint8_t)(crc >> (8 * i));
+}
+
+veer_status veer__link_encode(const veer_link_def *def, veer_v1_LinkFrame *frame, int tagged, uint8_t *out,
+                              size_t capacity, size_t *size) {
+    frame->tag.size = 0;
+    size_t body = 0;
+    if (!pb_get_encoded_size(&body, veer_v1_LinkFrame_fields, frame)) return VEER_ERR_CAPACITY;
+    if (tagged) body += VEER__LINK_TAG_FIELD_BYTES;
+    size_t total = varint_size(body) + body + 4;
+    *size = total;
+    if (total > (size_t)def->frame_size) return VEER_ERR_CAPACITY;
+    if (!out || capacity < total) return VEER_ERR_BUFFER;
+    uint8_t tmp[VEER_LINK_FRAME_MAX];
+    pb_ostream_t os = pb_ostream_from_buffer(tmp, sizeof tmp);
+    if (!pb_encode_varint(&os, body)) return VEER_ERR_CAPACITY;
+    size_t head = os.bytes_written;
+    if (!pb_encode(&os, veer_v1_LinkFrame_fields, frame)) return VEER_ERR_CAPACITY;
+    size_t n = os.bytes_written;
+    if (tagged) {
+        uint8_t tag[VEER_LINK_FRAME_TAG_BYTES];
+        veer_status st = veer__link_frame_tag(def->key, tmp + head, n - head, tag);
+        if (st != VEER_OK) return st;
+        tmp[n++] = (uint8_t)(veer_v1_LinkFrame_tag_tag << 3 | PB_WT_STRING);
+        tmp[n++] = VEER_LINK_FRAME_TAG_BYTES;
+        memcpy(tmp + n, tag, VEER_LINK_FRAME_TAG_BYTES);
+        n += VEER_LINK_FRAME_TAG_BYTES;
+    }
+    if (n + 4 != total) return VEER_ERR_CAPACITY; /* sizing and writing disagree: cannot happen */
+    put_crc(tmp + n, veer_link_crc32(0, tmp, n));
+    memcpy(out, tmp, total);
+    return VEER_OK;
+}
+
+static int tagged_kind(pb_size_t which) {
+    return which == veer_v1_LinkFrame_command_tag || which == veer_v1_LinkFrame_gaps_tag ||
+           which == veer_v1_LinkFrame_report_tag;
+}
+
+int veer__link_decode(const veer_link_def *def, const uint8_t *bytes, size_t size, veer_v1_LinkFrame *frame) {
+    if (size > (size_t)def->frame_size) return VEER_LINK_FRAME_SIZE;
+    if (!bytes || size < 1) return VEER_LINK_TRUNCATED;
+    /* Length prefix: at most two bytes for frames of up to 1024 bytes. */
+    uint64_t body = 0;
+    size_t head = 0;
+    for (int shift = 0;; shift += 7) {
+        if (head >= size) return VEER_LINK_TRUNCATED;
+        if (shift > 7) return VEER_LINK_MALFORMED;
+        uint8_t b = bytes[head++];
+        body |= (uint64_t)(b & 0x7Fu) << shift;
+        if (!(b & 0x80u)) break;
+    }
+    if (body > (size_t)def->frame_size) return VEER_LINK_MALFORMED;
+    size_t total = head + (size_t)body + 4;
+    if (size < total) return VEER_LINK_TRUNCATED;
+    if (size > total) return VEER_LINK_MALFORMED;
+    uint32_t crc = (uint32_t)bytes[total - 4] | (uint32_t)bytes[total - 3] << 8 | (uint32_t)bytes[total - 2] << 16 |
+                   (uint32_t)bytes[total - 1] << 24;
+    if (veer_link_crc32(0, bytes, total - 4) != crc) return VEER_LINK_CRC;
+    const uint8_t *b = bytes + head;
+    memset(frame, 0, sizeof *frame);
+    pb_istream_t in = pb_istream_from_buffer(b, (size_t)body);
+    if (!pb_decode(&in, veer_v1_LinkFrame_fields, frame) || frame->which_body == 0) return VEER_LINK_MALFORMED;
+    if (frame->cart != def->cart) return VEER_LINK_OTHER_CART;
+    if (!tagged_kind(frame->which_body)) return frame->tag.size == 0 ? VEER_LINK_NONE : VEER_LINK_MALFORMED;
+    /* The tag must be the encoding's last field, exactly once at the end. */
+    size_t n = (size_t)body;
+    if (frame->tag.size != VEER_LINK_FRAME_TAG_BYTES || n < VEER__LINK_TAG_FIELD_BYTES ||
+        b[n - VEER__LINK_TAG_FIELD_BYTES] != (uint8_t)(veer_v1_LinkFrame_tag_tag << 3 | PB_WT_STRING) ||
+        b[n - VEER__LINK_TAG_FIELD_BYTES + 1] != VEER_LINK_FRAME_TAG_BYTES ||
+        memcmp(b + n - VEER_LINK_FRAME_TAG_BYTES, frame->tag.bytes, VEER_LINK_FRAME_TAG_BYTES) != 0)
+        return VEER_LINK_FRAME_TAG;
+    uint8_t tag[VEER_LINK_FRAME_TAG_BYTES];
+    if (veer__link_frame_tag(def->key, b, n - VEER__LINK_TAG_FIELD_BYTES, tag) != VEER_OK ||
+        !veer__link_equal16(tag, frame->tag.bytes))
+        return VEER_LINK_FRAME_TAG;
+    return VEER_LINK_NONE;
+}
+
+/* ---- ground side: sender ------------------------------------------------ */
+
+struct veer_link_sender {
+    size_t alloc_size;
+    veer_link_def def;
+    uint64_t plan_id;
+    uint32_t count, chunk_bytes, sealed;
+    uint8_t tag[VEER_LINK_PLAN_TAG_BYTES];
+    uint8_t data[]; /* sealed plan: Plan bytes, then the tag */
+};
+
+veer_status veer_link_sender_create(const veer_link_def *def, uint64_t plan_id, const uint8_t *plan,
+                                    size_t plan_size, veer_link_sender **out, veer_diag *diag) {
+    if (!out) return LINK_FAIL(diag, VEER_ERR_NULL, "out is NULL");
+    *out = NULL;
+    veer_status st = veer_link_def_check(def, diag);
+    if (st != VEER_OK) return st;
+    if (!plan) return LINK_FAIL(diag, VEER_ERR_NULL, "plan bytes are NULL");
+    if (plan_size == 0 || plan_size > VEER_LINK_MAX_PLAN_BYTES)
+        return LINK_FAIL(diag, VEER_ERR_CAPACITY, "plan of %zu bytes: the link carries 1..%d bytes", plan_size,
+                         VEER_LINK_MAX_PLAN_BYTES);
+    if (plan_id == 0) return LINK_FAIL(diag, VEER_ERR_VALUE, "plan_id 0 is never accepted: counters start at 1");
+    uint32_t sealed = (uint32_t)plan_size + VEER_LINK_PLAN_TAG_BYTES, count = 0, chunk = 0;
+    if (!veer__link_chunking(def->cart, plan_id, sealed, def->frame_size, &count, &chunk))
+        return LINK_FAIL(diag, VEER_ERR_CAPACITY, "a %u-byte sealed plan does not fit %d chunks of %d-byte frames",
+                         (unsigned)sealed, VEER_LINK_MAX_CHUNKS, def->frame_size);
+    size_t bytes = sizeof(veer_link_sender) + sealed;
+    veer_link_sender *s = veer__alloc(bytes);
+    if (!s) return LINK_FAIL(diag, VEER_ERR_NO_MEMORY, "out of memory");
+    s->alloc_size = bytes;
+    s->def = *def;
+    s->plan_id = plan_id;
+    s->count = count;
+    s->chunk_bytes = chunk;
+    s->sealed = sealed;
+    memcpy(s->data, plan, plan_size);
+    st = veer__link_plan_tag(def->key, def->cart, plan_id, plan, plan_size, s->tag);
+    if (st != VEER_OK) {
+        veer__free(s, bytes);
+        return LINK_FAIL(diag, st, "libsodium did not start");
+    }
+    memcpy(s->data + plan_size, s->tag, VEER_LINK_PLAN_TAG_BYTES);
+    *out = s;
+    veer__diag_ok(diag);
+    return VEER_OK;
+}
+
+void veer_link_sender_destroy(veer_link_sender *s) {
+    if (!s) return;
+    size_t bytes = s->alloc_size;
+    memset(s, 0, bytes);
+    veer__free(s, bytes);
+}
+
+int veer_link_sender_chunk_count(const veer_link_sender *s) { return s ? (int)s->count : 0; }
+
+veer_status veer_link_sender_tag(const veer_link_sender *s, uint8_t tag[32]) {
+    if (!s || !tag) return VEER_ERR_NULL;
+    memcpy(tag, s->tag, VEER_LINK_PLAN_TAG_BYTES);
+    return VEER_OK;
+}
+
+veer_status veer_link_sender_frame(const veer_link_sender *s, int index, uint8_t *out, size_t capacity,
+                                   size_t *size) {
+    if (!s || !size) return VEER_ERR_NULL;
+    if (index < 0 || (uint32_t)index >= s->count) return VEER_ERR_VALUE;
+    veer_v1_LinkFrame f;
+    memset(&f, 0, sizeof f);
+    f.cart = s->def.cart;
+    f.which_body = veer_v1_LinkFrame_chunk_tag;
+    veer_v1_PlanChunk *c = &f.body.chunk;
+    c->plan_id = s->plan_id;
+    c->index = (uint32_t)index;
+    c->count = s->count;
+    c->sealed_size = s->sealed;
+    uint32_t len = veer__link_chunk_length((uint32_t)index, s->count, s->sealed);
+    c->data.size = (pb_size_t)len;
+    memcpy(c->data.bytes, s->data + (size_t)index * s->chunk_bytes, len);
+    return veer__link_encode(&s->def, &f, 0, out, capacity, size);
+}
+
+veer_status veer_link_command_frame(const veer_link_def *def, uint64_t seq, int kind, uint64_t plan_id, uint8_t *out,
+                                    size_t capacity, size_t *size) {
+    if (!def || !size) return VEER_ERR_NULL;
+    if (veer_link_def_check(def, NULL) != VEER_OK || seq == 0 || kind < VEER_LINK_COMMAND_HEARTBEAT ||
+        kind > VEER_LINK_COMMAND_STOP)
+        return VEER_ERR_VALUE;
+    veer_v1_LinkFrame f;
+    memset(&f, 0, sizeof f);
+    f.cart = def->cart;
+    f.which_body = veer_v1_LinkFrame_command_tag;
+    f.body.command.seq = seq;
+    f.body.command.kind = (veer_v1_CommandKind)kind;
+    f.body.command.plan_id = plan_id;
+    return veer__link_encode(def, &f, 1, out, capacity, size);
+}
+
+/* ---- cart side: gap reports and player reports -------------------------- */
+
+veer_status veer__link_gaps_frame(const veer_link_def *def, const veer_link_gaps *g, uint8_t *out, size_t capacity,
+                                  size_t *size) {
+    veer_v1_LinkFrame f;
+    memset(&f, 0, sizeof f);
+    f.cart = def->cart;
+    f.which_body = veer_v1_LinkFrame_gaps_tag;
+    veer_v1_GapReport *m = &f.body.gaps;
+    m->plan_id = g->plan_id;
+    m->count = g->count;
+    m->base = g->base;
+    m->missing_count = g->missing_count;
+    m->complete = g->complete != 0;
+    m->verdict = (veer_v1_LinkReason)g->verdict;
+    size_t bytes = (g->bits + 7u) / 8u;
+    if (bytes > sizeof m->missing.bytes) bytes = sizeof m->missing.bytes;
+    /* As much of the bitmap as the frame holds. */
+    for (;;) {
+        m->missing.size = (pb_size_t)bytes;
+        memcpy(m->missing.bytes, g->missing, bytes);
+        if (bytes > 0 && g->bits < bytes * 8u) /* clear bits past the described ones */
+            m->missing.bytes[bytes - 1] &= (uint8_t)((1u << (g->bits - (bytes - 1) * 8u)) - 1u);
+        veer_status st = veer__link_encode(def, &f, 1, out, capacity, size);
+        if (st != VEER_ERR_CAPACITY || bytes == 0) return st;
+        size_t over = *size - (size_t)def->frame_size;
+        bytes = over >= bytes ? 0 : bytes - (over > 0 ? over : 1);
+    }
+}
+
+void veer__link_report_to_pb(const veer_link_report *r, veer_v1_PlayerReport *m) {
+    memset(m, 0, sizeof *m);
+    m->state = (veer_v1_PlayerState)r->state;
+    m->plan_id = r->plan_id;
+    m->t = r->t;
+    m->s = r->s;
+    m->sdot = r->sdot;
+    m->leg = r->leg;
+    m->stop_reason = (veer_v1_StopReason)r->stop_reason;
+    m->last_rejection = (veer_v1_LinkReason)r->last_rejection;
+    m->accepted_plan_id = r->accepted_plan_id;
+    m->command_seq = r->command_seq;
+    m->x = r->pose[0];
+    m->y = r->pose[1];
+    m->yaw = r->pose[2];
+    m->report_seq = r->report_seq;
+}
+
+veer_status veer__link_report_frame(const veer_link_def *def, const veer_link_report *r, uint8_t *out,
+                                    size_t capacity, size_t *size) {
+    veer_v1_LinkFrame f;
+    memset(&f, 0, sizeof f);
+    f.cart = def->cart;
+    f.which_body = veer_v1_LinkFrame_report_tag;
+    veer__link_report_to_pb(r, &f.body.report);
+    return veer__link_encode(def, &f, 1, out, capacity, size);
+}
+
+/* ---- ground side: parsing ----------------------------------------------- */
+
+static int finite3(double a, double b, double c) { return isfinite(a) && isfinite(b) && isfinite(c); }
+
+veer_status veer_link_parse(const veer_link_def *def, const uint8_t *frame, size_t size, veer_link_message *out,
+                            int *reason) {
+    if (reason) *reason = VEER_LINK_MALFORMED;
+    if (!def || !out || (!frame && size)) return VEER_ERR_NULL;
+    if (veer_link_def_check(def, NULL) != VEER_OK) return VEER_ERR_VALUE;
+    veer_v1_LinkFrame f;
+    int why = veer__link_decode(def, frame, size, &f);
+    veer_link_message m;
+    memset(&m, 0, sizeof m);
+    m.cart = f.cart;
+    if (why == VEER_LINK_NONE) switch (f.which_body) {
+        case veer_v1_LinkFrame_chunk_tag: {
+            const veer_v1_PlanChunk *c = &f.body.chunk;
+            m.kind = VEER_LINK_KIND_CHUNK;
+            m.plan_id = c->plan_id;
+            m.chunk_index = c->index;
+            m.chunk_count = c->count;
+            m.sealed_size = c->sealed_size;
+            m.data_size = c->data.size;
+            break;
+        }
+        case veer_v1_LinkFrame_command_tag:
+            m.kind = VEER_LINK_KIND_COMMAND;
+            m.seq = f.body.command.seq;
+            m.command = (int)f.body.command.kind;
+            m.plan_id = f.body.command.plan_id;
+            break;
+        case veer_v1_LinkFrame_gaps_tag: {
+            const veer_v1_GapReport *g = &f.body.gaps;
+            m.kind = VEER_LINK_KIND_GAPS;
+            m.gaps.plan_id = g->plan_id;
+            m.gaps.count = g->count;
+            m.gaps.base = g->base;
+            m.gaps.bits = (uint32_t)g->missing.size * 8u;
+            memcpy(m.gaps.missing, g->missing.bytes, g->missing.size);
+            m.gaps.missing_count = g->missing_count;
+            m.gaps.complete = g->complete;
+            m.gaps.verdict = (int)g->verdict;
+            if (g->count > VEER_LINK_MAX_CHUNKS || g->base > g->count || g->missing_count > g->count)
+                why = VEER_LINK_CHUNK_RANGE;
+            break;
+        }
+        case veer_v1_LinkFrame_report_tag: {
+            const veer_v1_PlayerReport *r = &f.body.report;
+            m.kind = VEER_LINK_KIND_REPORT;
+            veer_link_report *o = &m.report;
+            o->state = (int)r->state;
+            o->plan_id = r->plan_id;
+            o->t = r->t;
+            o->s = r->s;
+            o->sdot = r->sdot;
+            o->leg = r->leg;
+            o->stop_reason = (int)r->stop_reason;
+            o->last_rejection = (int)r->last_rejection;
+            o->accepted_plan_id = r->accepted_plan_id;
+            o->command_seq = r->command_seq;
+            o->pose[0] = r->x;
+            o->pose[1] = r->y;
+            o->pose[2] = r->yaw;
+            o->report_seq = r->report_seq;
+            if (!finite3(r->t, r->s, r->sdot) || !finite3(r->x, r->y, r->yaw)) why = VEER_LINK_MALFORMED;
+            break;
+        }
+        default:
+            why = VEER_LINK_MALFORMED;
+        }
+    if (reason) *reason = why;
+    if (why != VEER_LINK_NONE) return VEER_ERR_DECODE;
+    *out = m;
+    return VEER_OK;
+}

@@ -1,0 +1,90 @@
+/* veer internals of the radio link (link_*.c) and the player (player.c).
+ * Not installed; nanopb types stay behind this header.
+ * SPDX-License-Identifier: MIT */
+#ifndef VEER_LINK_INTERNAL_H
+#define VEER_LINK_INTERNAL_H
+
+#include <stdint.h>
+#include <pb.h>
+#include "internal.h"
+#include "veer/link.h"
+#include "veer/player.h"
+#include "veer/v1/link.pb.h"
+
+/* Bytes of a sealed plan at most: Plan bytes and the plan tag. */
+#define VEER__LINK_MAX_SEALED (VEER_LINK_MAX_PLAN_BYTES + VEER_LINK_PLAN_TAG_BYTES)
+/* Encoded tag field at a frame's end: key 15 / wire type 2, length 16, tag. */
+#define VEER__LINK_TAG_FIELD_BYTES (2 + VEER_LINK_FRAME_TAG_BYTES)
+
+/* ---- link_mac.c: HMAC-SHA-256 over the link's messages ------------------- */
+
+/* Plan tag over "veer-link-plan-1" || cart || plan_id || size || plan (RFC 2104). */
+veer_status veer__link_plan_tag(const uint8_t key[VEER_LINK_KEY_BYTES], uint32_t cart, uint64_t plan_id,
+                                const uint8_t *plan, size_t size, uint8_t tag[VEER_LINK_PLAN_TAG_BYTES]);
+/* Frame tag over "veer-link-frame-1" || body, truncated to 16 bytes (RFC 2104 section 5). */
+veer_status veer__link_frame_tag(const uint8_t key[VEER_LINK_KEY_BYTES], const uint8_t *body, size_t size,
+                                 uint8_t tag[VEER_LINK_FRAME_TAG_BYTES]);
+/* Constant-time comparisons (libsodium crypto_verify_*): 1 when equal. */
+int veer__link_equal32(const uint8_t a[32], const uint8_t b[32]);
+int veer__link_equal16(const uint8_t a[16], const uint8_t b[16]);
+/* libsodium's own start-up (sodium_init), idempotent; 0 on success. */
+int veer__link_crypto_ready(void);
+
+/* ---- link_frame.c: frames on the air -------------------------------------- */
+
+/* Chunking of a sealed plan of `sealed` bytes for frames of frame_size
+ * bytes: chunk count and bytes per chunk (all but the last). 0 when it
+ * cannot be cut into at most VEER_LINK_MAX_CHUNKS chunks. */
+int veer__link_chunking(uint32_t cart, uint64_t plan_id, uint32_t sealed, int frame_size, uint32_t *count,
+                        uint32_t *chunk_bytes);
+/* Bytes per chunk (all but the last) a (count, sealed) pair implies, and
+ * the length of chunk index; 0 when the pair is inconsistent. */
+uint32_t veer__link_chunk_bytes(uint32_t count, uint32_t sealed);
+uint32_t veer__link_chunk_length(uint32_t index, uint32_t count, uint32_t sealed);
+
+/* Encodes frame (tagged when tagged) with its CRC-32 into out. Buffer rules
+ * as wire.h. VEER_ERR_CAPACITY when the frame is larger than frame_size. */
+veer_status veer__link_encode(const veer_link_def *def, veer_v1_LinkFrame *frame, int tagged, uint8_t *out,
+                              size_t capacity, size_t *size);
+/* Checks a frame's size and CRC and decodes it into frame; for tagged kinds
+ * (command, gaps, report) checks the tag. Returns a veer_link_reason. */
+int veer__link_decode(const veer_link_def *def, const uint8_t *bytes, size_t size, veer_v1_LinkFrame *frame);
+
+/* The frames of a cart's gap report and of a player report. */
+veer_status veer__link_gaps_frame(const veer_link_def *def, const veer_link_gaps *g, uint8_t *out,
+                                  size_t capacity, size_t *size);
+veer_status veer__link_report_frame(const veer_link_def *def, const veer_link_report *r, uint8_t *out,
+                                    size_t capacity, size_t *size);
+/* A report as a PlayerReport message. */
+void veer__link_report_to_pb(const veer_link_report *r, veer_v1_PlayerReport *m);
+
+/* ---- link_receiver.c: the cart's receiver -------------------------------- */
+
+struct veer_link_receiver {
+    veer_link_def def;
+    uint64_t accepted;          /* highest plan counter accepted */
+    uint64_t command_seq;       /* highest command sequence accepted */
+    /* The plan in reassembly. */
+    int active;                 /* 1 while a plan is being received or waits to be settled */
+    int ready;                  /* 1: complete, tag verified, waits for veer_link_receiver_settle */
+    uint64_t plan_id;
+    uint32_t count, sealed, chunk_bytes, have;
+    uint8_t bitmap[VEER_LINK_MAX_CHUNKS / 8]; /* bit set: chunk held */
+    /* The last plan that came complete, and what became of it. */
+    uint64_t last_plan_id;
+    uint32_t last_count;
+    int last_verdict;
+    uint32_t counts[VEER_LINK_REASON_COUNT];
+    uint8_t buf[VEER__LINK_MAX_SEALED];
+};
+
+/* Sets up a receiver in place (def already checked). */
+void veer__link_receiver_setup(veer_link_receiver *rx, const veer_link_def *def, uint64_t accepted,
+                               uint64_t command_seq);
+
+/* Canonical fingerprint of a drive and limits: SHA-256 of their canonical
+ * DriveDef and Limits encodings (wire_internal.h's *_to_pb), each preceded
+ * by its length. */
+veer_status veer__link_config_hash(const veer_drive_def *drive, const veer_limits *limits, uint8_t hash[32]);
+
+#endif

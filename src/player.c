@@ -1,0 +1,498 @@
+/* The player (cart side): arms plans the link hands over, steps the armed
+ * plan at the control rate, stops under control on command, on a local
+ * request and when the link goes quiet, and reports its state.
+ *
+ * Memory: the player struct (with its receiver) and two plan workspaces
+ * (veer_plan_load_pb). A new plan is decoded into the workspace that does
+ * not hold the armed plan, and the switch is one pointer assignment after
+ * every check passed: a plan that fails leaves the armed one as it was.
+ *
+ * The controlled stop is veer__stop_step (stop.c), the braking the range
+ * checks and veer_plan_stop_sample use: the hardest deceleration the plan's
+ * own limits allow at each point, integrated in 1 ms steps.
+ * SPDX-License-Identifier: MIT */
+#include <string.h>
+#include <sodium.h>
+#include "link_internal.h"
+#include "wire_internal.h"
+
+#define NONE_ID veer__limit(VEER_LIMIT_NONE, -1)
+#define PLAYER_FAIL(diag, status, ...) veer__fail((diag), (status), -1, -1, -1, -1.0, NONE_ID, __VA_ARGS__)
+
+#define STOP_ADVANCE_MAX 0.1 /* s of braking one call advances at most (bounded work) */
+#define ALIGN16(n) (((size_t)(n) + 15u) & ~(size_t)15u)
+
+struct veer_player {
+    size_t memory_size;
+    veer_player_def def;
+    uint8_t drive_hash[32], limits_hash[32]; /* canonical fingerprints of the cart's drive and limits */
+    int module_count;
+    int state, stop_reason, last_rejection;
+    uint64_t plan_id;          /* armed, running or last plan */
+    const veer_plan *plan;     /* in work[active]; NULL before the first */
+    int active;
+    unsigned char *work[2];
+    double last_now;           /* latest time a call saw (the clock must not go back) */
+    int seen_time;
+    double last_auth;          /* time of the latest authenticated frame */
+    double t_start;            /* clock time the plan started */
+    /* The controlled stop: state at clock time stop_clock. */
+    int seg;
+    double s, sdot, sddot, stop_clock, stop_t0, stop_clock0;
+    veer_sample last;          /* latest output */
+    uint32_t report_seq;
+    veer_link_receiver rx;
+};
+
+/* ---- names -------------------------------------------------------------- */
+
+#define TABLE_LOOKUP(fn, TABLE, field, fallback)        \
+    const char *fn(int v) {                             \
+        switch (v) {                                    \
+            TABLE(field)                                \
+        default:                                        \
+            return fallback;                            \
+        }                                               \
+    }
+#define NAME_CASE_(name, value, text) \
+    case value:                       \
+        return #name;
+#define TEXT_CASE_(name, value, text) \
+    case value:                       \
+        return text;
+TABLE_LOOKUP(veer_player_state_name, VEER_PLAYER_STATE_TABLE, NAME_CASE_, "UNKNOWN")
+TABLE_LOOKUP(veer_player_state_str, VEER_PLAYER_STATE_TABLE, TEXT_CASE_, "unknown state")
+TABLE_LOOKUP(veer_stop_reason_name, VEER_STOP_REASON_TABLE, NAME_CASE_, "UNKNOWN")
+TABLE_LOOKUP(veer_stop_reason_str, VEER_STOP_REASON_TABLE, TEXT_CASE_, "unknown stop reason")
+
+/* ---- the cart's fingerprint --------------------------------------------- */
+
+static bool hash_write(pb_ostream_t *os, const pb_byte_t *buf, size_t count) {
+    crypto_hash_sha256_update(os->state, buf, count);
+    return true;
+}
+
+static veer_status hash_message(const pb_msgdesc_t *fields, const void *msg, uint8_t out[32]) {
+    size_t n = 0;
+    if (!pb_get_encoded_size(&n, fields, msg)) return VEER_ERR_CAPACITY;
+    crypto_hash_sha256_state st;
+    crypto_hash_sha256_init(&st);
+    uint8_t len[8];
+    for (int i = 0; i < 8; i++) len[i] = (uint8_t)((uint64_t)n >> (8 * i));
+    crypto_hash_sha256_update(&st, len, sizeof len);
+    pb_ostream_t os = {hash_write, &st, SIZE_MAX, 0, NULL};
+    if (!pb_encode(&os, fields, msg)) return VEER_ERR_CAPACITY;
+    crypto_hash_sha256_final(&st, out);
+    return VEER_OK;
+}
+
+/* SHA-256 of the canonical DriveDef and of the canonical Limits. */
+static veer_status config_hashes(const veer_drive_def *drive, const veer_limits *limits, uint8_t dh[32],
+                                 uint8_t lh[32]) {
+    union {
+        veer_v1_DriveDef d;
+        veer_v1_Limits l;
+    } m;
+    memset(&m, 0, sizeof m);
+    veer__wire_drive_to_pb(drive, &m.d);
+    veer_status st = hash_message(veer_v1_DriveDef_fields, &m.d, dh);
+    if (st != VEER_OK) return st;
+    memset(&m, 0, sizeof m);
+    veer__wire_limits_to_pb(limits, veer_drive_module_count(drive), &m.l);
+    return hash_message(veer_v1_Limits_fields, &m.l, lh);
+}
+
+veer_status veer__link_config_hash(const veer_drive_def *drive, const veer_limits *limits, uint8_t hash[32]) {
+    uint8_t dh[32], lh[32];
+    veer_status st = config_hashes(drive, limits, dh, lh);
+    if (st != VEER_OK) return st;
+    crypto_hash_sha256_state s;
+    crypto_hash_sha256_init(&s);
+    crypto_hash_sha256_update(&s, dh, 32);
+    crypto_hash_sha256_update(&s, lh, 32);
+    crypto_hash_sha256_final(&s, hash);
+    return VEER_OK;
+}
+
+/* ---- set-up ------------------------------------------------------------- */
+
+veer_player_def veer_default_player_def(void) {
+    veer_player_def d;
+    memset(&d, 0, sizeof d);
+    d.link = veer_default_link_def();
+    d.drive = veer_default_drive_def(VEER_DRIVE_STEERED);
+    d.limits = veer_default_limits();
+    d.link_timeout = 1.0;
+    return d;
+}
+
+size_t veer_player_size(void) { return ALIGN16(sizeof(veer_player)) + 2 * ALIGN16(veer_plan_workspace_size()); }
+
+/* The body at rest: the latest pose, zero rates, steer angles held. */
+static void rest_sample(veer_sample *o) {
+    o->sdot = o->sddot = 0.0;
+    o->phase = VEER_PHASE_DONE;
+    for (int k = 0; k < 3; k++) o->twist_world[k] = o->twist_body[k] = o->accel_world[k] = o->accel_body[k] = 0.0;
+    for (int i = 0; i < o->module_count; i++) {
+        o->modules[i].steer_rate = 0.0;
+        o->modules[i].wheel_rate = 0.0;
+        o->modules[i].wheel_accel = 0.0;
+    }
+}
+
+veer_status veer_player_init(void *memory, size_t size, const veer_player_def *def, veer_player **out,
+                             veer_diag *diag) {
+    if (!out) return PLAYER_FAIL(diag, VEER_ERR_NULL, "out is NULL");
+    *out = NULL;
+    if (!memory || !def) return PLAYER_FAIL(diag, VEER_ERR_NULL, "%s is NULL", !memory ? "memory" : "def");
+    if (size < veer_player_size() || ((uintptr_t)memory % sizeof(double)) != 0)
+        return PLAYER_FAIL(diag, VEER_ERR_VALUE, "player memory: needs %zu bytes aligned for double "
+                                                 "(veer_player_size())",
+                           veer_player_size());
+    veer_status st;
+    if ((st = veer_link_def_check(&def->link, diag))) return st;
+    if ((st = veer_drive_check(&def->drive, diag))) return st;
+    if ((st = veer__limits_check(&def->drive, &def->limits, diag))) return st;
+    if (!memchr(def->cart_name, 0, sizeof def->cart_name) || !veer__wire_utf8_ok(def->cart_name))
+        return PLAYER_FAIL(diag, VEER_ERR_VALUE, "cart_name must be UTF-8 of at most %zu bytes",
+                           sizeof def->cart_name - 1);
+    if (!(def->link_timeout >= 0.05 && def->link_timeout <= 60.0))
+        return PLAYER_FAIL(diag, VEER_ERR_VALUE, "link_timeout %g s is outside 0.05..60 s", def->link_timeout);
+    if (veer__link_crypto_ready() != 0) return PLAYER_FAIL(diag, VEER_ERR_STATE, "libsodium did not start");
+    uint8_t dh[32], lh[32];
+    if ((st = config_hashes(&def->drive, &def->limits, dh, lh)))
+        return PLAYER_FAIL(diag, st, "the cart's drive and limits do not encode");
+    veer_player *p = memory;
+    memset(p, 0, offsetof(veer_player, rx));
+    p->memory_size = size;
+    p->def = *def;
+    memcpy(p->drive_hash, dh, 32);
+    memcpy(p->limits_hash, lh, 32);
+    p->module_count = veer_drive_module_count(&def->drive);
+    p->state = VEER_PLAYER_IDLE;
+    p->stop_reason = VEER_STOP_NONE;
+    p->last_rejection = VEER_LINK_NONE;
+    unsigned char *base = (unsigned char *)memory + ALIGN16(sizeof(veer_player));
+    p->work[0] = base;
+    p->work[1] = base + ALIGN16(veer_plan_workspace_size());
+    memset(&p->last, 0, sizeof p->last);
+    p->last.module_count = p->module_count;
+    p->last.leg = -1;
+    rest_sample(&p->last);
+    veer__link_receiver_setup(&p->rx, &def->link, def->accepted_plan_id, def->command_seq);
+    *out = p;
+    veer__diag_ok(diag);
+    return VEER_OK;
+}
+
+/* ---- time and the sample ------------------------------------------------ */
+
+static int time_ok(const veer_player *p, double now) { return isfinite(now) && (!p->seen_time || now >= p->last_now); }
+
+static void saw(veer_player *p, double now) {
+    p->last_now = now;
+    p->seen_time = 1;
+}
+
+static int sample_finite(const veer_sample *o) {
+    double acc = o->t + o->s + o->sdot + o->sddot;
+    for (int k = 0; k < 3; k++)
+        acc += o->pose[k] + o->twist_world[k] + o->twist_body[k] + o->accel_world[k] + o->accel_body[k];
+    for (int i = 0; i < o->module_count; i++)
+        acc += o->modules[i].steer + o->modules[i].steer_rate + o->modules[i].wheel_rate + o->modules[i].wheel_accel;
+    return isfinite(acc);
+}
+
+static void fault(veer_player *p) {
+    p->state = VEER_PLAYER_FAULT;
+    p->stop_reason = VEER_STOP_FAULT;
+    rest_sample(&p->last);
+}
+
+/* ---- stopping ----------------------------------------------------------- */
+
+/* Stops at clock time T (>= the plan's start): brakes along the path from
+ * the plan's state at T, or stands at once if the body already stands. */
+static void begin_stop(veer_player *p, double T, int reason) {
+    double tp = T - p->t_start;
+    if (tp < 0.0) tp = 0.0;
+    if (tp > p->plan->duration) tp = p->plan->duration;
+    int seg;
+    double s, v, u;
+    int phase = veer__plan_state(p->plan, tp, &seg, &s, &v, &u);
+    p->stop_reason = reason;
+    if (phase == VEER_PHASE_MOVING && v > 0.0) {
+        p->state = VEER_PLAYER_STOPPING;
+        p->seg = seg;
+        p->s = s;
+        p->sdot = v;
+        p->sddot = u;
+        p->stop_clock = p->stop_clock0 = T;
+        p->stop_t0 = tp;
+        return;
+    }
+    /* Standing (re-steer phase, dwell, end): hold the modules where they are. */
+    veer_sample o;
+    if (veer_plan_sample(p->plan, tp, &o) != VEER_OK || !sample_finite(&o)) {
+        fault(p);
+        return;
+    }
+    p->last = o;
+    rest_sample(&p->last);
+    p->state = VEER_PLAYER_STOPPED;
+}
+
+/* Advances a controlled stop to clock time now (bounded) and writes its sample. */
+static void advance_stop(veer_player *p, double now) {
+    double dt = now - p->stop_clock;
+    if (dt > STOP_ADVANCE_MAX) dt = STOP_ADVANCE_MAX;
+    int moving = dt > 0.0 ? veer__stop_step(p->plan, p->seg, &p->s, &p->sdot, &p->sddot, dt) : p->sdot > 0.0;
+    p->stop_clock = now;
+    veer_sample o;
+    memset(&o, 0, sizeof o);
+    veer__sample_state(p->plan, p->seg, p->s, p->sdot, moving ? p->sddot : 0.0, &o);
+    o.t = p->stop_t0 + (now - p->stop_clock0);
+    o.phase = moving ? VEER_PHASE_MOVING : VEER_PHASE_DONE;
+    if (!sample_finite(&o)) {
+        fault(p);
+        return;
+    }
+    p->last = o;
+    if (!moving) {
+        rest_sample(&p->last);
+        p->state = VEER_PLAYER_STOPPED;
+    }
+}
+
+/* Ends a run whose plan time reached the duration. */
+static void end_of_plan(veer_player *p) {
+    veer_sample o;
+    if (veer_plan_sample(p->plan, p->plan->duration, &o) != VEER_OK || !sample_finite(&o)) {
+        fault(p);
+        return;
+    }
+    p->last = o;
+    rest_sample(&p->last);
+    p->state = VEER_PLAYER_STOPPED;
+    p->stop_reason = VEER_STOP_END_OF_PLAN;
+}
+
+/* The link watchdog: a running cart that heard nothing authentic for
+ * link_timeout stops, braking from the moment the timeout ran out. */
+static int watchdog(veer_player *p, double now) {
+    if (p->state != VEER_PLAYER_RUNNING) return 0;
+    double deadline = p->last_auth + p->def.link_timeout;
+    if (!(now > deadline)) return 0;
+    if (deadline - p->t_start >= p->plan->duration) { /* the plan had ended first */
+        end_of_plan(p);
+        return 0;
+    }
+    begin_stop(p, deadline > p->last.t + p->t_start ? deadline : p->last.t + p->t_start, VEER_STOP_LINK_LOST);
+    return 1;
+}
+
+/* ---- arming ------------------------------------------------------------- */
+
+/* The cart name a Plan message carries (field 11), or "" if none. */
+static int plan_names_other_cart(const uint8_t *bytes, size_t size, const char *name) {
+    if (!name[0]) return 0;
+    pb_istream_t in = pb_istream_from_buffer(bytes, size);
+    uint32_t tag;
+    pb_wire_type_t wt;
+    bool eof;
+    size_t found = 0;
+    const uint8_t *text = NULL;
+    while (pb_decode_tag(&in, &wt, &tag, &eof)) {
+        if (tag == veer_v1_Plan_cart_id_tag && wt == PB_WT_STRING) {
+            uint32_t n;
+            if (!pb_decode_varint32(&in, &n) || n > in.bytes_left) return 1;
+            text = bytes + (size - in.bytes_left);
+            found = n;
+            if (!pb_read(&in, NULL, n)) return 1;
+        } else if (!pb_skip_field(&in, wt)) {
+            return 1;
+        }
+    }
+    if (!text || found == 0) return 0; /* an unnamed plan: the tag and cart number bind it */
+    return found != strlen(name) || memcmp(text, name, found) != 0;
+}
+
+static int arm(veer_player *p, double now) {
+    const uint8_t *bytes;
+    size_t size;
+    uint64_t id;
+    if (veer_link_receiver_plan(&p->rx, &bytes, &size, &id) != VEER_OK) return VEER_LINK_STATE;
+    if (p->state == VEER_PLAYER_RUNNING || p->state == VEER_PLAYER_STOPPING) return VEER_LINK_BUSY;
+    if (p->state == VEER_PLAYER_FAULT) return VEER_LINK_STATE;
+    int standby = p->plan ? 1 - p->active : 0;
+    const veer_plan *plan = NULL;
+    if (veer_plan_load_pb(bytes, size, p->work[standby], ALIGN16(veer_plan_workspace_size()), &plan, NULL) !=
+            VEER_OK ||
+        !plan)
+        return VEER_LINK_DECODE;
+    if (plan_names_other_cart(bytes, size, p->def.cart_name)) return VEER_LINK_CART_NAME;
+    uint8_t dh[32], lh[32];
+    if (config_hashes(&plan->drive, &plan->limits, dh, lh) != VEER_OK) return VEER_LINK_DECODE;
+    if (memcmp(dh, p->drive_hash, 32) != 0) return VEER_LINK_DRIVE;
+    if (memcmp(lh, p->limits_hash, 32) != 0) return VEER_LINK_LIMITS;
+    /* Every check passed: switch. */
+    p->plan = plan;
+    p->active = standby;
+    p->plan_id = id;
+    p->state = VEER_PLAYER_ARMED;
+    p->last_auth = now;
+    veer_sample o;
+    if (veer_plan_sample(plan, 0.0, &o) == VEER_OK && sample_finite(&o)) {
+        /* Report the plan's start; the modules stay where they are until START. */
+        for (int i = 0; i < o.module_count && i < p->last.module_count; i++) o.modules[i].steer = p->last.modules[i].steer;
+        o.module_count = p->module_count;
+        p->last = o;
+        rest_sample(&p->last);
+        p->last.t = 0.0;
+    }
+    return VEER_LINK_NONE;
+}
+
+/* ---- frames ------------------------------------------------------------- */
+
+static int command(veer_player *p, int kind, uint64_t plan_id, double now, veer_player_event *ev) {
+    p->last_auth = now;
+    ev->report_due = 1;
+    switch (kind) {
+    case VEER_LINK_COMMAND_HEARTBEAT:
+        return VEER_LINK_NONE;
+    case VEER_LINK_COMMAND_START:
+        if (p->state != VEER_PLAYER_ARMED) return VEER_LINK_STATE;
+        if (plan_id != p->plan_id) return VEER_LINK_NOT_ARMED;
+        p->state = VEER_PLAYER_RUNNING;
+        p->t_start = now;
+        p->stop_reason = VEER_STOP_NONE;
+        ev->started = 1;
+        return VEER_LINK_NONE;
+    case VEER_LINK_COMMAND_STOP:
+        if (p->state == VEER_PLAYER_RUNNING) {
+            begin_stop(p, now, VEER_STOP_COMMAND);
+            ev->stopped = 1;
+        } else if (p->state == VEER_PLAYER_ARMED) { /* the armed plan is dropped: it can never start */
+            p->state = VEER_PLAYER_STOPPED;
+            p->stop_reason = VEER_STOP_COMMAND;
+            ev->stopped = 1;
+        }
+        return VEER_LINK_NONE;
+    default:
+        return VEER_LINK_COMMAND;
+    }
+}
+
+veer_status veer_player_frame(veer_player *p, const uint8_t *frame, size_t size, double now,
+                              veer_player_event *ev) {
+    if (!p || !ev) return VEER_ERR_NULL;
+    if (!time_ok(p, now)) return VEER_ERR_VALUE;
+    saw(p, now);
+    veer_player_event e;
+    memset(&e, 0, sizeof e);
+    if (watchdog(p, now)) e.stopped = 1;
+    veer_status st = veer_link_receive(&p->rx, frame, size, &e.link);
+    if (st != VEER_OK) return st; /* cannot happen: every ready plan is settled below */
+    e.reason = e.link.reason;
+    if (e.link.plan_ready) {
+        int verdict = arm(p, now);
+        st = veer_link_receiver_settle(&p->rx, verdict);
+        (void)st; /* the plan is ready and the verdict a valid reason */
+        e.reason = verdict;
+        e.armed = verdict == VEER_LINK_NONE;
+        e.report_due = 1;
+    }
+    if (e.link.command) e.reason = command(p, e.link.command, e.link.plan_id, now, &e);
+    if (e.reason != VEER_LINK_NONE && e.reason != VEER_LINK_DUPLICATE) p->last_rejection = e.reason;
+    *ev = e;
+    return VEER_OK;
+}
+
+/* ---- stepping ----------------------------------------------------------- */
+
+veer_status veer_player_step(veer_player *p, double now, veer_sample *out) {
+    if (!p || !out) return VEER_ERR_NULL;
+    if (!time_ok(p, now)) return VEER_ERR_VALUE;
+    saw(p, now);
+    watchdog(p, now);
+    if (p->state == VEER_PLAYER_RUNNING) {
+        double tp = now - p->t_start;
+        if (tp >= p->plan->duration) {
+            end_of_plan(p);
+        } else {
+            veer_sample o;
+            if (veer_plan_sample(p->plan, tp, &o) != VEER_OK || !sample_finite(&o)) fault(p);
+            else p->last = o;
+        }
+    } else if (p->state == VEER_PLAYER_STOPPING) {
+        advance_stop(p, now);
+    }
+    *out = p->last;
+    return VEER_OK;
+}
+
+veer_status veer_player_stop(veer_player *p, double now) {
+    if (!p) return VEER_ERR_NULL;
+    if (!time_ok(p, now)) return VEER_ERR_VALUE;
+    saw(p, now);
+    if (watchdog(p, now)) return VEER_OK;
+    if (p->state == VEER_PLAYER_RUNNING) {
+        begin_stop(p, now, VEER_STOP_LOCAL);
+    } else if (p->state == VEER_PLAYER_ARMED) {
+        p->state = VEER_PLAYER_STOPPED;
+        p->stop_reason = VEER_STOP_LOCAL;
+    }
+    return VEER_OK;
+}
+
+/* ---- reports ------------------------------------------------------------ */
+
+veer_status veer_player_status(const veer_player *p, veer_link_report *out) {
+    if (!p || !out) return VEER_ERR_NULL;
+    veer_link_report r;
+    memset(&r, 0, sizeof r);
+    r.state = p->state;
+    r.plan_id = p->plan_id;
+    r.t = p->last.t;
+    r.s = p->last.s;
+    r.sdot = p->last.sdot;
+    r.leg = p->plan ? p->last.leg : -1;
+    r.stop_reason = p->stop_reason;
+    r.last_rejection = p->last_rejection;
+    r.accepted_plan_id = p->rx.accepted;
+    r.command_seq = p->rx.command_seq;
+    for (int k = 0; k < 3; k++) r.pose[k] = p->last.pose[k];
+    r.report_seq = p->report_seq;
+    *out = r;
+    return VEER_OK;
+}
+
+veer_status veer_player_report_frame(veer_player *p, uint8_t *out, size_t capacity, size_t *size) {
+    if (!p || !size) return VEER_ERR_NULL;
+    veer_link_report r;
+    veer_status st = veer_player_status(p, &r);
+    if (st != VEER_OK) return st;
+    r.report_seq = p->report_seq + 1;
+    st = veer__link_report_frame(&p->def.link, &r, out, capacity, size);
+    if (st == VEER_OK) p->report_seq++;
+    return st;
+}
+
+veer_status veer_player_report_pb(const veer_player *p, uint8_t *out, size_t capacity, size_t *size) {
+    if (!p || !size) return VEER_ERR_NULL;
+    veer_link_report r;
+    veer_status st = veer_player_status(p, &r);
+    if (st != VEER_OK) return st;
+    veer_v1_PlayerReport m;
+    veer__link_report_to_pb(&r, &m);
+    return veer__wire_encode(veer_v1_PlayerReport_fields, &m, out, capacity, size, NULL);
+}
+
+veer_status veer_player_gap_frame(const veer_player *p, uint8_t *out, size_t capacity, size_t *size) {
+    if (!p) return VEER_ERR_NULL;
+    return veer_link_gap_frame(&p->rx, out, capacity, size);
+}
+
+const veer_plan *veer_player_plan(const veer_player *p) { return p ? p->plan : NULL; }
+const veer_link_receiver *veer_player_receiver(const veer_player *p) { return p ? &p->rx : NULL; }
