@@ -253,6 +253,50 @@ static veer_limit_id main_binding(const veer_plan *plan, int a, int b) {
     return best;
 }
 
+/* All speed-type and acceleration-type limits times g (jerk limits kept). */
+static veer_limits scaled_limits(const veer_limits *in, double g) {
+    veer_limits l = *in;
+    l.body_speed *= g;
+    l.body_accel *= g;
+    l.yaw_rate *= g;
+    l.yaw_accel *= g;
+    for (int i = 0; i < VEER_MAX_MODULES; i++) {
+        veer_module_limits *m = &l.modules[i];
+        m->wheel_rate *= g;
+        m->wheel_accel *= g;
+        m->steer_rate *= g;
+        m->traction_mu *= g;
+        m->motor_stall_accel *= g;
+        m->motor_free_rate *= g;
+    }
+    return l;
+}
+
+/* Jerk limits on segment j (solved within lim, steer angles known): fit the
+ * averaging window; if averaging takes another limit more than 0.5 % over,
+ * re-solve with every limit 3 % lower and fit again. */
+static veer_status shape_segment(veer_plan *plan, int j, const veer_limits *lim, double x_start, workspace *ws,
+                                 veer_diag *diag) {
+    /* The window averages the law with its own past: it needs rest before the
+     * segment, so a moving start's first stretch keeps its time-optimal law. */
+    if (!veer__has_jerk_limit(plan) || x_start > 0.0) return VEER_OK;
+    double g = 1.0;
+    for (int it = 0; it < 40; it++) {
+        if (veer__jerk_window(plan, j) <= 1.005) return VEER_OK;
+        g *= 0.97;
+        veer_limits sc = scaled_limits(lim, g);
+        veer_row_ctx ctx;
+        veer__row_ctx_init(&ctx, &plan->drive, &sc, &plan->options);
+        plan->segs[j].tau = 0.0;
+        veer_status st = solve_segment(plan, j, &ctx, x_start, ws, diag);
+        if (st != VEER_OK) return st;
+    }
+    const veer_path_segment *ps = &plan->path.segments[j];
+    return veer__fail(diag, VEER_ERR_INFEASIBLE, ps->leg, ps->waypoint, -1, ps->s_begin,
+                      veer__limit(VEER_LIMIT_BODY_JERK, -1),
+                      "leg %d: no jerk-limiting window keeps the other limits on this stretch", ps->leg);
+}
+
 /* Re-solves segments a..b with body speed and yaw rate capped at lambda
  * times their peaks v0, w0 on the fastest plan (a cap of 0 peak is left
  * off); returns the arrival at the end of b. */
@@ -264,7 +308,9 @@ static veer_status paced(veer_plan *plan, int a, int b, double lambda, double v0
     veer_row_ctx ctx;
     veer__row_ctx_init(&ctx, &plan->drive, &lim, &plan->options);
     for (int j = a; j <= b; j++) {
+        plan->segs[j].tau = 0.0;
         veer_status st = solve_segment(plan, j, &ctx, j == 0 ? plan->x_start : 0.0, ws, diag);
+        if (st == VEER_OK) st = shape_segment(plan, j, &lim, j == 0 ? plan->x_start : 0.0, ws, diag);
         if (st != VEER_OK) return st;
     }
     *arrival = arrival_of(plan, b);
@@ -456,6 +502,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     for (int j = 0; j < path->segment_count && st == VEER_OK; j++) {
         st = solve_segment(plan, j, &plan->rows, j == 0 ? plan->x_start : 0.0, &ws, diag);
         if (st == VEER_OK) st = veer__steer_segment(plan, j, from, ws.xi, diag);
+        if (st == VEER_OK) st = shape_segment(plan, j, &plan->limits, j == 0 ? plan->x_start : 0.0, &ws, diag);
         for (int i = 0; i < M && st == VEER_OK; i++) from[i] = plan->steer[(size_t)plan->segs[j].k1 * (size_t)M + (size_t)i];
     }
     if (st == VEER_OK && plan->x_start > 0.0) plan->segs[0].resteer_time = 0.0; /* already pointing along the motion */

@@ -174,6 +174,22 @@ veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, cons
 void veer__module_setpoints(const veer_plan *plan, int seg, const veer_point_kin *pk, double sdot, double sddot,
                             const double *ref, veer_module_setpoint *out);
 
+/* ---- verify.c: dense limit checks -------------------------------------- */
+
+#define VEER__CHECK_LIMITS 1 /* speeds, accelerations, steer, traction, motor */
+#define VEER__CHECK_JERK 2   /* body and wheel jerk, differenced */
+/* Samples segment j's motion every dt seconds (from the segment law, so it
+ * works before the plan's timeline exists) into r (zeroed by the caller). */
+void veer__check_segment(const veer_plan *plan, int j, double dt, int which, veer_check_report *r);
+
+/* ---- jerk.c: jerk-limiting windows ---------------------------------------- */
+
+int veer__has_jerk_limit(const veer_plan *plan);
+/* Sets segment j's averaging window to the smallest that keeps every jerk
+ * limit (sampled at 1 ms) and returns the worst ratio of the other limits
+ * after averaging. Needs the segment's law and steer angles. */
+double veer__jerk_window(veer_plan *plan, int j);
+
 /* ---- stop.c: controlled stop along the path ----------------------------- */
 
 /* Advances a controlled stop by dt seconds (internally in steps of at most

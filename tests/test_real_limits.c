@@ -329,3 +329,67 @@ Test(real_limits, replanning_on_the_move) {
     cr_assert(strstr(diag.message, "room to stop") != NULL, "%s", diag.message);
     veer_plan_destroy(p0);
 }
+
+/* Jerk: averaging a trapezoid's bang-bang acceleration (0 -> a -> 0 -> -a ->
+ * 0) over a window tau bounds the jerk by a / tau (the S-curve construction;
+ * any motion-control text), so a body jerk limit J costs tau = a / J: the
+ * D 10, v 2, a 1 line takes 7 + 1/2 s with J = 2 m/s^3. */
+Test(real_limits, jerk_limit_on_a_line) {
+    veer_drive_def d = veer_default_drive_def(VEER_DRIVE_STEERED);
+    veer_limits l = veer_default_limits();
+    l.body_speed = 2.0;
+    l.body_accel = 1.0;
+    l.body_jerk = 2.0;
+    veer_route r = line(10.0, 0.0);
+    veer_plan *p = must_plan(&d, &l, &r, NULL);
+    cr_assert(fabs(veer_plan_duration(p) - 7.5) < 0.02, "duration %.4f s, S-curve 7.5 s", veer_plan_duration(p));
+    veer_check_report rep;
+    cr_assert_eq(veer_plan_check_limits(p, 1e-3, &rep), VEER_OK);
+    cr_assert(rep.worst <= 1.01, "worst %.4f (kind %d)", rep.worst, rep.limit.kind);
+    assert_plan_within_limits(p, &d, &l, 0.01);
+    veer_plan_destroy(p);
+}
+
+/* Jerk limits for the body and every wheel on a curvy route with module
+ * limits: sampled jerk within 1 % and every other limit still held. */
+Test(real_limits, jerk_limits_on_curves) {
+    veer_drive_def d = veer_default_drive_def(VEER_DRIVE_STEERED);
+    veer_limits l = veer_default_limits();
+    for (int i = 0; i < 4; i++) {
+        l.modules[i].wheel_rate = 25.0;
+        l.modules[i].wheel_accel = 30.0;
+        l.modules[i].steer_rate = 4.0;
+        l.modules[i].wheel_jerk = 120.0;
+    }
+    l.body_speed = 2.0;
+    l.body_accel = 1.5;
+    l.yaw_rate = 1.0;
+    l.yaw_accel = 2.0;
+    l.body_jerk = 4.0;
+    veer_route r = veer_default_route(0.0, 0.0, 0.0);
+    veer_leg leg = veer_default_leg(VEER_LEG_TRAVEL);
+    leg.heading = VEER_HEADING_TANGENT;
+    leg.corner_tolerance = 0.5;
+    cr_assert_eq(veer_route_add_leg(&r, &leg), VEER_OK);
+    veer_waypoint w = veer_default_waypoint(4.0, 0.0);
+    cr_assert_eq(veer_route_add_waypoint(&r, &w), VEER_OK);
+    w = veer_default_waypoint(6.0, 3.0);
+    w.stop = 1;
+    cr_assert_eq(veer_route_add_waypoint(&r, &w), VEER_OK);
+    veer_plan *fast = NULL;
+    veer_limits nj = l;
+    nj.body_jerk = VEER_UNLIMITED;
+    for (int i = 0; i < 4; i++) nj.modules[i].wheel_jerk = VEER_UNLIMITED;
+    cr_assert_eq(veer_plan_create(&d, &nj, &r, NULL, &fast, NULL), VEER_OK);
+    veer_plan *p = must_plan(&d, &l, &r, NULL);
+    veer_check_report rep;
+    cr_assert_eq(veer_plan_check_limits(p, 1e-3, &rep), VEER_OK);
+    char name[48];
+    veer_limit_name(rep.limit, name, sizeof name);
+    cr_assert(rep.worst <= 1.01, "worst %.4f at %s, t %.3f", rep.worst, name, rep.t);
+    assert_plan_within_limits(p, &d, &l, 0.01);
+    cr_assert(veer_plan_duration(p) > veer_plan_duration(fast));
+    cr_log_info("jerk limits cost %.3f s", veer_plan_duration(p) - veer_plan_duration(fast));
+    veer_plan_destroy(p);
+    veer_plan_destroy(fast);
+}

@@ -42,7 +42,11 @@ typedef struct {
      * motor_stall_accel. Both unset: no motor curve; both set or neither. */
     double motor_stall_accel;
     double motor_free_rate;
-    double wheel_jerk;  /* rad/s^3, rate of change of the wheel acceleration */
+    /* rad/s^3, rate of change of the wheel acceleration. Jerk limits (this and
+     * body_jerk) average each rest-to-rest stretch's time-optimal law over the
+     * shortest window that keeps them, at a cost of that window in seconds per
+     * stretch; not applied to the first stretch of a plan that starts moving. */
+    double wheel_jerk;
 } veer_module_limits;
 
 typedef struct {
@@ -147,6 +151,20 @@ VEER_API VEER_NODISCARD veer_status veer_plan_path_at(const veer_plan *plan, dou
 VEER_API int veer_plan_grid_count(const veer_plan *plan);
 VEER_API VEER_NODISCARD veer_status veer_plan_grid(const veer_plan *plan, int k, double *s, double *sdot,
                                                    veer_limit_id *binding);
+
+/* A plan sampled every dt seconds (1e-5..1) against every limit it was
+ * planned for, including the differenced ones (jerk; the steer angle's own
+ * rate): the worst ratio of a figure to its limit (1 = at the limit), which
+ * limit and when. Traction counts the contact point's acceleration against
+ * mu g; the motor curve reports 1 + (driving accel - available) / stall. */
+typedef struct {
+    double worst;
+    veer_limit_id limit;
+    double t;       /* s */
+    long samples;
+} veer_check_report;
+
+VEER_API VEER_NODISCARD veer_status veer_plan_check_limits(const veer_plan *plan, double dt, veer_check_report *out);
 
 /* Controlled stop (in the manner of IEC 60204-1 stop categories 1 and 2): from
  * the plan's state at time t the cart brakes along the planned path as hard
