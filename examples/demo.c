@@ -20,8 +20,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <veer/veer.h>
-
-#define DEG (3.14159265358979323846 / 180.0)
+#include "kestrel_demo.h"
 
 static void must(veer_status st, const char *what) {
     if (st != VEER_OK) {
@@ -31,54 +30,10 @@ static void must(veer_status st, const char *what) {
 }
 
 int main(void) {
-    /* Cart K4: modules at the corners of a 0.7 m x 0.6 m frame, 0.1 m wheels. */
-    veer_drive_def drive = veer_default_drive_def(VEER_DRIVE_STEERED);
-    drive.module_count = 4;
-    const double mx[4] = {0.35, 0.35, -0.35, -0.35}, my[4] = {0.30, -0.30, -0.30, 0.30};
-    for (int i = 0; i < 4; i++) {
-        drive.modules[i].x = mx[i];
-        drive.modules[i].y = my[i];
-    }
-    drive.wheel_radius = 0.1;
-
-    veer_limits lim = veer_default_limits();
-    for (int i = 0; i < 4; i++) {
-        lim.modules[i].wheel_rate = 25.0;  /* rad/s: 2.5 m/s at the tread */
-        lim.modules[i].wheel_accel = 30.0; /* rad/s^2 */
-        lim.modules[i].steer_rate = 4.0;   /* rad/s */
-        lim.modules[i].steer_min = -270.0 * DEG;
-        lim.modules[i].steer_max = 270.0 * DEG;
-    }
-    lim.body_speed = 2.2;
-    lim.body_accel = 2.0;
-    lim.yaw_rate = 1.5;
-    lim.yaw_accel = 3.0;
-
-    const double fire_x = 0.0, fire_y = -40.0;
-    double x0 = -12.0, y0 = 0.5;
-    veer_route route = veer_default_route(x0, y0, atan2(fire_y - y0, fire_x - x0));
-
-    veer_leg cross = veer_default_leg(VEER_LEG_TRAVEL);
-    cross.heading = VEER_HEADING_TOWARD;
-    cross.toward_x = fire_x;
-    cross.toward_y = fire_y;
-    cross.corner_tolerance = 0.4;
-    must(veer_route_add_leg(&route, &cross), "add leg");
-    veer_waypoint wp = veer_default_waypoint(-6.0, 2.0);
-    must(veer_route_add_waypoint(&route, &wp), "add waypoint");
-    wp = veer_default_waypoint(1.0, 2.0);
-    must(veer_route_add_waypoint(&route, &wp), "add waypoint");
-    wp = veer_default_waypoint(6.5, 0.0); /* behind the berm */
-    wp.stop = 1;
-    wp.dwell = 2.0;
-    must(veer_route_add_waypoint(&route, &wp), "add waypoint");
-
-    veer_leg pivot = veer_default_leg(VEER_LEG_PIVOT);
-    pivot.pivot_x = 8.5;
-    pivot.pivot_y = -0.5;
-    pivot.angle = -50.0 * DEG;
-    must(veer_route_add_leg(&route, &pivot), "add leg");
-
+    veer_drive_def drive;
+    veer_limits lim;
+    veer_route route;
+    must(kestrel_demo(&drive, &lim, &route), "scenario");
     veer_plan *plan = NULL;
     veer_diag diag;
     veer_status st = veer_plan_create(&drive, &lim, &route, NULL, &plan, &diag);
@@ -151,6 +106,40 @@ int main(void) {
         printf("  %d       %6.2f [%5.1f]      %6.2f [%5.1f]       %5.2f [%4.1f]       %7.1f .. %6.1f [+-270]\n", i,
                pk_rate[i], lim.modules[i].wheel_rate, pk_acc[i], lim.modules[i].wheel_accel, pk_steer[i],
                lim.modules[i].steer_rate, lo[i] / DEG, hi[i] / DEG);
+    double fastest = veer_plan_duration(plan);
     veer_plan_destroy(plan);
+
+    /* What gentler or degraded carts cost on the same route. */
+    printf("\nvariants of the same route:\n");
+    veer_limits soft = lim;
+    soft.body_jerk = 4.0; /* m/s^3 */
+    for (int i = 0; i < 4; i++) soft.modules[i].wheel_jerk = 150.0; /* rad/s^3 */
+    veer_drive_def lame = drive;
+    lame.modules[1].out = 1; /* front-right module lifted */
+    veer_plan_options timed = veer_default_plan_options();
+    timed.duration_target = ceil(fastest) + 2.0;
+    struct {
+        const char *what;
+        const veer_drive_def *d;
+        const veer_limits *l;
+        const veer_plan_options *o;
+    } variants[] = {
+        {"jerk limits 4 m/s^3 body, 150 rad/s^3 wheels", &drive, &soft, NULL},
+        {"front-right module out of service", &lame, &lim, NULL},
+        {"duration target (whole seconds + 2)", &drive, &lim, &timed},
+    };
+    for (size_t v = 0; v < sizeof variants / sizeof variants[0]; v++) {
+        veer_plan *p = NULL;
+        st = veer_plan_create(variants[v].d, variants[v].l, &route, variants[v].o, &p, &diag);
+        if (st != VEER_OK) {
+            printf("  %-46s refused: %s\n", variants[v].what, diag.message);
+            continue;
+        }
+        veer_check_report rep;
+        must(veer_plan_check_limits(p, 1e-3, &rep), "check");
+        printf("  %-46s %7.3f s (%+.3f s), worst sampled limit use %.1f %%\n", variants[v].what,
+               veer_plan_duration(p), veer_plan_duration(p) - fastest, 100.0 * rep.worst);
+        veer_plan_destroy(p);
+    }
     return 0;
 }

@@ -5,6 +5,7 @@
 #include <math.h>
 #include <veer/veer.h>
 #include "plan_check.h"
+#include "kestrel_demo.h"
 
 #define PI 3.14159265358979323846
 #define G0 9.80665 /* standard gravity, m/s^2 (3rd CGPM, 1901) */
@@ -392,4 +393,25 @@ Test(real_limits, jerk_limits_on_curves) {
     cr_log_info("jerk limits cost %.3f s", veer_plan_duration(p) - veer_plan_duration(fast));
     veer_plan_destroy(p);
     veer_plan_destroy(fast);
+}
+
+/* The demo route (examples/kestrel_demo.h) with one of the four modules out:
+ * the cart re-plans on the other three and completes it within every limit. */
+Test(real_limits, demo_route_with_a_module_out) {
+    veer_drive_def d;
+    veer_limits l;
+    veer_route r;
+    cr_assert_eq(kestrel_demo(&d, &l, &r), VEER_OK);
+    for (int out = 0; out < 4; out++) {
+        veer_drive_def lame = d;
+        lame.modules[out].out = 1;
+        veer_plan *p = must_plan(&lame, &l, &r, NULL);
+        veer_check_report rep;
+        cr_assert_eq(veer_plan_check_limits(p, 1e-3, &rep), VEER_OK);
+        cr_assert(rep.worst <= 1.01, "module %d out: worst %.4f", out, rep.worst);
+        veer_sample s;
+        cr_assert_eq(veer_plan_sample(p, veer_plan_duration(p), &s), VEER_OK);
+        cr_assert_eq(s.phase, VEER_PHASE_DONE);
+        veer_plan_destroy(p);
+    }
 }
