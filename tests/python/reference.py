@@ -147,7 +147,28 @@ class Rows:
         self.names.append(name)
 
 
-def point_rows(drive, limits, q, dq, ddq, polygon_sides=32, still=1e-9):
+def polygon_rows(R, c1, c2, A, n_sides, name):
+    """|c1 a + c2 b| <= A for a point with world path derivatives c1, c2: the
+    circle replaced by the regular polygon with n_sides sides inscribed in it,
+    oriented in the point's tangent frame with a vertex on the tangent (faces
+    at angles (2j+1) pi / n, distance A cos(pi / n))."""
+    sp = float(np.hypot(*c1))
+    if not math.isfinite(A) or not (sp > 0.0 or np.hypot(*c2) > 0.0):
+        return
+    t = c1 / sp if sp > 0.0 else np.array([1.0, 0.0])
+    n = JROT @ t
+    n_sides = int(n_sides)
+    rad = A * math.cos(math.pi / n_sides)
+    for j in range(n_sides):
+        ang = (2 * j + 1) * math.pi / n_sides
+        # direction d = cos(ang) t + sin(ang) n; acc . d <= rad
+        R.row(math.cos(ang) * sp, math.cos(ang) * float(c2 @ t) + math.sin(ang) * float(c2 @ n), rad, name)
+
+
+G0 = 9.80665  # m/s^2, standard gravity (3rd CGPM, 1901)
+
+
+def point_rows(drive, limits, q, dq, ddq, polygon_sides=32, still=1e-9, traction_sides=16):
     """Every limit at one path position, from the geometry and the limits alone.
 
     Body acceleration: the circle |c' a + c'' b| <= A is replaced by the
@@ -161,17 +182,7 @@ def point_rows(drive, limits, q, dq, ddq, polygon_sides=32, still=1e-9):
     sp = float(np.hypot(*c1))
     R.speed(sp, limits.get("body_speed", math.inf), "body_speed")
     R.speed(dq[2], limits.get("yaw_rate", math.inf), "yaw_rate")
-    A = limits.get("body_accel", math.inf)
-    if math.isfinite(A) and (sp > 0.0 or np.hypot(*c2) > 0.0):
-        t = c1 / sp if sp > 0.0 else np.array([1.0, 0.0])
-        n = JROT @ t
-        n_sides = int(polygon_sides)
-        rad = A * math.cos(math.pi / n_sides)
-        for j in range(n_sides):
-            ang = (2 * j + 1) * math.pi / n_sides
-            # direction d = cos(ang) t + sin(ang) n; acc . d <= rad
-            R.row(math.cos(ang) * sp, math.cos(ang) * float(c2 @ t) + math.sin(ang) * float(c2 @ n), rad,
-                  "body_accel")
+    polygon_rows(R, c1, c2, limits.get("body_accel", math.inf), polygon_sides, "body_accel")
     R.accel(dq[2], ddq[2], limits.get("yaw_accel", math.inf), "yaw_accel")
 
     mods = limits.get("modules", [])
@@ -203,6 +214,14 @@ def point_rows(drive, limits, q, dq, ddq, polygon_sides=32, still=1e-9):
             f, df = float(J[i] @ xi), float(J[i] @ dxi)
             R.speed(f, ml.get("wheel_rate", math.inf), "wheel_speed[%d]" % i)
             R.accel(f, df, ml.get("wheel_accel", math.inf), "wheel_accel[%d]" % i)
+    # Traction: the contact point's acceleration p' a + p'' b (centripetal part
+    # included) within mu g (friction: any physics text), as a polygon.
+    for i, rb in enumerate(module_positions(drive)):
+        ml = mods[i] if i < len(mods) else {}
+        mu = ml.get("traction_mu", math.inf)
+        if math.isfinite(mu):
+            p1, p2 = module_world_velocity(q, dq, ddq, rb)
+            polygon_rows(R, p1, p2, mu * G0, traction_sides, "traction[%d]" % i)
     return R
 
 

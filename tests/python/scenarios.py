@@ -58,7 +58,21 @@ BODY_ACCEL_CURVE = {
               "waypoints": [{"x": 4.0, "y": 0.0}, {"x": 4.0, "y": 4.0}, {"x": 8.0, "y": 4.0, "stop": True}]},
 }
 
-EXTRA = {"icr_near_module": ICR_NEAR_MODULE, "pivot": PIVOT, "toward": TOWARD, "body_accel_curve": BODY_ACCEL_CURVE}
+# A traction-bound case (issue 5): wet grass, mu 0.35 (invented), corners and a
+# turn while travelling, so the contact points' centripetal parts differ.
+TRACTION = {
+    "cartId": "test/traction",
+    "drive": STEERED_DRIVE,
+    "limits": {"modules": [{"wheelRate": 40.0, "tractionMu": 0.35}], "bodySpeed": 3.0},
+    "route": {"startX": 0.0, "startY": 0.0, "startYaw": 0.0,
+              "legs": [{"kind": "LEG_KIND_TRAVEL", "waypointCount": 3, "heading": "HEADING_BLEND",
+                        "cornerTolerance": 1.0}],
+              "waypoints": [{"x": 5.0, "y": 0.0}, {"x": 8.0, "y": 4.0, "yaw": 1.0},
+                            {"x": 12.0, "y": 4.0, "stop": True}]},
+}
+
+EXTRA = {"icr_near_module": ICR_NEAR_MODULE, "pivot": PIVOT, "toward": TOWARD, "body_accel_curve": BODY_ACCEL_CURVE,
+         "traction": TRACTION}
 
 
 def get(name):

@@ -69,7 +69,8 @@ def lp_case(veer, request):
 
 
 CASES = [(path.stem, conftest.load_scenario(path)) for path in conftest.shipped_scenarios()]
-CASES += [(name, scenarios.get(name)) for name in ("icr_near_module", "pivot", "toward", "body_accel_curve")]
+CASES += [(name, scenarios.get(name)) for name in ("icr_near_module", "pivot", "toward", "body_accel_curve",
+                                                   "traction")]
 
 RESULTS = {}
 
