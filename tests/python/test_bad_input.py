@@ -17,7 +17,7 @@ import pytest
 import conftest
 
 STATUSES = {"ERR_NULL", "ERR_VALUE", "ERR_CAPACITY", "ERR_GEOMETRY", "ERR_INFEASIBLE", "ERR_UNBOUNDED",
-            "ERR_NO_MEMORY", "ERR_BUFFER", "ERR_DECODE", "ERR_VERSION", "ERR_STATE"}
+            "ERR_NO_MEMORY", "ERR_BUFFER", "ERR_DECODE", "ERR_VERSION", "ERR_STATE", "ERR_LATE"}
 BASE = conftest.load_scenario(conftest.SCENARIO_DIR / "south_lane1_mecanum.json")
 STEERED = conftest.load_scenario(conftest.SCENARIO_DIR / "north_lane3_steered.json")
 

@@ -12,6 +12,8 @@ import math
 from . import _lib
 
 TURN_TO_DIRECTION = {0: 0, 1: 0, 2: 1, 3: -1}  # Turn enum -> veer_leg.direction
+MODULE_LIMIT_FIELDS = ("wheel_rate", "wheel_accel", "steer_rate", "steer_min", "steer_max", "traction_mu",
+                       "motor_stall_accel", "motor_free_rate", "wheel_jerk")
 
 
 class ConvertError(ValueError):
@@ -37,6 +39,14 @@ def drive_struct(lib, msg):
     for f in ("wheel_radius", "half_wheelbase", "half_track", "roller_angle", "track_width", "skid_factor"):
         if msg.HasField(f):
             setattr(d, f, getattr(msg, f))
+    out = list(getattr(msg, "modules_out", []))
+    if len(out) > _lib.MAX_MODULES:
+        raise ConvertError("ERR_CAPACITY", "drive lists %d modules out, at most %d" % (len(out), _lib.MAX_MODULES))
+    for i in out:
+        if i >= _lib.MAX_MODULES:
+            raise ConvertError("ERR_VALUE", "modules_out names module %d; the drive has at most %d"
+                               % (i, _lib.MAX_MODULES))
+        d.modules[i].out = 1
     return d
 
 
@@ -46,8 +56,8 @@ def module_count(lib, drive):
 
 def limits_struct(lib, msg, n_modules):
     L = lib.veer_default_limits()
-    for f in ("body_speed", "body_accel", "yaw_rate", "yaw_accel"):
-        if msg.HasField(f):
+    for f in ("body_speed", "body_accel", "yaw_rate", "yaw_accel", "body_jerk"):
+        if f in msg.DESCRIPTOR.fields_by_name and msg.HasField(f):
             setattr(L, f, getattr(msg, f))
     mods = list(msg.modules)
     if len(mods) > _lib.MAX_MODULES:
@@ -57,8 +67,8 @@ def limits_struct(lib, msg, n_modules):
                            % (len(mods), n_modules, n_modules))
     for i in range(n_modules if mods else 0):
         m = mods[0] if len(mods) == 1 else mods[i]
-        for f in ("wheel_rate", "wheel_accel", "steer_rate", "steer_min", "steer_max"):
-            if m.HasField(f):
+        for f in MODULE_LIMIT_FIELDS:
+            if f in m.DESCRIPTOR.fields_by_name and m.HasField(f):
                 setattr(L.modules[i], f, getattr(m, f))
     return L
 
@@ -69,6 +79,10 @@ def options_struct(lib, msg):
         o.grid_points = min(int(msg.grid_points), 2 ** 31 - 1)
     if msg.HasField("accel_polygon_sides"):
         o.accel_polygon_sides = min(int(msg.accel_polygon_sides), 2 ** 31 - 1)
+    if "traction_polygon_sides" in msg.DESCRIPTOR.fields_by_name and msg.HasField("traction_polygon_sides"):
+        o.traction_polygon_sides = min(int(msg.traction_polygon_sides), 2 ** 31 - 1)
+    if "duration_target" in msg.DESCRIPTOR.fields_by_name and msg.HasField("duration_target"):
+        o.duration_target = msg.duration_target
     return o
 
 
@@ -86,6 +100,10 @@ def route_struct(lib, msg):
         r.has_start_steer = 1
         for i, a in enumerate(msg.start_steer):
             r.start_steer[i] = a
+    if "start_twist" in msg.DESCRIPTOR.fields_by_name and msg.HasField("start_twist"):
+        r.has_start_twist = 1
+        r.start_twist[0], r.start_twist[1], r.start_twist[2] = (msg.start_twist.vx, msg.start_twist.vy,
+                                                                 msg.start_twist.wz)
     r.leg_count = len(msg.legs)
     for i, g in enumerate(msg.legs):
         leg = lib.veer_default_leg(int(g.kind))
@@ -99,6 +117,7 @@ def route_struct(lib, msg):
         leg.direction = TURN_TO_DIRECTION.get(int(g.turn), 0)
         leg.pivot_x, leg.pivot_y, leg.angle = g.pivot_x, g.pivot_y, g.angle
         leg.dwell = g.dwell
+        leg.hold_yaw = 1 if getattr(g, "hold_yaw", False) else 0
         r.legs[i] = leg
     r.waypoint_count = len(msg.waypoints)
     for i, w in enumerate(msg.waypoints):
@@ -107,6 +126,8 @@ def route_struct(lib, msg):
             wp.yaw, wp.has_yaw = w.yaw, 1
         wp.stop = 1 if w.stop else 0
         wp.dwell = w.dwell
+        if "arrival" in w.DESCRIPTOR.fields_by_name and w.HasField("arrival"):
+            wp.timed, wp.arrival = 1, w.arrival
         r.waypoints[i] = wp
     return r
 
@@ -124,7 +145,8 @@ def drive_dict(drive):
     return {
         "kind": KIND_NAMES.get(drive.kind, "unspecified"),
         "module_count": n,
-        "modules": [{"x": drive.modules[i].x, "y": drive.modules[i].y, "drive_angle": drive.modules[i].drive_angle}
+        "modules": [{"x": drive.modules[i].x, "y": drive.modules[i].y, "drive_angle": drive.modules[i].drive_angle,
+                     "out": bool(drive.modules[i].out)}
                     for i in range(min(max(n, 0), _lib.MAX_MODULES))],
         "wheel_radius": drive.wheel_radius,
         "half_wheelbase": drive.half_wheelbase,
@@ -137,9 +159,8 @@ def drive_dict(drive):
 
 def limits_dict(limits, n_modules):
     """A Limits struct as a plain dict; unset limits are math.inf."""
-    out = {f: getattr(limits, f) for f in ("body_speed", "body_accel", "yaw_rate", "yaw_accel")}
-    out["modules"] = [{f: getattr(limits.modules[i], f)
-                       for f in ("wheel_rate", "wheel_accel", "steer_rate", "steer_min", "steer_max")}
+    out = {f: getattr(limits, f) for f in ("body_speed", "body_accel", "yaw_rate", "yaw_accel", "body_jerk")}
+    out["modules"] = [{f: getattr(limits.modules[i], f) for f in MODULE_LIMIT_FIELDS}
                       for i in range(min(max(n_modules, 0), _lib.MAX_MODULES))]
     return out
 

@@ -33,6 +33,13 @@ COLOURS = {
     "yaw_accel": "#8c564b",
     "no_sideways_motion": "#000000",
     "stop_at_end": "#17becf",
+    "speed_zone": "#393b79",
+    "traction": "#843c39",
+    "motor_curve": "#e7969c",
+    "module_out": "#7f7f7f",
+    "start_state": "#637939",
+    "body_jerk": "#ce6dbd",
+    "wheel_jerk": "#9c9ede",
 }
 LABELS = {
     "none": "none (rest)",
@@ -46,6 +53,13 @@ LABELS = {
     "yaw_accel": "yaw acceleration",
     "no_sideways_motion": "no sideways motion",
     "stop_at_end": "stop at end",
+    "speed_zone": "speed zone",
+    "traction": "traction",
+    "motor_curve": "motor curve",
+    "module_out": "module out",
+    "start_state": "start state",
+    "body_jerk": "body jerk",
+    "wheel_jerk": "wheel jerk",
 }
 MODULE_COLOURS = ["#4c4c4c", "#7a3b8f", "#b35806", "#1b7837", "#2166ac", "#b2182b", "#8c6d31", "#35978f"]
 DRIVE_TITLES = {"steered": "steered modules", "mecanum": "mecanum wheels", "omni": "omni wheels",

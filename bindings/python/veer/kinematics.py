@@ -18,7 +18,8 @@ import math
 import numpy as np
 
 KINDS = ("wheel_speed", "wheel_accel", "steer_rate", "steer_range", "body_speed", "body_accel", "yaw_rate",
-         "yaw_accel", "no_sideways_motion", "stop_at_end", "none")
+         "yaw_accel", "no_sideways_motion", "stop_at_end", "speed_zone", "traction", "motor_curve", "module_out",
+         "start_state", "body_jerk", "wheel_jerk", "none")
 
 
 def module_positions(drive):
@@ -48,6 +49,12 @@ def wheel_matrix(drive):
     else:
         raise ValueError("no wheel matrix for a %s drive" % kind)
     return np.array(rows, dtype=float) / r
+
+
+def _out(drive, i):
+    """Module i is out of service (it neither drives nor limits)."""
+    mods = drive.get("modules", [])
+    return i < len(mods) and bool(mods[i].get("out", False))
 
 
 def _rot_apply(yaw, v, sign=1.0):
@@ -108,6 +115,8 @@ def limit_curves(drive, limits, q, dq, ddq, polygon_sides=32):
     r = drive["wheel_radius"]
     if drive["kind"] == "steered":
         for i, rb in enumerate(module_positions(drive)):
+            if _out(drive, i):
+                continue
             Rr = _rot_apply(yaw, np.tile(rb, (n, 1)))
             p1 = c1 + w[:, None] * _perp(Rr)
             p2 = c2 + dw[:, None] * _perp(Rr) - (w * w)[:, None] * Rr
@@ -125,6 +134,8 @@ def limit_curves(drive, limits, q, dq, ddq, polygon_sides=32):
         xi = np.column_stack([gb, w])
         dxi = np.column_stack([hb, dw])
         for i in range(J.shape[0]):
+            if _out(drive, i):
+                continue
             f, df = xi @ J[i], dxi @ J[i]
             out["wheel_speed[%d]" % i] = _cap(mods[i]["wheel_rate"], f)
             acc["wheel_accel"].append((f, df, mods[i]["wheel_accel"]))

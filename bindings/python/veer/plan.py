@@ -22,7 +22,7 @@ from . import _convert, _lib, _pb
 PHASE_NAMES = {1: "resteer", 2: "moving", 3: "dwell", 4: "done"}
 STATUS_CODES = {"OK": 0, "ERR_NULL": 1, "ERR_VALUE": 2, "ERR_CAPACITY": 3, "ERR_GEOMETRY": 4, "ERR_INFEASIBLE": 5,
                 "ERR_UNBOUNDED": 6, "ERR_NO_MEMORY": 7, "ERR_BUFFER": 8, "ERR_DECODE": 9, "ERR_VERSION": 10,
-                "ERR_STATE": 11}
+                "ERR_STATE": 11, "ERR_LATE": 12}
 _ERR_BUFFER = 8
 
 LegTiming = collections.namedtuple("LegTiming", "start duration resteer_time dwell_time s_begin s_end")
@@ -35,9 +35,10 @@ class PlanError(Exception):
     status: the status name without prefix ("ERR_INFEASIBLE", "ERR_VALUE", ...);
     code: the veer_status number; message: what went wrong; leg, waypoint,
     grid_index: where (-1 when not applicable); s: path position or -1;
-    limit: the limit involved ("wheel_speed[2]", "body_accel") or None."""
+    limit: the limit involved ("wheel_speed[2]", "body_accel") or None;
+    value: the figure the message is about (ERR_LATE: seconds late), else 0."""
 
-    def __init__(self, status, message, leg=-1, waypoint=-1, grid_index=-1, s=-1.0, limit=None):
+    def __init__(self, status, message, leg=-1, waypoint=-1, grid_index=-1, s=-1.0, limit=None, value=0.0):
         self.status = status
         self.code = STATUS_CODES.get(status, -1)
         self.message = message
@@ -46,6 +47,7 @@ class PlanError(Exception):
         self.grid_index = grid_index
         self.s = s
         self.limit = limit or None
+        self.value = value
         super().__init__(str(self))
 
     def __str__(self):
@@ -65,7 +67,7 @@ class PlanError(Exception):
 
     def to_dict(self):
         return {"status": self.status, "message": self.message, "leg": self.leg, "waypoint": self.waypoint,
-                "grid_index": self.grid_index, "s": self.s, "limit": self.limit}
+                "grid_index": self.grid_index, "s": self.s, "limit": self.limit, "value": self.value}
 
     @classmethod
     def _from_diag(cls, lib, code, diag):
@@ -73,14 +75,14 @@ class PlanError(Exception):
         if diag.limit.kind:
             limit = lib.limit_name(diag.limit.kind, diag.limit.module)
         msg = diag.message.decode("utf-8", "replace") or lib.status_text(code)
-        return cls(lib.status_name(code), msg, diag.leg, diag.waypoint, diag.grid_index, diag.s, limit)
+        return cls(lib.status_name(code), msg, diag.leg, diag.waypoint, diag.grid_index, diag.s, limit, diag.value)
 
     @classmethod
     def _from_pb(cls, lib, d, fallback_code):
         name = _pb.modules()["plan"].Status.Name(d.status) if d.status else ""
         status = name[len("STATUS_"):] if name.startswith("STATUS_") else lib.status_name(fallback_code)
         return cls(status, d.message or lib.status_text(STATUS_CODES.get(status, fallback_code)), d.leg, d.waypoint,
-                   d.grid_index, d.s, d.limit_name or None)
+                   d.grid_index, d.s, d.limit_name or None, getattr(d, "value", 0.0))
 
 
 class Sample:
