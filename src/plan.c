@@ -104,18 +104,10 @@ static int grid_layout(const veer_path *path, int points, int *piece_intervals) 
     return n;
 }
 
-/* Work buffers for one segment's solve, sized for the longest segment. */
-typedef struct {
-    veer_row *rows;
-    int *row_count;
-    double *xmax, *K, *xi;
-    veer_limit_id *xmax_id;
-    size_t bytes;
-} workspace;
 
 /* Speed zones: x <= cap^2 / |p'|^2 with the smallest cap of each point and
  * its neighbours (a zone entered between two grid points holds at both). */
-static void apply_speed_caps(const veer_plan *plan, int j, int n, const double *s, workspace *ws) {
+static void apply_speed_caps(const veer_plan *plan, int j, int n, const double *s, veer_workspace *ws) {
     double prev = VEER_UNLIMITED, cur, next;
     int zprev = -1, zcur = -1, znext = -1;
     veer_point_kin pk;
@@ -157,8 +149,8 @@ static int has_motor_curve(const veer_plan *plan) {
  * sdot^2 = x_start. With a motor curve the solve repeats twice more with the
  * curve linearized at the previous profile: every row stays conservative
  * and the last one is exact where the profile runs. */
-static veer_status solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx, double x_start, workspace *ws,
-                                 veer_diag *diag) {
+veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx, double x_start, veer_workspace *ws,
+                                veer_diag *diag) {
     veer_plan_segment *sg = &plan->segs[j];
     const veer_path_segment *ps = &plan->path.segments[j];
     int n = sg->k1 - sg->k0 + 1, m = ctx->m;
@@ -216,43 +208,6 @@ static veer_status solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx
     return VEER_OK;
 }
 
-/* When the motion of segment j ends (the cart comes to rest at its end). */
-static double arrival_of(const veer_plan *plan, int j) {
-    double t = 0.0;
-    for (int i = 0; i <= j; i++) {
-        t += plan->segs[i].resteer_time + plan->segs[i].move_time;
-        if (i < j) t += plan->segs[i].dwell;
-    }
-    return t;
-}
-
-/* The limit that binds over most of segments a..b (kind NONE if none does). */
-static veer_limit_id main_binding(const veer_plan *plan, int a, int b) {
-    veer_limit_id ids[64];
-    double share[64];
-    int n = 0;
-    veer_limit_id best = veer__limit(VEER_LIMIT_NONE, -1);
-    double top = 0.0;
-    for (int j = a; j <= b; j++)
-        for (int k = plan->segs[j].k0; k < plan->segs[j].k1; k++) {
-            veer_limit_id id = plan->binding[k];
-            if (id.kind == VEER_LIMIT_NONE) continue;
-            int f = 0;
-            while (f < n && (ids[f].kind != id.kind || ids[f].module != id.module)) f++;
-            if (f == n) {
-                if (n == 64) continue;
-                ids[n] = id;
-                share[n++] = 0.0;
-            }
-            share[f] += plan->s[k + 1] - plan->s[k];
-            if (share[f] > top) {
-                top = share[f];
-                best = id;
-            }
-        }
-    return best;
-}
-
 /* All speed-type and acceleration-type limits times g (jerk limits kept). */
 static veer_limits scaled_limits(const veer_limits *in, double g) {
     veer_limits l = *in;
@@ -275,8 +230,8 @@ static veer_limits scaled_limits(const veer_limits *in, double g) {
 /* Jerk limits on segment j (solved within lim, steer angles known): fit the
  * averaging window; if averaging takes another limit more than 0.5 % over,
  * re-solve with every limit 3 % lower and fit again. */
-static veer_status shape_segment(veer_plan *plan, int j, const veer_limits *lim, double x_start, workspace *ws,
-                                 veer_diag *diag) {
+veer_status veer__shape_segment(veer_plan *plan, int j, const veer_limits *lim, double x_start, veer_workspace *ws,
+                                veer_diag *diag) {
     /* The window averages the law with its own past: it needs rest before the
      * segment, so a moving start's first stretch keeps its time-optimal law. */
     if (!veer__has_jerk_limit(plan) || x_start > 0.0) return VEER_OK;
@@ -288,113 +243,13 @@ static veer_status shape_segment(veer_plan *plan, int j, const veer_limits *lim,
         veer_row_ctx ctx;
         veer__row_ctx_init(&ctx, &plan->drive, &sc, &plan->options);
         plan->segs[j].tau = 0.0;
-        veer_status st = solve_segment(plan, j, &ctx, x_start, ws, diag);
+        veer_status st = veer__solve_segment(plan, j, &ctx, x_start, ws, diag);
         if (st != VEER_OK) return st;
     }
     const veer_path_segment *ps = &plan->path.segments[j];
     return veer__fail(diag, VEER_ERR_INFEASIBLE, ps->leg, ps->waypoint, -1, ps->s_begin,
                       veer__limit(VEER_LIMIT_BODY_JERK, -1),
                       "leg %d: no jerk-limiting window keeps the other limits on this stretch", ps->leg);
-}
-
-/* Re-solves segments a..b with body speed and yaw rate capped at lambda
- * times their peaks v0, w0 on the fastest plan (a cap of 0 peak is left
- * off); returns the arrival at the end of b. */
-static veer_status paced(veer_plan *plan, int a, int b, double lambda, double v0, double w0, workspace *ws,
-                         double *arrival, veer_diag *diag) {
-    veer_limits lim = plan->limits;
-    if (v0 > 0.0 && lambda * v0 < lim.body_speed) lim.body_speed = lambda * v0;
-    if (w0 > 0.0 && lambda * w0 < lim.yaw_rate) lim.yaw_rate = lambda * w0;
-    veer_row_ctx ctx;
-    veer__row_ctx_init(&ctx, &plan->drive, &lim, &plan->options);
-    for (int j = a; j <= b; j++) {
-        plan->segs[j].tau = 0.0;
-        veer_status st = solve_segment(plan, j, &ctx, j == 0 ? plan->x_start : 0.0, ws, diag);
-        if (st == VEER_OK) st = shape_segment(plan, j, &lim, j == 0 ? plan->x_start : 0.0, ws, diag);
-        if (st != VEER_OK) return st;
-    }
-    *arrival = arrival_of(plan, b);
-    return VEER_OK;
-}
-
-/* Timed stops and a duration target: each stretch of segments that ends at
- * a timed stop is slowed, when the fastest plan would arrive early, by a
- * common cap on body speed and yaw rate (lambda times the stretch's peaks,
- * lambda found by bisection) so the cart still accelerates and brakes at
- * its limits; arriving late is refused with the lateness and the limit that
- * binds over most of the stretch. */
-static veer_status meet_arrivals(veer_plan *plan, workspace *ws, veer_diag *diag) {
-    const veer_path *path = &plan->path;
-    for (int w = 0; w < plan->route.waypoint_count; w++) {
-        if (!plan->route.waypoints[w].timed) continue;
-        int found = 0;
-        for (int j = 0; j < path->segment_count && !found; j++) found = path->segments[j].waypoint == w;
-        if (!found)
-            return veer__fail(diag, VEER_ERR_VALUE, -1, w, -1, -1.0, veer__limit(VEER_LIMIT_NONE, -1),
-                              "waypoint %d is timed but the cart passes through it: make it a stop", w);
-    }
-    int first = 0;
-    double last_target = -1.0;
-    for (int j = 0; j < path->segment_count; j++) {
-        const veer_path_segment *ps = &path->segments[j];
-        double T;
-        int wpi = ps->waypoint;
-        if (wpi >= 0 && plan->route.waypoints[wpi].timed && (j + 1 == path->segment_count ||
-                                                          path->segments[j + 1].waypoint != wpi)) {
-            T = plan->route.waypoints[wpi].arrival;
-        } else if (j + 1 == path->segment_count && plan->options.duration_target > 0.0) {
-            T = plan->options.duration_target - plan->segs[j].dwell;
-            wpi = -1;
-        } else {
-            continue;
-        }
-        if (!(T > last_target))
-            return veer__fail(diag, VEER_ERR_VALUE, ps->leg, wpi, -1, -1.0, veer__limit(VEER_LIMIT_NONE, -1),
-                              "leg %d: arrival %.3f s is not after the previous timed arrival %.3f s", ps->leg, T,
-                              last_target);
-        double fast = arrival_of(plan, j);
-        if (fast > T + 1e-6) {
-            veer_limit_id id = main_binding(plan, first, j);
-            char name[48];
-            veer_limit_name(id, name, sizeof name);
-            veer_status st = veer__fail(diag, VEER_ERR_LATE, ps->leg, wpi, -1, ps->s_end, id,
-                                        "leg %d: %s at %.3f s is %.3f s too early for the fastest plan (%.3f s); "
-                                        "%s binds most of the way",
-                                        ps->leg, wpi >= 0 ? "the timed stop" : "the duration target", T, fast - T,
-                                        fast, name);
-            if (diag) diag->value = fast - T;
-            return st;
-        }
-        if (fast < T - 1e-5) {
-            double v0 = 0.0, w0 = 0.0;
-            for (int q = first; q <= j; q++)
-                for (int k = plan->segs[q].k0; k <= plan->segs[q].k1; k++) {
-                    double qq[3], dq[3], ddq[3];
-                    veer__path_eval(path, q, plan->s[k], qq, dq, ddq);
-                    double v = sqrt(plan->x[k]);
-                    v0 = fmax(v0, v * hypot(dq[0], dq[1]));
-                    w0 = fmax(w0, v * fabs(dq[2]));
-                }
-            double lo = 1.0, hi = 1.0, arr = fast;
-            veer_status st = VEER_OK;
-            for (int it = 0; it < 60 && arr < T; it++) { /* bracket: slow enough */
-                hi = lo;
-                lo *= 0.5;
-                if ((st = paced(plan, first, j, lo, v0, w0, ws, &arr, diag))) return st;
-            }
-            for (int it = 0; it < 60 && fabs(arr - T) > 1e-5; it++) {
-                double mid = 0.5 * (lo + hi);
-                if ((st = paced(plan, first, j, mid, v0, w0, ws, &arr, diag))) return st;
-                if (arr > T)
-                    lo = mid;
-                else
-                    hi = mid;
-            }
-        }
-        last_target = T;
-        first = j + 1;
-    }
-    return VEER_OK;
 }
 
 /* Re-planning on the move: the start twist must be the path's own direction
@@ -485,7 +340,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     veer_status st = start_state(plan, &plan->x_start, diag);
     if (st != VEER_OK) return st;
 
-    workspace ws;
+    veer_workspace ws;
     int m = plan->rows.m;
     ws.bytes = (size_t)longest * ((size_t)m * sizeof(veer_row) + 5 * sizeof(double) + sizeof(veer_limit_id) + sizeof(int));
     char *w = veer__alloc(ws.bytes);
@@ -500,13 +355,13 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     double from[VEER_MAX_MODULES];
     for (int i = 0; i < M; i++) from[i] = plan->route.has_start_steer ? plan->route.start_steer[i] : 0.0;
     for (int j = 0; j < path->segment_count && st == VEER_OK; j++) {
-        st = solve_segment(plan, j, &plan->rows, j == 0 ? plan->x_start : 0.0, &ws, diag);
+        st = veer__solve_segment(plan, j, &plan->rows, j == 0 ? plan->x_start : 0.0, &ws, diag);
         if (st == VEER_OK) st = veer__steer_segment(plan, j, from, ws.xi, diag);
-        if (st == VEER_OK) st = shape_segment(plan, j, &plan->limits, j == 0 ? plan->x_start : 0.0, &ws, diag);
+        if (st == VEER_OK) st = veer__shape_segment(plan, j, &plan->limits, j == 0 ? plan->x_start : 0.0, &ws, diag);
         for (int i = 0; i < M && st == VEER_OK; i++) from[i] = plan->steer[(size_t)plan->segs[j].k1 * (size_t)M + (size_t)i];
     }
     if (st == VEER_OK && plan->x_start > 0.0) plan->segs[0].resteer_time = 0.0; /* already pointing along the motion */
-    if (st == VEER_OK) st = meet_arrivals(plan, &ws, diag);
+    if (st == VEER_OK) st = veer__meet_arrivals(plan, &ws, diag);
     veer__free(w, ws.bytes);
     if (st != VEER_OK) return st;
 

@@ -153,6 +153,29 @@ struct veer_plan {
     double duration;
 };
 
+/* ---- plan.c: segment solves, shared with timing.c ---------------------- */
+
+/* Work buffers for one segment's solve, sized for the longest segment. */
+typedef struct {
+    veer_row *rows;
+    int *row_count;
+    double *xmax, *K, *xi;
+    veer_limit_id *xmax_id;
+    size_t bytes;
+} veer_workspace;
+
+/* Rows, solve and times of segment j with the limits behind ctx, starting at
+ * sdot^2 = x_start (repeated at the profile when a motor curve is set). */
+veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx, double x_start, veer_workspace *ws,
+                                veer_diag *diag);
+/* Jerk limits on segment j (solved within lim, steer angles known). */
+veer_status veer__shape_segment(veer_plan *plan, int j, const veer_limits *lim, double x_start, veer_workspace *ws,
+                                veer_diag *diag);
+
+/* ---- timing.c: timed stops and duration target ------------------------- */
+
+veer_status veer__meet_arrivals(veer_plan *plan, veer_workspace *ws, veer_diag *diag);
+
 /* ---- steer.c: continuous steer angles and re-steer phases -------------- */
 
 /* Steer angle of a steered module: the representative of direction dir
