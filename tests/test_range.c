@@ -558,3 +558,63 @@ Test(range_multi, crossing_lanes_against_brute_force) {
     veer_plan_destroy(pa);
     veer_plan_destroy(pb);
 }
+
+/* A brief touch between two grid points: on a coarse grid a pivot swings the
+ * footprint's far corner past the tip of a zone that reaches 0.5 mm into
+ * the circle the grown corner sweeps (radius rc + margin about the pivot
+ * point, triangle inequality), in the middle of a grid interval. The zone
+ * must hold there too, at every millisecond. */
+Test(range_zones, brief_touch_between_grid_points) {
+    veer_drive_def d = veer_default_drive_def(VEER_DRIVE_STEERED);
+    veer_limits l = veer_default_limits();
+    l.body_speed = 3.0;
+    l.body_accel = 2.0;
+    l.yaw_rate = 0.8;
+    l.yaw_accel = 1.0;
+    veer_route route = veer_default_route(0.0, 0.0, 0.0);
+    veer_leg pv = veer_default_leg(VEER_LEG_PIVOT);
+    pv.pivot_x = -2.0;
+    pv.pivot_y = 0.0;
+    pv.angle = 1.6;
+    cr_assert_eq(veer_route_add_leg(&route, &pv), VEER_OK);
+    veer_plan_options opt = veer_default_plan_options();
+    opt.grid_points = 16;
+    veer_plan *p0 = NULL;
+    cr_assert_eq(veer_plan_create(&d, &l, &route, &opt, &p0, NULL), VEER_OK);
+    /* the grid interval holding 0.8 rad, and its middle */
+    double mid = -1.0, width = 0.0;
+    for (int k = 0; k + 1 < veer_plan_grid_count(p0); k++) {
+        double s0, s1, v;
+        veer_limit_id id;
+        cr_assert_eq(veer_plan_grid(p0, k, &s0, &v, &id), VEER_OK);
+        cr_assert_eq(veer_plan_grid(p0, k + 1, &s1, &v, &id), VEER_OK);
+        if (s0 <= 0.8 && s1 > 0.8) mid = 0.5 * (s0 + s1), width = s1 - s0;
+    }
+    veer_plan_destroy(p0);
+    cr_assert(mid > 0.0 && width > 0.05, "coarse grid: interval %g rad", width);
+    veer_footprint fp = veer_footprint_rectangle(0.5, 0.5, 0.3, 0.3, 0.05);
+    double rc = hypot(2.5, 0.3), phi = atan2(0.3, 2.5) + mid, rho = rc + fp.margin - 0.5e-3;
+    double ux = cos(phi), uy = sin(phi), vx = -uy, vy = ux;
+    double tip[2] = {-2.0 + rho * ux, rho * uy};
+    double xy[6] = {tip[0], tip[1], tip[0] + 0.5 * ux + 0.02 * vx, tip[1] + 0.5 * uy + 0.02 * vy,
+                    tip[0] + 0.5 * ux - 0.02 * vx, tip[1] + 0.5 * uy - 0.02 * vy};
+    veer_range r = veer_default_range();
+    veer_outline z = poly(xy, 3);
+    cr_assert_eq(veer_range_add_speed_zone(&r, &z, 0.4, NULL), VEER_OK);
+    veer_plan *p = NULL;
+    veer_diag diag;
+    cr_assert_eq(veer_plan_create_in_range(&d, &l, &route, &opt, &r, &fp, &p, &diag), VEER_OK, "%s", diag.message);
+    int met = 0;
+    for (long k = 0; k * 1e-3 <= veer_plan_duration(p); k++) {
+        veer_sample s;
+        cr_assert_eq(veer_plan_sample(p, k * 1e-3, &s), VEER_OK);
+        int zi;
+        double cap = t_speed_cap(&r, &fp, s.pose, &zi);
+        if (zi < 0) continue;
+        met++;
+        double v = hypot(s.twist_world[0], s.twist_world[1]);
+        cr_assert(v <= cap * (1.0 + 1e-9), "t %.3f s %.4f: speed %.4f over the cap %.2f", s.t, s.s, v, cap);
+    }
+    cr_expect(met > 5, "the corner meets the zone for %d ms", met);
+    veer_plan_destroy(p);
+}
