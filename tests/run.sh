@@ -34,7 +34,7 @@ BENCH_TIMEOUT=600         # s for the benchmark
 # Debian 12 packages the build, the tests and the later stages need.
 DEBIAN_PACKAGES=(build-essential cmake pkg-config clang libcriterion-dev nanopb libnanopb-dev
     protobuf-compiler libsodium-dev python3-protobuf python3-numpy python3-scipy
-    python3-matplotlib python3-pytest valgrind)
+    python3-matplotlib python3-pytest python3-shapely valgrind)
 
 # Warnings the consumer example is compiled with by hand (the library's own
 # set lives in CMakeLists.txt).
