@@ -9,5 +9,6 @@
 #include "veer/drive.h"
 #include "veer/route.h"
 #include "veer/plan.h"
+#include "veer/range.h"
 
 #endif
