@@ -2,19 +2,28 @@
  *
  * A Plan message carries the drive, limits and route; the path is rebuilt
  * from the route by path.c. The profile is carried as knots (s, sdot) per
- * rest-to-rest segment between which sddot is constant (sdot^2 linear in s,
- * the same law the planner uses between its grid points). The encoder keeps
- * a grid point as a knot only where dropping it would move sdot or the
- * arrival time materially, steers each kept knot's sdot within its tolerance
- * so the accumulated time error stays near zero, and then checks the result
- * by sampling it against the plan, tightening until it agrees.
+ * rest-to-rest segment; between two knots sddot changes linearly with s
+ * (sdot^2 is quadratic in s), and the decoder splits each knot interval into
+ * grid intervals of constant sddot, the law the planner uses between its grid
+ * points. The encoder keeps a grid point as a knot only where dropping it
+ * would move sddot, sdot or the arrival time materially, steers each kept
+ * knot's sdot within its tolerance so the accumulated time error stays near
+ * zero, and then checks the result by sampling it against the plan,
+ * tightening until it agrees.
  *
  * Profile.knots layout, per path segment in order:
- *   varint n (interior knots, >= 1), then n pairs
- *   varint ds (>= 1, counts of s_step from the previous knot),
- *   zigzag varint dv (counts of sdot_step from the previous knot's sdot).
- * Each segment starts at its s_begin at rest (implicit) and ends at its s_end
- * at rest (implicit).
+ *   varint n (interior knots, >= 1), then n triples
+ *     varint ds (>= 1, counts of s_step from the previous knot),
+ *     zigzag varint dv (counts of sdot_step from the previous knot's sdot),
+ *     zigzag varint du (counts of sddot_step: how much sddot changes over the
+ *       interval that ends at this knot), and when du != 0 a varint r - 1:
+ *       the interval is split into r (1..256) equal pieces,
+ *   then du (and r - 1) of the last interval (to the segment's end).
+ * Each segment starts at its s_begin at rest (the first at start_sdot) and
+ * ends at its s_end at rest, implicitly. A knot interval of length h from sdot^2 = xa to xb with
+ * sddot change du has sdot^2(sigma) = xa + b sigma + c sigma^2, c = du / h,
+ * b = (xb - xa) / h - c h; the encoder splits it into about |du| /
+ * sddot_split pieces (never more than the planner's grid had there).
  * SPDX-License-Identifier: MIT */
 #include <string.h>
 #include "wire_internal.h"
@@ -26,6 +35,7 @@
  * (see quantum()). */
 #define QUANTUM 1e-5
 #define MAX_WINDOW 4096 /* grid intervals one knot interval may span */
+#define MAX_SPLIT 256   /* pieces a knot interval may be split into */
 
 /* ---- varints (protobuf base-128, zigzag for signed) ------------------------ */
 
@@ -97,14 +107,66 @@ veer_status veer__wire_plan_hash(veer_v1_Plan *m, uint8_t digest[32]) {
 
 size_t veer__wire_plan_work_size(void) { return VEER__WIRE_PLAN_WORK_BYTES; }
 
+/* One knot interval: length h, sdot^2 from xa to xb, sdot^2 = xa + b sigma +
+ * c sigma^2, split into r pieces. */
+typedef struct {
+    double h, xa, xb, b, c;
+    int r;
+} kinterval;
+
+static kinterval make_interval(double h, double xa, double xb, double du, int r) {
+    kinterval q;
+    q.h = h, q.xa = xa, q.xb = xb;
+    q.c = du / h;
+    q.b = (xb - xa) / h - q.c * h;
+    q.r = r < 1 ? 1 : r > MAX_SPLIT ? MAX_SPLIT : r;
+    return q;
+}
+
+/* Pieces for a sddot change of du: |du| / split rounded up, no more than the
+ * planner's grid intervals the knot interval covers (finer gains nothing). */
+static int pieces(double du, double split, int covered) {
+    double r = ceil(fabs(du) / split - 1e-9);
+    int cap = covered < 1 ? 1 : covered > MAX_SPLIT ? MAX_SPLIT : covered;
+    return !(r >= 1.0) ? 1 : r > cap ? cap : (int)r;
+}
+
+/* sdot^2 at piece boundary m of r (the ends exactly). */
+static double split_x(const kinterval *q, int m) {
+    if (m <= 0) return q->xa;
+    if (m >= q->r) return q->xb;
+    double sg = q->h * m / q->r;
+    return q->xa + q->b * sg + q->c * sg * sg;
+}
+
+/* Time across the interval as the decoded plan has it (constant sddot per
+ * piece: 2 dl / (v_a + v_b)); infinite if it stands still inside. */
+static double kinterval_time(const kinterval *q) {
+    double t = 0.0, va = sqrt(q->xa);
+    for (int m = 1; m <= q->r; m++) {
+        double x = split_x(q, m);
+        if (m < q->r && !(x > 0.0)) return VEER_UNLIMITED;
+        double vb = sqrt(fmax(0.0, x));
+        if (!(va + vb > 0.0)) return VEER_UNLIMITED;
+        t += 2.0 * (q->h / q->r) / (va + vb);
+        va = vb;
+    }
+    return t;
+}
+
+#define COUNT_LIMIT ((int64_t)1 << 40)
+
 /* Parses the profile against the path's segments. With s, x NULL only counts
- * the knots (*count); otherwise fills them and the segments' k0, k1. */
+ * the grid points (*count); otherwise fills them and the segments' k0, k1. */
 static veer_status parse_profile(const veer_v1_Profile *pr, const veer_path *path, double *s, double *x,
                                  veer_plan_segment *segs, int *count, veer_diag *diag) {
-    if (!(pr->s_step >= 1e-9 && pr->s_step <= 1.0) || !(pr->sdot_step >= 1e-9 && pr->sdot_step <= 1.0))
+    if (!(pr->s_step >= 1e-9 && pr->s_step <= 1.0) || !(pr->sdot_step >= 1e-9 && pr->sdot_step <= 1.0) ||
+        !(pr->sddot_step >= 1e-12 && pr->sddot_step <= 1e3) ||
+        !(pr->sddot_split >= pr->sddot_step && pr->sddot_split <= 1e6) ||
+        !(pr->start_sdot >= 0.0 && pr->start_sdot <= 1e4))
         return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
-                          "plan.profile: s_step %g and sdot_step %g must be in [1e-9, 1]", pr->s_step,
-                          pr->sdot_step);
+                          "plan.profile: steps s %g, sdot %g, sddot %g, split %g are out of range", pr->s_step,
+                          pr->sdot_step, pr->sddot_step, pr->sddot_split);
     rbuf b = {pr->knots.bytes, pr->knots.size, 0};
     int k = 0;
     for (int j = 0; j < path->segment_count; j++) {
@@ -113,50 +175,64 @@ static veer_status parse_profile(const veer_v1_Profile *pr, const veer_path *pat
         if (!get_varint(&b, &n) || n < 1 || n > VEER_WIRE_MAX_KNOTS)
             return veer__fail(diag, VEER_ERR_DECODE, -1, -1, -1, ps->s_begin, NONE_ID,
                               "plan.profile: segment %d of %d has no valid knot count", j, path->segment_count);
-        if ((uint64_t)k + n + 2 > VEER_WIRE_MAX_KNOTS)
+        if (k + 1 > VEER_WIRE_MAX_KNOTS)
             return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, ps->s_begin, NONE_ID,
-                              "plan.profile: more than %d knots", VEER_WIRE_MAX_KNOTS);
+                              "plan.profile: more than %d grid points", VEER_WIRE_MAX_KNOTS);
+        double x0 = j == 0 ? pr->start_sdot * pr->start_sdot : 0.0;
         if (segs) segs[j].k0 = k;
-        if (s) s[k] = ps->s_begin, x[k] = 0.0;
+        if (s) s[k] = ps->s_begin, x[k] = x0;
         k++;
-        uint64_t cs = 0;
-        int64_t cv = 0;
-        double prev_s = ps->s_begin, prev_v = 0.0;
-        for (uint64_t i = 0; i < n; i++) {
-            uint64_t ds, dvz;
-            if (!get_varint(&b, &ds) || !get_varint(&b, &dvz))
+        int64_t cs = 0, cv = 0;
+        double prev_s = ps->s_begin, prev_x = x0;
+        for (uint64_t i = 0; i <= n; i++) {
+            uint64_t ds = 0, dvz = 0, duz;
+            int last = i == n;
+            if ((!last && (!get_varint(&b, &ds) || !get_varint(&b, &dvz))) || !get_varint(&b, &duz))
                 return veer__fail(diag, VEER_ERR_DECODE, -1, -1, k, ps->s_begin, NONE_ID,
                                   "plan.profile: the knots end early (segment %d)", j);
-            int64_t dv = unzigzag(dvz);
-            if (ds < 1 || ds > ((uint64_t)1 << 40) || dv > ((int64_t)1 << 40) || dv < -((int64_t)1 << 40))
+            int64_t dv = unzigzag(dvz), du = unzigzag(duz);
+            uint64_t rm1 = 0;
+            if (du != 0 && (!get_varint(&b, &rm1) || rm1 >= MAX_SPLIT))
+                return veer__fail(diag, VEER_ERR_DECODE, -1, -1, k, ps->s_begin, NONE_ID,
+                                  "plan.profile: knot interval %d has no valid piece count", k);
+            if ((!last && (ds < 1 || ds > (uint64_t)COUNT_LIMIT)) || dv > COUNT_LIMIT || dv < -COUNT_LIMIT ||
+                du > COUNT_LIMIT || du < -COUNT_LIMIT)
                 return veer__fail(diag, VEER_ERR_VALUE, -1, -1, k, prev_s, NONE_ID,
-                                  "plan.profile: knot %d has an out-of-range step", k);
-            cs += ds;
-            cv += dv;
-            double sk = ps->s_begin + (double)cs * pr->s_step, vk = (double)cv * pr->sdot_step;
-            if (!(sk > prev_s) || !(sk < ps->s_end) || cv < 0 || vk > 1e4 || (vk == 0.0 && prev_v == 0.0))
-                return veer__fail(diag, VEER_ERR_VALUE, -1, -1, k, sk, NONE_ID,
-                                  "plan.profile: knot %d (s = %g, sdot = %g) is outside segment %d [%g, %g] or "
-                                  "follows a rest",
-                                  k, sk, vk, j, ps->s_begin, ps->s_end);
-            if (s) s[k] = sk, x[k] = vk * vk;
-            prev_s = sk;
-            prev_v = vk;
-            k++;
+                                  "plan.profile: knot interval %d has an out-of-range step", k);
+            double sk = ps->s_end, xk = 0.0;
+            if (!last) {
+                cs += (int64_t)ds;
+                cv += dv;
+                sk = ps->s_begin + (double)cs * pr->s_step;
+                double vk = (double)cv * pr->sdot_step;
+                if (!(sk > prev_s) || !(sk < ps->s_end) || cv < 1 || cs > COUNT_LIMIT || vk > 1e4)
+                    return veer__fail(diag, VEER_ERR_VALUE, -1, -1, k, sk, NONE_ID,
+                                      "plan.profile: knot at s = %g, sdot = %g is outside segment %d [%g, %g] or "
+                                      "at rest",
+                                      sk, vk, j, ps->s_begin, ps->s_end);
+                xk = vk * vk;
+            }
+            kinterval q = make_interval(sk - prev_s, prev_x, xk, (double)du * pr->sddot_step, (int)rm1 + 1);
+            if (k + q.r > VEER_WIRE_MAX_KNOTS)
+                return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, ps->s_begin, NONE_ID,
+                                  "plan.profile: more than %d grid points", VEER_WIRE_MAX_KNOTS);
+            if (!isfinite(kinterval_time(&q)))
+                return veer__fail(diag, VEER_ERR_VALUE, -1, -1, k, prev_s, NONE_ID,
+                                  "plan.profile: the cart would stand still between s = %g and %g", prev_s, sk);
+            for (int m = 1; m <= q.r; m++) {
+                if (s) s[k] = m == q.r ? sk : prev_s + q.h * m / q.r, x[k] = split_x(&q, m);
+                k++;
+            }
+            prev_s = sk, prev_x = xk;
         }
-        if (prev_v == 0.0)
-            return veer__fail(diag, VEER_ERR_VALUE, -1, -1, k, ps->s_end, NONE_ID,
-                              "plan.profile: segment %d would stand still before its end", j);
-        if (s) s[k] = ps->s_end, x[k] = 0.0;
-        if (segs) segs[j].k1 = k;
-        k++;
+        if (segs) segs[j].k1 = k - 1;
     }
     if (b.pos != b.n)
         return veer__fail(diag, VEER_ERR_DECODE, -1, -1, -1, -1.0, NONE_ID,
                           "plan.profile: %zu bytes left after the last segment's knots", b.n - b.pos);
     if (pr->knot_count != (uint32_t)k)
         return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
-                          "plan.profile: knot_count says %u, the knots hold %d", (unsigned)pr->knot_count, k);
+                          "plan.profile: knot_count says %u, the knots give %d", (unsigned)pr->knot_count, k);
     *count = k;
     return VEER_OK;
 }
@@ -184,9 +260,11 @@ static veer_status timeline(veer_plan *plan, double *xi, veer_diag *diag) {
         if (!isfinite(t))
             return veer__fail(diag, VEER_ERR_VALUE, path->segments[j].leg, path->segments[j].waypoint, sg->k0,
                               path->segments[j].s_begin, NONE_ID, "plan.profile: segment %d has no finite time", j);
-        sg->move_time = t;
+        sg->raw_time = t;
+        sg->move_time = t + sg->tau; /* no jerk window is carried yet: tau is 0 */
         veer_status st = veer__steer_segment(plan, j, from, xi, diag);
         if (st != VEER_OK) return st;
+        if (j == 0 && plan->x_start > 0.0) sg->resteer_time = 0.0; /* already pointing along the motion */
         sg->t_resteer = clock;
         sg->t_move = clock + sg->resteer_time;
         for (int k = sg->k0; k <= sg->k1; k++) plan->t[k] += sg->t_move;
@@ -290,6 +368,7 @@ static veer_status load(veer_v1_Plan *m, void *work, size_t work_size, veer_plan
     lay_out(plan, n, grid);
     double *xi = (double *)(grid + VEER__WIRE_ALIGN(grid_bytes(VEER_WIRE_MAX_KNOTS, VEER_MAX_MODULES)));
     if ((st = parse_profile(&m->profile, &plan->path, plan->s, plan->x, plan->segs, &n, diag))) return st;
+    plan->x_start = m->profile.start_sdot * m->profile.start_sdot;
     if ((st = timeline(plan, xi, diag))) return st;
     if ((st = check_tail(m, plan, check_hash, diag))) return st;
     plan->alloc_size = 0; /* lives in the caller's workspace */
@@ -328,6 +407,7 @@ veer_status veer__wire_plan_decode_heap(veer_v1_Plan *m, veer_plan **out, veer_d
     }
     lay_out(plan, n, grid);
     st = parse_profile(&m->profile, &plan->path, plan->s, plan->x, plan->segs, &n, diag);
+    plan->x_start = m->profile.start_sdot * m->profile.start_sdot;
     if (st == VEER_OK) st = timeline(plan, xi, diag);
     if (st == VEER_OK) st = check_tail(m, plan, 1, diag);
     veer__free(xi, xb);
@@ -394,15 +474,15 @@ void veer__wire_compare(const veer_plan *a, const veer_plan *b, int samples, vee
 
 typedef struct {
     int64_t cs, cv; /* s and sdot counts from the segment start */
+    int64_t cu;     /* sddot change over the interval that ends here, counts */
+    int r;          /* pieces of that interval */
 } qknot;
 
-/* Time along a knot interval with sdot^2 linear in s, from sa (speed va) to
- * s (speed v): 2 ds / (va + v). */
-static double interval_time(double ds, double va, double v) { return ds > 0.0 ? 2.0 * ds / (va + v) : 0.0; }
+typedef struct {
+    double s, v, u, split; /* steps of s, sdot, sddot; split size */
+    double ev, et, eu;     /* tolerances: sdot, arrival time, sddot */
+} coder;
 
-/* Knots of segment j of plan at tolerance level: ev on sdot (s units/s), es
- * on the arrival position (s units). Writes at most cap knots to out
- * (interior ones only) and returns their number, or -1 when over cap. */
 /* The plan's own sdot^2 at s, linear between its grid points k and k + 1. */
 static double x_at(const double *s, const double *x, int N, int k, double at) {
     while (k > 0 && at < s[k]) k--;
@@ -411,80 +491,140 @@ static double x_at(const double *s, const double *x, int N, int k, double at) {
     return fmax(0.0, x[k] + (x[k + 1] - x[k]) * f);
 }
 
-static int choose_knots(const veer_plan *plan, int j, double ev, double es, double eu, double S_STEP, double V_STEP,
-                        qknot *out, int cap) {
+/* sddot change over [si, si + h] that best fits the plan's sdot^2 at its grid
+ * points i+1 .. jj-1 (least squares of the relative error, ends held; near
+ * rest the time depends on sdot^2 relative to itself), in counts. */
+static int64_t fit_du(const double *s, const double *x, int i, int jj, double si, double h, double xa, double xb,
+                      double step) {
+    double num = 0.0, den = 0.0, floor_x = 1e-6 * fmax(fmax(xa, xb), 1e-12);
+    for (int k = i + 1; k < jj; k++) {
+        double sg = s[k] - si, w = sg * (sg - h), r = x[k] - (xa + (xb - xa) * sg / h);
+        double wt = 1.0 / fmax(x[k], floor_x);
+        num += wt * w * r;
+        den += wt * w * w;
+    }
+    if (!(den > 0.0)) return 0;
+    double du = num / den * h / step;
+    return fabs(du) < 1e12 ? (int64_t)llround(du) : 0;
+}
+
+/* Does interval q, starting at si, follow the plan's grid points i .. jj
+ * (speeds, sddot per interval, times since point i) within the tolerances?
+ * The arrival-time error carried in from earlier intervals is steered away
+ * at the knots instead (choose_knots). */
+static double grid_u(const double *s, const double *x, int k) { return (x[k + 1] - x[k]) / (2.0 * (s[k + 1] - s[k])); }
+
+static int follows(const coder *cd, const kinterval *q, const double *s, const double *x, const double *t, int N,
+                   int i, int jj, double si) {
+    for (int m = 1; m < q->r; m++)
+        if (!(split_x(q, m) > 0.0)) return 0;
+    /* The sddot of the decoded pieces at each end of a grid interval must lie between the plan's
+     * sddot on the two grid intervals that meet there (within eu): at a grid point the planner's
+     * rows hold for both, so they hold for anything between. */
+    for (int k = i; k < jj; k++) {
+        double uk = grid_u(s, x, k);
+        for (int e = 0; e < 2; e++) {
+            int other = e == 0 ? k - 1 : k + 1;
+            double uo = other >= 0 && other < N ? grid_u(s, x, other) : uk;
+            double at = e == 0 ? s[k] - si + 1e-9 * q->h : s[k + 1] - si - 1e-9 * q->h;
+            int m = (int)floor(fmin(fmax(at, 0.0), q->h) * q->r / q->h);
+            if (m >= q->r) m = q->r - 1;
+            double uq = 0.5 * (q->b + 2.0 * q->c * (m + 0.5) * q->h / q->r);
+            if (uq < fmin(uk, uo) - cd->eu || uq > fmax(uk, uo) + cd->eu) return 0;
+        }
+    }
+    double th = 0.0, sp = 0.0, vp = sqrt(q->xa);
+    for (int k = i + 1; k < jj; k++) {
+        double sg = s[k] - si;
+        double xh = q->xa + q->b * sg + q->c * sg * sg;
+        if (!(xh > 0.0)) return 0;
+        double vh = sqrt(xh), vk = sqrt(x[k]);
+        th += 2.0 * (sg - sp) / (vp + vh);
+        sp = sg, vp = vh;
+        if (fabs(vh - vk) > cd->ev || fabs(th - (t[k] - t[i])) > cd->et) return 0;
+    }
+    return 1;
+}
+
+/* Knots of segment j: writes at most cap interior knots to out and the last
+ * interval (to the segment's end) to *last; returns the knot count (-1 over
+ * cap). */
+static int choose_knots(const veer_plan *plan, int j, const coder *cd, qknot *out, int cap, qknot *last) {
     const veer_plan_segment *sg = &plan->segs[j];
     const double *s = plan->s + sg->k0, *x = plan->x + sg->k0, *t = plan->t + sg->k0;
     int N = sg->k1 - sg->k0;
     double sb = plan->path.segments[j].s_begin, se = plan->path.segments[j].s_end;
-    int64_t c_end = (int64_t)floor((se - sb) / S_STEP - 0.5);
+    int64_t c_end = (int64_t)floor((se - sb) / cd->s - 0.5);
     int count = 0, i = 0;
-    qknot ki = {0, 0};
-    double si = sb, vi = 0.0, D = 0.0; /* D: arrival time of the kept knots minus the plan's, at knot i */
+    qknot ki = {0, 0, 0, 1};
+    double si = sb, vi = sqrt(x[0]), D = 0.0; /* D: arrival time of the kept knots minus the plan's, at knot i */
     while (i < N) {
         int best = -1;
-        qknot kb = {0, 0};
+        qknot kb = {0, 0, 0, 1};
         for (int jj = i + 1; jj <= N; jj++) {
             if (best >= 0 && jj - i > MAX_WINDOW) break;
-            qknot kj;
+            qknot kj = {0, 0, 0, 1};
             double sj, vj;
             if (jj == N) {
-                kj.cs = c_end + 1, kj.cv = 0, sj = se, vj = 0.0;
+                kj.cs = c_end + 1, sj = se, vj = 0.0;
             } else {
-                kj.cs = (int64_t)llround((s[jj] - sb) / S_STEP);
+                kj.cs = (int64_t)llround((s[jj] - sb) / cd->s);
                 if (kj.cs <= ki.cs || kj.cs > c_end) continue; /* cannot be placed apart from its neighbours */
-                sj = sb + (double)kj.cs * S_STEP;
+                sj = sb + (double)kj.cs * cd->s;
                 /* The plan's speed where the knot lands, not at the grid point it stands for. */
-                kj.cv = (int64_t)llround(sqrt(x_at(s, x, N, jj, sj)) / V_STEP);
+                kj.cv = (int64_t)llround(sqrt(x_at(s, x, N, jj, sj)) / cd->v);
                 if (kj.cv < 1) kj.cv = 1;
-                vj = (double)kj.cv * V_STEP;
+                vj = (double)kj.cv * cd->v;
             }
             if (best < 0) { /* the nearest placeable point is always acceptable */
                 best = jj, kb = kj;
-                if (ev <= 0.0) break;
+                if (cd->ev <= 0.0) break;
                 continue;
             }
-            int ok = 1;
-            double xa = vi * vi, xb = vj * vj;
-            double uh = (xb - xa) / (2.0 * (sj - si));
-            for (int k = i; k < jj && ok; k++) /* sddot of every grid interval the knot interval covers */
-                if (fabs(uh - (x[k + 1] - x[k]) / (2.0 * (s[k + 1] - s[k]))) > eu) ok = 0;
-            for (int k = i + 1; k < jj && ok; k++) {
-                double f = (s[k] - si) / (sj - si);
-                double vh = sqrt(fmax(0.0, xa + (xb - xa) * f)), vk = sqrt(x[k]);
-                double dt = D + interval_time(s[k] - si, vi, vh) - (t[k] - t[i]);
-                if (fabs(vh - vk) > ev || fabs(dt) * fmax(vh, vk) > es) ok = 0;
-            }
-            if (!ok) break;
+            double h = sj - si;
+            kj.cu = fit_du(s, x, i, jj, si, h, vi * vi, vj * vj, cd->u);
+            kj.r = pieces((double)kj.cu * cd->u, cd->split, jj - i);
+            kinterval q = make_interval(h, vi * vi, vj * vj, (double)kj.cu * cd->u, kj.r);
+            if (!follows(cd, &q, s, x, t, N, i, jj, si)) break;
             best = jj, kb = kj;
         }
         /* Steer the kept knot's sdot so the arrival time error stays near zero, within ev / 2 and
          * changing the sddot of the intervals on either side by at most eu / 4. */
-        double sj = best == N ? se : sb + (double)kb.cs * S_STEP;
+        double sj = best == N ? se : sb + (double)kb.cs * cd->s;
         if (best < N) {
             double h = fmin(sj - si, s[best + 1] - sj); /* this interval and the shortest the next can be */
-            double dv = fmin(0.5 * ev, 0.25 * eu * h / fmax((double)kb.cv * V_STEP, V_STEP));
-            int64_t c0 = kb.cv, r = (int64_t)floor(dv / V_STEP), c_best = c0;
+            double dv = fmin(0.5 * cd->ev, 0.25 * cd->eu * h / fmax((double)kb.cv * cd->v, cd->v));
+            int64_t c0 = kb.cv, r = (int64_t)floor(dv / cd->v), c_best = c0;
             double e_best = VEER_UNLIMITED;
             for (int64_t c = c0 - r; c <= c0 + r; c++) {
                 if (c < 1) continue;
-                double e = fabs(D + interval_time(sj - si, vi, (double)c * V_STEP) - (t[best] - t[i]));
+                double vc = (double)c * cd->v;
+                kinterval q = make_interval(sj - si, vi * vi, vc * vc, (double)kb.cu * cd->u, kb.r);
+                double e = fabs(D + kinterval_time(&q) - (t[best] - t[i]));
                 if (e < e_best) e_best = e, c_best = c;
             }
             kb.cv = c_best;
         }
-        double vj = best == N ? 0.0 : (double)kb.cv * V_STEP;
-        D += interval_time(sj - si, vi, vj) - (t[best] - t[i]);
+        double vj = best == N ? 0.0 : (double)kb.cv * cd->v;
+        kinterval q = make_interval(sj - si, vi * vi, vj * vj, (double)kb.cu * cd->u, kb.r);
+        double T = kinterval_time(&q);
+        if (!isfinite(T)) { /* a fitted curve that dips to rest: fall back to constant sddot */
+            kb.cu = 0, kb.r = 1;
+            q = make_interval(sj - si, vi * vi, vj * vj, 0.0, 1);
+            T = kinterval_time(&q);
+        }
+        D += T - (t[best] - t[i]);
         if (best < N) {
             if (count >= cap) return -1;
             out[count++] = kb;
+        } else {
+            *last = kb;
         }
         i = best, ki = kb, si = sj, vi = vj;
     }
     return count;
 }
 
-/* Writes the profile of plan at one tolerance level into pr. */
 /* A step small against the plan's shortest grid interval h: below
  * h / 256, from the ladder 1e-5, 5e-6, 2e-6, 1e-6, ... */
 static double quantum(const veer_plan *plan) {
@@ -501,12 +641,26 @@ static double quantum(const veer_plan *plan) {
     return q;
 }
 
+/* Writes the profile of plan at one tolerance level into pr: sdot within
+ * level * 0.1 % of the segment's top speed, sddot within level * 0.1 % of its
+ * largest, arrival within the time the segment's top speed takes for
+ * level * 1e-4 s units; level 0 keeps every point. */
 static veer_status write_profile(const veer_plan *plan, double level, qknot *tmp, veer_v1_Profile *pr,
                                  veer_diag *diag) {
     memset(pr, 0, sizeof *pr);
-    double S_STEP = quantum(plan), V_STEP = S_STEP;
-    pr->s_step = S_STEP;
-    pr->sdot_step = V_STEP;
+    double umax_plan = 1e-6;
+    for (int j = 0; j < plan->segment_count; j++)
+        for (int k = plan->segs[j].k0; k < plan->segs[j].k1; k++)
+            umax_plan = fmax(umax_plan, fabs(plan->x[k + 1] - plan->x[k]) / (2.0 * (plan->s[k + 1] - plan->s[k])));
+    coder cd;
+    cd.s = cd.v = quantum(plan);
+    cd.u = 1e-4 * umax_plan;
+    cd.split = fmax(cd.u, 0.5e-3 * level * umax_plan);
+    pr->s_step = cd.s;
+    pr->sdot_step = cd.v;
+    pr->sddot_step = cd.u;
+    pr->sddot_split = cd.split;
+    pr->start_sdot = sqrt(plan->x_start);
     pr->grid_points = (uint32_t)plan->n;
     wbuf b = {pr->knots.bytes, 0, sizeof pr->knots.bytes, 0};
     int total = 0;
@@ -516,26 +670,34 @@ static veer_status write_profile(const veer_plan *plan, double level, qknot *tmp
         for (int k = sg->k0; k <= sg->k1; k++) vmax = fmax(vmax, sqrt(plan->x[k]));
         for (int k = sg->k0; k < sg->k1; k++)
             umax = fmax(umax, fabs(plan->x[k + 1] - plan->x[k]) / (2.0 * (plan->s[k + 1] - plan->s[k])));
-        int n = choose_knots(plan, j, level * 1e-3 * vmax, level * 1e-4, level * 1e-3 * umax, S_STEP, V_STEP, tmp,
-                             VEER_WIRE_MAX_KNOTS);
-        if (n < 0 || total + n + 2 > VEER_WIRE_MAX_KNOTS)
-            return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, -1.0, NONE_ID,
-                              "plan: the profile needs more than the %d knots a Plan message holds; plan with "
-                              "fewer grid points",
-                              VEER_WIRE_MAX_KNOTS);
+        cd.ev = level * 1e-3 * vmax;
+        cd.eu = level * 1e-3 * umax;
+        cd.et = level * 1e-4 / fmax(vmax, 1e-3); /* 1e-4 s units at top speed */
+        qknot last = {0, 0, 0, 1};
+        int n = choose_knots(plan, j, &cd, tmp, VEER_WIRE_MAX_KNOTS, &last);
         if (n == 0)
             return veer__fail(diag, VEER_ERR_VALUE, plan->path.segments[j].leg, plan->path.segments[j].waypoint,
                               sg->k0, plan->s[sg->k0], NONE_ID,
                               "plan: segment %d is too short to carry a profile (%g s units)", j,
                               plan->path.segments[j].s_end - plan->path.segments[j].s_begin);
-        total += n + 2;
+        total += 1; /* grid points the decoder will make: the start, then each interval's pieces */
+        for (int i = 0; i <= n && n > 0; i++) total += i < n ? tmp[i].r : last.r;
+        if (n < 0 || total > VEER_WIRE_MAX_KNOTS)
+            return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, -1.0, NONE_ID,
+                              "plan: the profile needs more than the %d grid points a decoded plan holds; plan "
+                              "with fewer grid points",
+                              VEER_WIRE_MAX_KNOTS);
         put_varint(&b, (uint64_t)n);
         int64_t ps = 0, pv = 0;
         for (int i = 0; i < n; i++) {
             put_varint(&b, (uint64_t)(tmp[i].cs - ps));
             put_varint(&b, zigzag(tmp[i].cv - pv));
+            put_varint(&b, zigzag(tmp[i].cu));
+            if (tmp[i].cu != 0) put_varint(&b, (uint64_t)(tmp[i].r - 1));
             ps = tmp[i].cs, pv = tmp[i].cv;
         }
+        put_varint(&b, zigzag(last.cu));
+        if (last.cu != 0) put_varint(&b, (uint64_t)(last.r - 1));
     }
     if (b.overflow)
         return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, -1.0, NONE_ID,

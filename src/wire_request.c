@@ -135,6 +135,14 @@ veer_status veer__wire_drive_from_pb(const veer_v1_DriveDef *m, veer_drive_def *
         }
         for (int i = d.module_count; i < VEER_MAX_MODULES; i++) memset(&d.modules[i], 0, sizeof d.modules[i]);
     }
+    for (int i = 0; i < (int)m->modules_out_count; i++) {
+        int n = veer_drive_module_count(&d);
+        if (m->modules_out[i] >= (uint32_t)n)
+            return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
+                              "drive.modules_out[%d] is %u; the drive has modules 0..%d", i,
+                              (unsigned)m->modules_out[i], n - 1);
+        d.modules[m->modules_out[i]].out = 1;
+    }
     int mec = kind == VEER_DRIVE_MECANUM, dif = kind == VEER_DRIVE_DIFFERENTIAL;
     veer_status st;
     if ((st = geometry(m->has_wheel_radius, m->wheel_radius, 1, "wheel_radius", "all", &d.wheel_radius, diag)) ||
@@ -162,6 +170,8 @@ void veer__wire_drive_to_pb(const veer_drive_def *d, veer_v1_DriveDef *m) {
             m->modules[i].drive_angle = d->kind == VEER_DRIVE_OMNI ? d->modules[i].drive_angle : 0.0;
         }
     }
+    for (int i = 0; i < VEER_MAX_MODULES && i < veer_drive_module_count(d); i++)
+        if (d->modules[i].out) m->modules_out[m->modules_out_count++] = (uint32_t)i;
     m->has_wheel_radius = true;
     m->wheel_radius = d->wheel_radius;
     if (d->kind == VEER_DRIVE_MECANUM) {
@@ -205,6 +215,17 @@ static veer_status module_limits(const veer_v1_ModuleLimits *m, const char *wher
     if ((st = limit(m->has_steer_min, m->steer_min, -VEER_UNLIMITED, f, &out->steer_min, diag))) return st;
     snprintf(f, sizeof f, "%s.steer_max", where);
     if ((st = limit(m->has_steer_max, m->steer_max, VEER_UNLIMITED, f, &out->steer_max, diag))) return st;
+    snprintf(f, sizeof f, "%s.traction_mu", where);
+    if ((st = limit(m->has_traction_mu, m->traction_mu, VEER_UNLIMITED, f, &out->traction_mu, diag))) return st;
+    snprintf(f, sizeof f, "%s.motor_stall_accel", where);
+    if ((st = limit(m->has_motor_stall_accel, m->motor_stall_accel, VEER_UNLIMITED, f, &out->motor_stall_accel,
+                    diag)))
+        return st;
+    snprintf(f, sizeof f, "%s.motor_free_rate", where);
+    if ((st = limit(m->has_motor_free_rate, m->motor_free_rate, VEER_UNLIMITED, f, &out->motor_free_rate, diag)))
+        return st;
+    snprintf(f, sizeof f, "%s.wheel_jerk", where);
+    if ((st = limit(m->has_wheel_jerk, m->wheel_jerk, VEER_UNLIMITED, f, &out->wheel_jerk, diag))) return st;
     if (out->steer_min > out->steer_max)
         return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "%s: steer_min %g is above steer_max %g",
                           where, out->steer_min, out->steer_max);
@@ -229,7 +250,8 @@ veer_status veer__wire_limits_from_pb(const veer_v1_Limits *m, int module_count,
     if ((st = limit(m->has_body_speed, m->body_speed, VEER_UNLIMITED, "limits.body_speed", &l.body_speed, diag)) ||
         (st = limit(m->has_body_accel, m->body_accel, VEER_UNLIMITED, "limits.body_accel", &l.body_accel, diag)) ||
         (st = limit(m->has_yaw_rate, m->yaw_rate, VEER_UNLIMITED, "limits.yaw_rate", &l.yaw_rate, diag)) ||
-        (st = limit(m->has_yaw_accel, m->yaw_accel, VEER_UNLIMITED, "limits.yaw_accel", &l.yaw_accel, diag)))
+        (st = limit(m->has_yaw_accel, m->yaw_accel, VEER_UNLIMITED, "limits.yaw_accel", &l.yaw_accel, diag)) ||
+        (st = limit(m->has_body_jerk, m->body_jerk, VEER_UNLIMITED, "limits.body_jerk", &l.body_jerk, diag)))
         return st;
     *out = l;
     return VEER_OK;
@@ -242,6 +264,10 @@ static void module_limits_to_pb(const veer_module_limits *l, veer_v1_ModuleLimit
     if ((m->has_steer_rate = isfinite(l->steer_rate))) m->steer_rate = l->steer_rate;
     if ((m->has_steer_min = isfinite(l->steer_min))) m->steer_min = l->steer_min;
     if ((m->has_steer_max = isfinite(l->steer_max))) m->steer_max = l->steer_max;
+    if ((m->has_traction_mu = isfinite(l->traction_mu))) m->traction_mu = l->traction_mu;
+    if ((m->has_motor_stall_accel = isfinite(l->motor_stall_accel))) m->motor_stall_accel = l->motor_stall_accel;
+    if ((m->has_motor_free_rate = isfinite(l->motor_free_rate))) m->motor_free_rate = l->motor_free_rate;
+    if ((m->has_wheel_jerk = isfinite(l->wheel_jerk))) m->wheel_jerk = l->wheel_jerk;
 }
 
 static int same_module_limits(const veer_module_limits *a, const veer_module_limits *b) {
@@ -265,6 +291,7 @@ void veer__wire_limits_to_pb(const veer_limits *l, int module_count, veer_v1_Lim
     if ((m->has_body_accel = isfinite(l->body_accel))) m->body_accel = l->body_accel;
     if ((m->has_yaw_rate = isfinite(l->yaw_rate))) m->yaw_rate = l->yaw_rate;
     if ((m->has_yaw_accel = isfinite(l->yaw_accel))) m->yaw_accel = l->yaw_accel;
+    if ((m->has_body_jerk = isfinite(l->body_jerk))) m->body_jerk = l->body_jerk;
 }
 
 /* ---- route ------------------------------------------------------------- */
@@ -292,6 +319,16 @@ veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, v
             if ((st = route_value(m->start_steer[i], "route.start_steer[%d]", i, diag))) return st;
             r.start_steer[i] = m->start_steer[i];
         }
+    }
+    if (m->has_start_twist) {
+        if ((st = finite(m->start_twist.vx, "route.start_twist.vx", diag)) ||
+            (st = finite(m->start_twist.vy, "route.start_twist.vy", diag)) ||
+            (st = finite(m->start_twist.wz, "route.start_twist.wz", diag)))
+            return st;
+        r.has_start_twist = 1;
+        r.start_twist[0] = m->start_twist.vx;
+        r.start_twist[1] = m->start_twist.vy;
+        r.start_twist[2] = m->start_twist.wz;
     }
     if (m->legs_count > VEER_MAX_LEGS || m->waypoints_count > VEER_MAX_WAYPOINTS) /* nanopb enforces these */
         return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, -1.0, NONE_ID, "route: too many legs or waypoints");
@@ -349,6 +386,7 @@ veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, v
         l.pivot_x = ml->pivot_x;
         l.pivot_y = ml->pivot_y;
         l.angle = ml->angle;
+        l.hold_yaw = ml->hold_yaw ? 1 : 0;
         l.dwell = ml->dwell;
         r.legs[i] = l;
     }
@@ -362,7 +400,8 @@ veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, v
         if ((st = route_value(mw->x, "route.waypoints[%d].x", w, diag)) ||
             (st = route_value(mw->y, "route.waypoints[%d].y", w, diag)) ||
             (st = route_value(mw->has_yaw ? mw->yaw : 0.0, "route.waypoints[%d].yaw", w, diag)) ||
-            (st = route_value(mw->dwell, "route.waypoints[%d].dwell", w, diag))) {
+            (st = route_value(mw->dwell, "route.waypoints[%d].dwell", w, diag)) ||
+            (st = route_value(mw->has_arrival ? mw->arrival : 0.0, "route.waypoints[%d].arrival", w, diag))) {
             if (diag) diag->waypoint = w;
             return st;
         }
@@ -371,6 +410,8 @@ veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, v
         wp.yaw = mw->has_yaw ? mw->yaw : 0.0;
         wp.stop = mw->stop ? 1 : 0;
         wp.dwell = mw->dwell;
+        wp.timed = mw->has_arrival ? 1 : 0;
+        wp.arrival = mw->has_arrival ? mw->arrival : 0.0;
         r.waypoints[w] = wp;
     }
     *out = r;
@@ -386,6 +427,12 @@ void veer__wire_route_to_pb(const veer_route *r, int module_count, veer_v1_Route
     if (r->has_start_steer) {
         m->start_steer_count = (pb_size_t)M;
         for (int i = 0; i < M; i++) m->start_steer[i] = r->start_steer[i];
+    }
+    if (r->has_start_twist) {
+        m->has_start_twist = true;
+        m->start_twist.vx = r->start_twist[0];
+        m->start_twist.vy = r->start_twist[1];
+        m->start_twist.wz = r->start_twist[2];
     }
     int nl = r->leg_count < 0 ? 0 : r->leg_count > VEER_MAX_LEGS ? VEER_MAX_LEGS : r->leg_count;
     m->legs_count = (pb_size_t)nl;
@@ -413,6 +460,7 @@ void veer__wire_route_to_pb(const veer_route *r, int module_count, veer_v1_Route
             ml->pivot_x = l->pivot_x;
             ml->pivot_y = l->pivot_y;
             ml->angle = l->angle;
+            ml->hold_yaw = l->hold_yaw != 0;
         }
     }
     int nw = r->waypoint_count < 0 ? 0 : r->waypoint_count > VEER_MAX_WAYPOINTS ? VEER_MAX_WAYPOINTS : r->waypoint_count;
@@ -426,6 +474,7 @@ void veer__wire_route_to_pb(const veer_route *r, int module_count, veer_v1_Route
         mw->yaw = wp->has_yaw ? wp->yaw : 0.0;
         mw->stop = wp->stop != 0;
         mw->dwell = wp->dwell;
+        if ((mw->has_arrival = wp->timed != 0)) mw->arrival = wp->arrival;
     }
 }
 
@@ -444,6 +493,18 @@ veer_status veer__wire_options_from_pb(const veer_v1_PlanOptions *m, veer_plan_o
                        (double)m->accel_polygon_sides);
         o.accel_polygon_sides = (int)m->accel_polygon_sides;
     }
+    if (m->has_traction_polygon_sides) {
+        if (m->traction_polygon_sides > 10000000u)
+            return bad(diag, VEER_ERR_VALUE, "%s is out of range (%.0f)", "options.traction_polygon_sides",
+                       (double)m->traction_polygon_sides);
+        o.traction_polygon_sides = (int)m->traction_polygon_sides;
+    }
+    if (m->has_duration_target) {
+        if (!isfinite(m->duration_target) || m->duration_target < 0.0)
+            return bad(diag, VEER_ERR_VALUE, "%s must be finite and >= 0 (%g)", "options.duration_target",
+                       m->duration_target);
+        o.duration_target = m->duration_target;
+    }
     *out = o;
     return VEER_OK;
 }
@@ -453,6 +514,12 @@ void veer__wire_options_to_pb(const veer_plan_options *o, veer_v1_PlanOptions *m
     m->has_grid_points = m->has_accel_polygon_sides = true;
     m->grid_points = o->grid_points > 0 ? (uint32_t)o->grid_points : 0u;
     m->accel_polygon_sides = o->accel_polygon_sides > 0 ? (uint32_t)o->accel_polygon_sides : 0u;
+    m->has_traction_polygon_sides = true;
+    m->traction_polygon_sides = o->traction_polygon_sides > 0 ? (uint32_t)o->traction_polygon_sides : 0u;
+    if (o->duration_target > 0.0) {
+        m->has_duration_target = true;
+        m->duration_target = o->duration_target;
+    }
 }
 
 void veer__wire_diag_to_pb(const veer_diag *d, veer_v1_Diagnostic *m) {
@@ -473,4 +540,5 @@ void veer__wire_diag_to_pb(const veer_diag *d, veer_v1_Diagnostic *m) {
     m->limit_kind = (veer_v1_LimitKind)d->limit.kind;
     m->limit_module = d->limit.module;
     if (d->limit.kind != VEER_LIMIT_NONE) veer_limit_name(d->limit, m->limit_name, sizeof m->limit_name);
+    m->value = isfinite(d->value) ? d->value : 0.0;
 }

@@ -219,7 +219,7 @@ Test(wire_sha256, fips_180_examples) {
  *     legs { kind: LEG_KIND_SPIN yaw: -1 turn: TURN_CLOCKWISE }
  *     waypoints { x: 2 y: 1.5 }
  *     waypoints { x: 4 y: -1 yaw: 0.25 stop: true dwell: 0.5 } }
- *   options { grid_points: 400 accel_polygon_sides: 16 }
+ *   options { grid_points: 400 accel_polygon_sides: 16 traction_polygon_sides: 16 }
  *   cart_id: "M7" */
 static const uint8_t protoc_request[] = {
     0x08, 0x01, 0x12, 0x26, 0x08, 0x02, 0x19, 0xdb, 0xf9, 0x7e, 0x6a, 0xbc, 0x74, 0xb3, 0x3f, 0x21, 0x00, 0x00, 0x00,
@@ -233,7 +233,7 @@ static const uint8_t protoc_request[] = {
     0xbf, 0x48, 0x03, 0x32, 0x12, 0x09, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00, 0x40, 0x11, 0x00, 0x00, 0x00, 0x00,
     0x00, 0x00, 0xf8, 0x3f, 0x32, 0x26, 0x09, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00, 0x10, 0x40, 0x11, 0x00, 0x00, 0x00,
     0x00, 0x00, 0x00, 0xf0, 0xbf, 0x19, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00, 0xd0, 0x3f, 0x20, 0x01, 0x29, 0x00, 0x00,
-    0x00, 0x00, 0x00, 0x00, 0xe0, 0x3f, 0x2a, 0x05, 0x08, 0x90, 0x03, 0x10, 0x10, 0x32, 0x02, 0x4d, 0x37};
+    0x00, 0x00, 0x00, 0x00, 0xe0, 0x3f, 0x2a, 0x07, 0x08, 0x90, 0x03, 0x10, 0x10, 0x18, 0x10, 0x32, 0x02, 0x4d, 0x37};
 
 Test(wire_protoc, request_decodes_to_the_stated_values) {
     veer_v1_PlanRequest *r = calloc(1, sizeof *r);
@@ -567,7 +567,7 @@ Test(wire_plan, demo_sizes_and_agreement, .timeout = 120) {
     /* Issue 3: the demo plan in at most 1 KiB, at least 20 times smaller than its 50 Hz table. */
     cr_expect_leq(w->plan_size, 1024u);
     cr_expect_geq((double)table / (double)w->plan_size, 20.0);
-    printf("wire demo: plan %zu bytes (%d knots for %d grid points), 50 Hz table %zu bytes (%.0fx), reply %zu "
+    printf("wire demo: plan %zu bytes (decoded grid %d points, planner grid %d), 50 Hz table %zu bytes (%.0fx), reply %zu "
            "bytes; pose %.3f mm, angle %.4f deg, limit ratio %.4f (in memory %.4f), duration %.4f s vs %.4f s\n",
            w->plan_size, veer_plan_grid_count(dec), veer_plan_grid_count(w->plan), table,
            (double)table / (double)w->plan_size, w->reply_size, 1e3 * f.position, f.angle / DEG, f.ratio_b, f.ratio_a,
@@ -606,7 +606,7 @@ Test(wire_plan, mecanum_and_fine_grid_agree, .timeout = 120) {
     demo_over_wire(w, demo_scenario(), 4000);
     cr_assert_eq(veer_plan_decode_pb(w->plan_bytes, w->plan_size, &dec, &d), VEER_OK, "%s", d.message);
     veer_wire_figures f = check_against(w->plan, dec, &w->sc.limits);
-    printf("wire demo at 4000 grid points: plan %zu bytes, %d knots, pose %.3f mm\n", w->plan_size,
+    printf("wire demo at 4000 grid points: plan %zu bytes, decoded grid %d points, pose %.3f mm\n", w->plan_size,
            veer_plan_grid_count(dec), 1e3 * f.position);
     veer_plan_destroy(dec);
     demo_free(w);
