@@ -97,8 +97,22 @@ static veer_status config_hashes(const veer_drive_def *drive, const veer_limits 
     veer__wire_drive_to_pb(drive, &m.d);
     veer_status st = hash_message(veer_v1_DriveDef_fields, &m.d, dh);
     if (st != VEER_OK) return st;
+    /* Only the limits that apply to the drive kind count: steering limits
+     * mean nothing to fixed-wheel drives. */
+    veer_limits l = *limits;
+    int n = veer_drive_module_count(drive);
+    veer_module_limits unset = veer_default_limits().modules[0];
+    for (int i = 0; i < VEER_MAX_MODULES; i++) {
+        if (i >= n) {
+            l.modules[i] = unset;
+        } else if (drive->kind != VEER_DRIVE_STEERED) {
+            l.modules[i].steer_rate = unset.steer_rate;
+            l.modules[i].steer_min = unset.steer_min;
+            l.modules[i].steer_max = unset.steer_max;
+        }
+    }
     memset(&m, 0, sizeof m);
-    veer__wire_limits_to_pb(limits, veer_drive_module_count(drive), &m.l);
+    veer__wire_limits_to_pb(&l, n, &m.l);
     return hash_message(veer_v1_Limits_fields, &m.l, lh);
 }
 
