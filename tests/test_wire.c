@@ -389,6 +389,71 @@ Test(wire_roundtrip, limits_route_options_diag) {
     free(mr), free(bl), free(br), free(r2), free(bo), free(bd);
 }
 
+Test(wire_roundtrip, newer_inputs) {
+    /* Modules out, traction, motor curve, jerk, timed stops, orbits, start twist, options. */
+    veer_drive_def a = veer_default_drive_def(VEER_DRIVE_MECANUM), b;
+    a.modules[2].out = 1;
+    veer_v1_DriveDef md;
+    veer__wire_drive_to_pb(&a, &md);
+    cr_expect_eq(md.modules_out_count, 1);
+    veer_v1_DriveDef *bd = roundtrip(veer_v1_DriveDef_fields, &md, sizeof md);
+    veer_diag d;
+    cr_assert_eq(veer__wire_drive_from_pb(bd, &b, &d), VEER_OK, "%s", d.message);
+    cr_expect(memcmp(&a, &b, sizeof a) == 0);
+    bd->modules_out[0] = 4; /* a mecanum cart has wheels 0..3 */
+    cr_expect_eq(veer__wire_drive_from_pb(bd, &b, &d), VEER_ERR_VALUE);
+
+    veer_limits l = veer_default_limits(), l2;
+    for (int i = 0; i < 4; i++) {
+        l.modules[i].traction_mu = 0.7;
+        l.modules[i].motor_stall_accel = 60.0;
+        l.modules[i].motor_free_rate = 30.0;
+        l.modules[i].wheel_jerk = 400.0;
+    }
+    l.body_jerk = 5.0;
+    veer_v1_Limits ml;
+    veer__wire_limits_to_pb(&l, 4, &ml);
+    cr_expect_eq(ml.modules_count, 1); /* the same for every module: written once */
+    veer_v1_Limits *bl = roundtrip(veer_v1_Limits_fields, &ml, sizeof ml);
+    cr_assert_eq(veer__wire_limits_from_pb(bl, 4, &l2, &d), VEER_OK, "%s", d.message);
+    cr_expect(memcmp(&l, &l2, sizeof l) == 0);
+
+    veer_route *r = calloc(1, sizeof *r), *r2 = calloc(1, sizeof *r2);
+    *r = veer_default_route(1.0, 2.0, 0.5);
+    r->has_start_twist = 1;
+    r->start_twist[0] = 0.4, r->start_twist[1] = -0.1, r->start_twist[2] = 0.05;
+    veer_leg t = veer_default_leg(VEER_LEG_TRAVEL), pv = veer_default_leg(VEER_LEG_PIVOT);
+    cr_assert_eq(veer_route_add_leg(r, &t), VEER_OK);
+    veer_waypoint w = veer_default_waypoint(4.0, 2.0);
+    w.stop = 1, w.timed = 1, w.arrival = 12.5;
+    cr_assert_eq(veer_route_add_waypoint(r, &w), VEER_OK);
+    pv.pivot_x = 4.0, pv.pivot_y = 3.0, pv.angle = 1.0, pv.hold_yaw = 1;
+    cr_assert_eq(veer_route_add_leg(r, &pv), VEER_OK);
+    veer_v1_Route *mr = calloc(1, sizeof *mr);
+    veer__wire_route_to_pb(r, 4, mr);
+    veer_v1_Route *br = roundtrip(veer_v1_Route_fields, mr, sizeof *mr);
+    cr_assert_eq(veer__wire_route_from_pb(br, 4, r2, &d), VEER_OK, "%s", d.message);
+    cr_expect_eq(r2->has_start_twist, 1);
+    cr_expect(memcmp(r2->start_twist, r->start_twist, sizeof r->start_twist) == 0);
+    cr_expect_eq(r2->waypoints[0].timed, 1);
+    cr_expect_eq(r2->waypoints[0].arrival, 12.5);
+    cr_expect_eq(r2->legs[1].hold_yaw, 1);
+    br->start_twist.wz = (double)NAN;
+    cr_expect_eq(veer__wire_route_from_pb(br, 4, r2, &d), VEER_ERR_VALUE);
+
+    veer_plan_options o = veer_default_plan_options(), o2;
+    o.traction_polygon_sides = 24;
+    o.duration_target = 40.0;
+    veer_v1_PlanOptions mo;
+    veer__wire_options_to_pb(&o, &mo);
+    veer_v1_PlanOptions *bo = roundtrip(veer_v1_PlanOptions_fields, &mo, sizeof mo);
+    cr_assert_eq(veer__wire_options_from_pb(bo, &o2, &d), VEER_OK);
+    cr_expect(memcmp(&o, &o2, sizeof o) == 0);
+    bo->duration_target = -1.0;
+    cr_expect_eq(veer__wire_options_from_pb(bo, &o2, &d), VEER_ERR_VALUE);
+    free(bd), free(bl), free(r), free(r2), free(mr), free(br), free(bo);
+}
+
 Test(wire_roundtrip, status_and_enum_numbers_mirror_the_c_tables) {
     /* proto Status = veer_status + 1 with the same names; the other enums share numbers. */
     cr_expect_eq(veer__wire_status_to_pb(VEER_OK), veer_v1_Status_STATUS_OK);
@@ -608,6 +673,44 @@ Test(wire_plan, mecanum_and_fine_grid_agree, .timeout = 120) {
     veer_wire_figures f = check_against(w->plan, dec, &w->sc.limits);
     printf("wire demo at 4000 grid points: plan %zu bytes, decoded grid %d points, pose %.3f mm\n", w->plan_size,
            veer_plan_grid_count(dec), 1e3 * f.position);
+    veer_plan_destroy(dec);
+    demo_free(w);
+    free(w);
+}
+
+/* A plan made on the move (start twist) and one slowed to meet a timed stop
+ * keep to the same tolerances over the wire. */
+Test(wire_plan, on_the_move_and_timed_stop, .timeout = 120) {
+    scenario sc = mecanum_scenario();
+    sc.route.has_start_twist = 1;
+    sc.route.start_twist[0] = 0.6; /* moving forward at 0.6 m/s along the first leg */
+    sc.route.waypoint_count = 0;
+    sc.route.leg_count = 0;
+    veer_leg l = veer_default_leg(VEER_LEG_TRAVEL);
+    cr_assert_eq(veer_route_add_leg(&sc.route, &l), VEER_OK);
+    veer_waypoint a = veer_default_waypoint(3.0, 1.5);
+    a.stop = 1;
+    cr_assert_eq(veer_route_add_waypoint(&sc.route, &a), VEER_OK);
+    wire_demo *w = malloc(sizeof *w);
+    demo_over_wire(w, sc, 0);
+    veer_plan *dec = NULL;
+    veer_diag d;
+    cr_assert_eq(veer_plan_decode_pb(w->plan_bytes, w->plan_size, &dec, &d), VEER_OK, "%s", d.message);
+    veer_sample s0;
+    cr_assert_eq(veer_plan_sample(dec, 0.0, &s0), VEER_OK);
+    cr_expect(fabs(s0.twist_body[0] - 0.6) < 1e-3, "the decoded plan starts at %g m/s", s0.twist_body[0]);
+    check_against(w->plan, dec, &w->sc.limits);
+    double fastest = veer_plan_duration(w->plan);
+    veer_plan_destroy(dec);
+    demo_free(w);
+
+    sc = mecanum_scenario();
+    sc.route.waypoints[1].timed = 1;
+    /* the first leg's fastest arrival is before the plan's end; ask for it 2 s later than the whole fastest plan */
+    sc.route.waypoints[1].arrival = fastest + 2.0;
+    demo_over_wire(w, sc, 0);
+    cr_assert_eq(veer_plan_decode_pb(w->plan_bytes, w->plan_size, &dec, &d), VEER_OK, "%s", d.message);
+    check_against(w->plan, dec, &w->sc.limits);
     veer_plan_destroy(dec);
     demo_free(w);
     free(w);
