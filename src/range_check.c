@@ -134,6 +134,17 @@ static void run_sweep(const sweep *w, sweep_result *res) {
     memset(&prev, 0, sizeof prev);
     int have_prev = 0;
     res->worst_seg = res->violation_seg = 0;
+    /* An incumbent first: the clearance at every grid point. Steps are then
+     * fine only where the clearance comes near the lowest value. */
+    for (int j = 0; j < plan->segment_count; j++)
+        for (int k = plan->segs[j].k0; k <= plan->segs[j].k1; k++) {
+            evaluate(w, j, plan->s[k], none, &e);
+            r.poses++;
+            if (e.g < r.worst.margin) {
+                set_event(w, &e, e.g, &r.worst);
+                res->worst_seg = j;
+            }
+        }
     for (int j = 0; j < plan->segment_count; j++) {
         const veer_plan_segment *sg = &plan->segs[j];
         int k = sg->k0;
@@ -194,7 +205,10 @@ static void run_sweep(const sweep *w, sweep_result *res) {
             if (s >= s_end) break;
             while (k + 1 < sg->k1 && s >= plan->s[k + 1]) k++;
             double Lk = fmax(w->L[k], 1e-12);
-            double step = (e.g - r.worst.margin + VEER_RANGE_TOL) / Lk;
+            /* Until a violation is found the floor stays >= 0, so none
+             * deeper than the tolerance can be passed over. */
+            double floor = r.violated ? r.worst.margin : fmax(r.worst.margin, 0.0);
+            double step = (e.g - floor + VEER_RANGE_TOL) / Lk;
             if (in_run) step = fmin(step, (e.track - run_min + VEER_RANGE_TOL) / Lk);
             double next = s + step;
             if (next >= plan->s[k + 1]) next = plan->s[k + 1]; /* one interval's bound per step */

@@ -126,6 +126,20 @@ veer_status veer_carts_check_separation(const veer_cart *carts, int count, doubl
     r.conflict_t = -1.0;
     r.t_begin = t_begin;
     r.t_end = t_end;
+    /* An incumbent first: every pair at every grid time of either cart.
+     * Steps are then fine only where a pair comes near the lowest value. */
+    for (int a = 0; a < count; a++)
+        for (int b = a + 1; b < count; b++)
+            for (int side = 0; side < 2; side++) {
+                const veer_cart *c = &carts[side ? b : a];
+                for (int k = 0; k < c->plan->n; k++) {
+                    cart_state sa, sb;
+                    double T = c->start_time + c->plan->t[k];
+                    double sep = separation(&cc[a], &cc[b], T, &sa, &sb);
+                    r.poses++;
+                    if (sep < r.min_separation) r.min_separation = sep, r.min_t = T, r.min_a = a, r.min_b = b;
+                }
+            }
     for (int a = 0; a < count; a++)
         for (int b = a + 1; b < count; b++) {
             cart_state sa, sb;
@@ -157,8 +171,10 @@ veer_status veer_carts_check_separation(const veer_cart *carts, int count, doubl
                 double V = sa.speed + sb.speed;
                 double next = fmin(fmin(sa.next, sb.next), t_end);
                 if (V > 0.0) {
-                    double step = (sep - r.min_separation + VEER_RANGE_TOL) / V;
-                    if (!conflict) step = fmin(step, (sep - required + VEER_RANGE_TOL) / V);
+                    /* until this pair's conflict is found the floor stays
+                     * >= required, so none deeper than the tolerance is missed */
+                    double floor = conflict ? r.min_separation : fmax(r.min_separation, required);
+                    double step = (sep - floor + VEER_RANGE_TOL) / V;
                     next = fmin(next, T + step);
                 }
                 if (!(next > T)) next = fmin(t_end, T + 1e-9);
