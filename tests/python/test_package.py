@@ -187,3 +187,26 @@ def test_pip_install_offline_into_a_venv(veer, tmp_path):
     assert float(dur) == pytest.approx(veer.plan(str(scen)).duration, rel=1e-12)
     r = subprocess.run([str(env_dir / "bin" / "veer"), "--help"], capture_output=True, text=True, env=env)
     assert r.returncode == 0 and "safety" in r.stdout
+
+
+def test_message_classes_generated_on_first_use(veer, tmp_path):
+    # Without classes in the package or beside the library, the package runs
+    # protoc on proto/veer/v1 into its cache folder (VEER_PB_CACHE).
+    if shutil.which("protoc") is None:
+        pytest.skip("no protoc")
+    dst = tmp_path / "pkg"
+    shutil.copytree(conftest.REPO / "bindings" / "python" / "veer", dst / "veer",
+                    ignore=shutil.ignore_patterns("libveer.so*", "__pycache__", "*_pb2.py"))
+    (tmp_path / "lib").mkdir()
+    lib = tmp_path / "lib" / "libveer.so"
+    shutil.copyfile(veer.library().path, lib)
+    env = dict(os.environ, VEER_LIBRARY=str(lib), PYTHONPATH=str(dst), VEER_PB_CACHE=str(tmp_path / "cache"),
+               VEER_PROTO_DIR=str(conftest.REPO / "proto"))
+    code = ("import sys, veer; p = veer.plan(sys.argv[1]); import veer.v1.plan_pb2 as m; "
+            "print(m.__file__); print(p.duration)")
+    r = subprocess.run([sys.executable, "-c", code, str(conftest.SCENARIO_DIR / "south_lane1_mecanum.json")],
+                       capture_output=True, text=True, env=env, cwd=str(tmp_path))
+    assert r.returncode == 0, r.stderr
+    where, dur = r.stdout.split()
+    assert where.startswith(str(tmp_path / "cache"))
+    assert float(dur) == pytest.approx(veer.plan(str(conftest.SCENARIO_DIR / "south_lane1_mecanum.json")).duration)
