@@ -261,7 +261,7 @@ static veer_status timeline(veer_plan *plan, double *xi, veer_diag *diag) {
             return veer__fail(diag, VEER_ERR_VALUE, path->segments[j].leg, path->segments[j].waypoint, sg->k0,
                               path->segments[j].s_begin, NONE_ID, "plan.profile: segment %d has no finite time", j);
         sg->raw_time = t;
-        sg->move_time = t + sg->tau; /* no jerk window is carried yet: tau is 0 */
+        sg->move_time = t + sg->tau; /* tau: the jerk window the profile carries, 0 without */
         veer_status st = veer__steer_segment(plan, j, from, xi, diag);
         if (st != VEER_OK) return st;
         if (j == 0 && plan->x_start > 0.0) sg->resteer_time = 0.0; /* already pointing along the motion */
@@ -288,6 +288,23 @@ static veer_status timeline(veer_plan *plan, double *xi, veer_diag *diag) {
         ls->duration = sg->t_move + sg->move_time + sg->dwell - ls->start;
         ls->resteer_time += sg->resteer_time;
         ls->dwell_time += sg->dwell;
+    }
+    return VEER_OK;
+}
+
+/* The segments' jerk-limiting windows: none, or one per segment. */
+static veer_status jerk_windows(const veer_v1_Profile *pr, veer_plan *plan, veer_diag *diag) {
+    if (pr->jerk_window_count == 0) return VEER_OK;
+    if ((int)pr->jerk_window_count != plan->segment_count)
+        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
+                          "plan.profile: %d jerk windows for %d path segments", (int)pr->jerk_window_count,
+                          plan->segment_count);
+    for (int j = 0; j < plan->segment_count; j++) {
+        double tau = pr->jerk_window[j];
+        if (!(tau >= 0.0 && tau <= 3600.0))
+            return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
+                              "plan.profile: jerk window %d is %g s", j, tau);
+        plan->segs[j].tau = tau;
     }
     return VEER_OK;
 }
@@ -369,6 +386,7 @@ static veer_status load(veer_v1_Plan *m, void *work, size_t work_size, veer_plan
     double *xi = (double *)(grid + VEER__WIRE_ALIGN(grid_bytes(VEER_WIRE_MAX_KNOTS, VEER_MAX_MODULES)));
     if ((st = parse_profile(&m->profile, &plan->path, plan->s, plan->x, plan->segs, &n, diag))) return st;
     plan->x_start = m->profile.start_sdot * m->profile.start_sdot;
+    if ((st = jerk_windows(&m->profile, plan, diag))) return st;
     if ((st = timeline(plan, xi, diag))) return st;
     if ((st = check_tail(m, plan, check_hash, diag))) return st;
     plan->alloc_size = 0; /* lives in the caller's workspace */
@@ -408,6 +426,7 @@ veer_status veer__wire_plan_decode_heap(veer_v1_Plan *m, veer_plan **out, veer_d
     lay_out(plan, n, grid);
     st = parse_profile(&m->profile, &plan->path, plan->s, plan->x, plan->segs, &n, diag);
     plan->x_start = m->profile.start_sdot * m->profile.start_sdot;
+    if (st == VEER_OK) st = jerk_windows(&m->profile, plan, diag);
     if (st == VEER_OK) st = timeline(plan, xi, diag);
     if (st == VEER_OK) st = check_tail(m, plan, 1, diag);
     veer__free(xi, xb);
@@ -661,6 +680,9 @@ static veer_status write_profile(const veer_plan *plan, double level, qknot *tmp
     pr->sddot_step = cd.u;
     pr->sddot_split = cd.split;
     pr->start_sdot = sqrt(plan->x_start);
+    for (int j = 0; j < plan->segment_count; j++)
+        if (plan->segs[j].tau > 0.0) pr->jerk_window_count = (pb_size_t)plan->segment_count;
+    for (int j = 0; j < (int)pr->jerk_window_count; j++) pr->jerk_window[j] = plan->segs[j].tau;
     pr->grid_points = (uint32_t)plan->n;
     wbuf b = {pr->knots.bytes, 0, sizeof pr->knots.bytes, 0};
     int total = 0;

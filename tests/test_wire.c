@@ -716,6 +716,26 @@ Test(wire_plan, on_the_move_and_timed_stop, .timeout = 120) {
     free(w);
 }
 
+/* A jerk-limited plan (segment laws averaged over a window) keeps the tolerances over the wire. */
+Test(wire_plan, jerk_limited, .timeout = 120) {
+    scenario sc = mecanum_scenario();
+    sc.limits.body_jerk = 4.0; /* m/s^3 */
+    sc.limits.body_accel = 1.0;
+    wire_demo *w = malloc(sizeof *w);
+    demo_over_wire(w, sc, 0);
+    veer_plan *dec = NULL;
+    veer_diag d;
+    cr_assert_eq(veer_plan_decode_pb(w->plan_bytes, w->plan_size, &dec, &d), VEER_OK, "%s", d.message);
+    veer_v1_Plan *m = calloc(1, sizeof *m);
+    cr_assert_eq(veer__wire_decode(veer_v1_Plan_fields, m, w->plan_bytes, w->plan_size, "plan", &d), VEER_OK);
+    cr_expect_gt(m->profile.jerk_window_count, 0, "the plan carries no jerk window");
+    check_against(w->plan, dec, &w->sc.limits);
+    free(m);
+    veer_plan_destroy(dec);
+    demo_free(w);
+    free(w);
+}
+
 /* Reply contents: legs, per grid point s, sdot and binding limit, as in memory. */
 Test(wire_plan, reply_carries_grid_and_legs) {
     wire_demo *w = malloc(sizeof *w);
