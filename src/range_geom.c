@@ -16,8 +16,8 @@
  * therefore: the shape's vertices; the points of its edges where two sites
  * (boundary vertices or edge lines) are equally far; and the interior points
  * equally far from three sites. Each is a root of a quadratic along a line.
- * Only sites within (depth at a vertex + the shape's diameter) of the shape
- * can be nearest anywhere in it; the others are left out.
+ * Interior points are searched by branch and bound over cells, each cell
+ * solved exactly once few sites can be nearest in it (interior_search).
  * SPDX-License-Identifier: MIT */
 #include <stdio.h>
 #include <string.h>
@@ -137,11 +137,17 @@ double veer__outline_gap(const veer_outline *a, const veer_outline *b) {
 /* ---- depth of a violation ------------------------------------------------ */
 
 /* A site of the area's boundary: a vertex (point) or an edge's line
- * n . p = c with unit normal n. */
+ * n . p = c with unit normal n (and the edge's ends, for its distance). */
 typedef struct {
     int line;
     double a, b, c; /* point (a, b); line normal (a, b), offset c */
+    double e0[2], e1[2];
 } site;
+
+/* Distance from (x, y) to the site's feature: the vertex, or the edge. */
+static double site_distance(const site *st, double x, double y) {
+    return st->line ? point_segment_distance(x, y, st->e0, st->e1) : hypot(x - st->a, y - st->b);
+}
 
 /* Squared distance to the site along p = m + tau d: q[0] + q[1] tau + q[2] tau^2. */
 static void site_quadratic(const site *st, const double m[2], const double d[2], double q[3]) {
@@ -190,12 +196,15 @@ typedef struct {
     int allowed_inside;
     double box[4];
     double best;
+    site sites[2 * VEER_MAX_OUTLINE_VERTICES];
+    int ns;
 } depth_search;
 
-/* Tries the point tau on line m + tau d as a candidate; tie is the squared
- * distance to the sites that tie there. */
+/* Tries the point tau on line m + tau d as a candidate; tie2 is the squared
+ * distance to the sites that tie there (the value there is at most that
+ * when one of them is a vertex, and equal to it at a true tie). */
 static void try_point(depth_search *ds, const double m[2], const double d[2], double tau, double tie2, int interior) {
-    if (!(tie2 >= 0.0) || sqrt(tie2) <= ds->best) return; /* cannot beat the best (the true value is at most tie) */
+    if (!(tie2 >= 0.0) || sqrt(tie2) <= ds->best) return;
     double x = m[0] + tau * d[0], y = m[1] + tau * d[1];
     if (interior) {
         if (box_point_distance(ds->box, x, y) > 0.0) return;
@@ -248,48 +257,108 @@ static int tie_lines(const site *si, const site *sj, double m[2][2], double d[2]
     return 0;
 }
 
+/* Every tie of three of the listed sites (interior candidates): along each
+ * tie line of a pair, where a third site is as far. Every triple has two
+ * sites of one kind, whose tie set is lines. */
+static void triple_ties(depth_search *ds, const int *idx, int n) {
+    for (int i = 0; i < n; i++)
+        for (int j = i + 1; j < n; j++) {
+            double m[2][2], d[2][2];
+            int nl = tie_lines(&ds->sites[idx[i]], &ds->sites[idx[j]], m, d);
+            for (int l = 0; l < nl; l++)
+                for (int k = 0; k < n; k++)
+                    if (k != i && k != j) ties_on_line(ds, &ds->sites[idx[i]], &ds->sites[idx[k]], m[l], d[l], 0);
+        }
+}
+
+#define CELL_SITES 12    /* a cell with at most this many possible nearest sites is resolved exactly */
+#define CELL_MIN 1e-6    /* m: half side below which a cell is taken at its centre (many-way ties) */
+#define CELL_STACK 256
+
+/* Interior of the shape: branch and bound over square cells. The value is
+ * 1-Lipschitz, so on a cell of half-diagonal h about c it is at most
+ * dist(c, boundary) + h; cells that cannot beat the best are dropped.
+ * Only sites within dist(c, boundary) + 2h of c can be nearest anywhere in
+ * the cell; once they are few, the cell's local maxima are among their
+ * triple ties (see the top of this file) and the cell is done. */
+static void interior_search(depth_search *ds) {
+    double st[CELL_STACK][3];
+    int top = 0;
+    double half = 0.5 * fmax(ds->box[2] - ds->box[0], ds->box[3] - ds->box[1]);
+    st[top][0] = 0.5 * (ds->box[0] + ds->box[2]), st[top][1] = 0.5 * (ds->box[1] + ds->box[3]), st[top][2] = half;
+    top++;
+    int idx[2 * VEER_MAX_OUTLINE_VERTICES];
+    while (top > 0) {
+        top--;
+        double cx = st[top][0], cy = st[top][1], hs = st[top][2], h = hs * 1.4142135623730951;
+        int in_shape = veer__outline_inside(ds->shape, cx, cy);
+        if (!in_shape && veer__outline_boundary_distance(ds->shape, cx, cy) > h) continue; /* misses the shape */
+        double dc = veer__outline_boundary_distance(ds->area, cx, cy);
+        int forbidden = veer__outline_inside(ds->area, cx, cy) != ds->allowed_inside;
+        if (!forbidden && dc > h) continue; /* wholly on the allowed side */
+        if (forbidden && in_shape && dc > ds->best) ds->best = dc;
+        if ((forbidden ? dc + h : h) <= ds->best) continue;
+        int n = 0;
+        for (int i = 0; i < ds->ns; i++)
+            if (site_distance(&ds->sites[i], cx, cy) <= dc + 2.0 * h + 1e-12) idx[n++] = i;
+        if (n <= CELL_SITES) {
+            triple_ties(ds, idx, n);
+            continue;
+        }
+        if (hs < CELL_MIN || top + 4 > CELL_STACK) continue; /* within CELL_MIN of the value at the centre */
+        double q = 0.5 * hs;
+        for (int c = 0; c < 4; c++) {
+            st[top][0] = cx + (c & 1 ? q : -q), st[top][1] = cy + (c & 2 ? q : -q), st[top][2] = q;
+            top++;
+        }
+    }
+}
+
 static double violation_depth(const veer_outline *shape, const veer_outline *area, int allowed_inside) {
     depth_search ds;
     ds.shape = shape, ds.area = area, ds.allowed_inside = allowed_inside;
     veer__outline_box(shape, ds.box);
     ds.best = 0.0;
-    double low = VEER_UNLIMITED;
+    double fv[VEER_MAX_OUTLINE_VERTICES];
     for (int i = 0; i < shape->count; i++) {
-        double v = outside_by(area, allowed_inside, PT(shape, i)[0], PT(shape, i)[1]);
-        ds.best = fmax(ds.best, v);
-        low = fmin(low, v);
+        fv[i] = outside_by(area, allowed_inside, PT(shape, i)[0], PT(shape, i)[1]);
+        ds.best = fmax(ds.best, fv[i]);
     }
-    /* f is 1-Lipschitz: nowhere in the shape more than low + diameter. */
-    double reach = low + hypot(ds.box[2] - ds.box[0], ds.box[3] - ds.box[1]) + 1e-9;
-    site sites[2 * VEER_MAX_OUTLINE_VERTICES];
-    int ns = 0;
+    ds.ns = 0;
     for (int i = 0, j = area->count - 1; i < area->count; j = i++) {
         const double *a = PT(area, j), *b = PT(area, i);
-        if (box_point_distance(ds.box, b[0], b[1]) <= reach) sites[ns++] = (site){0, b[0], b[1], 0.0};
-        double eb[4] = {fmin(a[0], b[0]), fmin(a[1], b[1]), fmax(a[0], b[0]), fmax(a[1], b[1])};
-        if (veer__box_distance(ds.box, eb) <= reach) {
-            double ex = b[0] - a[0], ey = b[1] - a[1], L = hypot(ex, ey);
-            double nx = -ey / L, ny = ex / L;
-            sites[ns++] = (site){1, nx, ny, nx * a[0] + ny * a[1]};
-        }
+        site v = {0, b[0], b[1], 0.0, {b[0], b[1]}, {b[0], b[1]}};
+        ds.sites[ds.ns++] = v;
+        double ex = b[0] - a[0], ey = b[1] - a[1], L = hypot(ex, ey);
+        double nx = -ey / L, ny = ex / L;
+        site e = {1, nx, ny, nx * a[0] + ny * a[1], {a[0], a[1]}, {b[0], b[1]}};
+        ds.sites[ds.ns++] = e;
     }
-    /* Ties of two sites on the shape's edges. */
+    /* Ties of two sites on the shape's edges that reach the forbidden side.
+     * On an edge the value is at most (f(a) + f(b) + |ab|) / 2, so only sites
+     * that near the edge can be nearest on it. */
+    int idx[2 * VEER_MAX_OUTLINE_VERTICES];
     for (int e = 0, f = shape->count - 1; e < shape->count; f = e++) {
-        double m[2] = {PT(shape, f)[0], PT(shape, f)[1]};
-        double d[2] = {PT(shape, e)[0] - m[0], PT(shape, e)[1] - m[1]};
-        for (int i = 0; i < ns; i++)
-            for (int k = i + 1; k < ns; k++) ties_on_line(&ds, &sites[i], &sites[k], m, d, 1);
-    }
-    /* Ties of three sites inside the shape: along each tie line of a pair,
-     * where a third site is as far. */
-    for (int i = 0; i < ns; i++)
-        for (int j = i + 1; j < ns; j++) {
-            double m[2][2], d[2][2];
-            int nl = tie_lines(&sites[i], &sites[j], m, d);
-            for (int l = 0; l < nl; l++)
-                for (int k = 0; k < ns; k++)
-                    if (k != i && k != j) ties_on_line(&ds, &sites[i], &sites[k], m[l], d[l], 0);
+        const double *a = PT(shape, f), *b = PT(shape, e);
+        if (fv[f] == 0.0 && fv[e] == 0.0) {
+            int crosses = 0;
+            for (int i = 0, j = area->count - 1; i < area->count && !crosses; j = i++)
+                crosses = segments_meet(a, b, PT(area, j), PT(area, i));
+            if (!crosses) continue; /* wholly on the allowed side */
         }
+        double reach = 0.5 * (fv[f] + fv[e] + hypot(b[0] - a[0], b[1] - a[1])) + 1e-12;
+        int n = 0;
+        for (int i = 0; i < ds.ns; i++) {
+            const site *st = &ds.sites[i];
+            double dist = st->line ? segment_distance(a, b, st->e0, st->e1)
+                                   : point_segment_distance(st->a, st->b, a, b);
+            if (dist <= reach) idx[n++] = i;
+        }
+        double m[2] = {a[0], a[1]}, d[2] = {b[0] - a[0], b[1] - a[1]};
+        for (int i = 0; i < n; i++)
+            for (int k = i + 1; k < n; k++) ties_on_line(&ds, &ds.sites[idx[i]], &ds.sites[idx[k]], m, d, 1);
+    }
+    interior_search(&ds);
     return ds.best;
 }
 

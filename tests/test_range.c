@@ -621,3 +621,67 @@ Test(range_zones, brief_touch_between_grid_points) {
     cr_expect(met > 5, "the corner meets the zone for %d ms", met);
     veer_plan_destroy(p);
 }
+
+/* Bad input from anywhere (a file, a radio, Python): random counts and
+ * coordinates, NaN, infinities, huge and tiny values, repeated points.
+ * Never a crash; a refused outline gets a named status; an accepted one
+ * gives finite answers. */
+Test(range_geom, random_garbage_never_crashes) {
+    unsigned long long state = 0x6a09e667f3bcc909ull;
+    const double odd[] = {NAN, INFINITY, -INFINITY, 1e300, -1e300, 1e-310, 0.0, 1e6, 2e6, 1e-7};
+    int accepted = 0;
+    for (int it = 0; it < 3000; it++) {
+        veer_outline a = veer_default_outline(), b = veer_default_outline();
+        veer_outline *o[2] = {&a, &b};
+        for (int w = 0; w < 2; w++) {
+            state = state * 6364136223846793005ull + 1442695040888963407ull;
+            int n = (int)(state >> 33) % 75 - 5;
+            o[w]->count = n;
+            int m = n < 0 ? 0 : n > VEER_MAX_OUTLINE_VERTICES ? VEER_MAX_OUTLINE_VERTICES : n;
+            if (it % 2 && m >= 3) {
+                /* a star polygon (simple) at a random scale and offset, now and then one vertex spoilt */
+                double scale = pow(10.0, (double)((state >> 20) % 11) - 5.0), off = (double)((state >> 8) % 1000) - 500.0;
+                for (int i = 0; i < m; i++) {
+                    state = state * 6364136223846793005ull + 1442695040888963407ull;
+                    double ang = 6.283185307179586 * (i + 0.8 * (double)((state >> 40) % 1000) / 1000.0) / m;
+                    double rad = scale * (0.2 + (double)((state >> 20) % 1000) / 1000.0);
+                    o[w]->points[i][0] = off + rad * cos(ang);
+                    o[w]->points[i][1] = off + rad * sin(ang);
+                }
+                if ((state >> 50) % 4 == 0) o[w]->points[(state >> 12) % (unsigned)m][(state >> 11) & 1] = odd[(state >> 30) % 10];
+                continue;
+            }
+            for (int i = 0; i < m; i++)
+                for (int k = 0; k < 2; k++) {
+                    state = state * 6364136223846793005ull + 1442695040888963407ull;
+                    unsigned r = (unsigned)(state >> 40);
+                    double v = r % 17 == 0 ? odd[r % 10] : (double)(r % 20001) * 1e-3 - 10.0;
+                    if (r % 23 == 0 && i > 0) v = o[w]->points[i - 1][k];
+                    if (r % 29 == 0) v *= 1e-7;
+                    o[w]->points[i][k] = v;
+                }
+        }
+        veer_diag d;
+        veer_status sa = veer_outline_check(&a, &d);
+        cr_assert(sa == VEER_OK || sa == VEER_ERR_VALUE || sa == VEER_ERR_CAPACITY || sa == VEER_ERR_GEOMETRY);
+        cr_assert_eq(sa == VEER_OK, d.message[0] == '\0', "a message exactly when refused");
+        veer_status sb = veer_outline_check(&b, &d);
+        double v = 12345.0;
+        int in = 7;
+        veer_status st = veer_outline_distance(&a, &b, &v);
+        cr_assert_eq(st == VEER_OK, sa == VEER_OK && sb == VEER_OK);
+        if (st != VEER_OK) {
+            cr_assert_eq(v, 12345.0, "output untouched on failure");
+            continue;
+        }
+        accepted++;
+        cr_assert(isfinite(v) && v >= 0.0);
+        cr_assert_eq(veer_outline_clearance(&a, &b, it & 1, &v), VEER_OK);
+        cr_assert(isfinite(v));
+        cr_assert_eq(veer_outline_contains(&a, b.points[0][0], b.points[0][1], &in), VEER_OK);
+        cr_assert(in == 0 || in == 1);
+        cr_assert_eq(veer_outline_point_distance(&a, 0.5, -0.5, &v), VEER_OK);
+        cr_assert(isfinite(v));
+    }
+    cr_expect(accepted > 300, "many pairs are valid: %d", accepted);
+}

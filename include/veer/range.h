@@ -15,7 +15,9 @@
  *   footprint to the area's boundary while wholly inside; negative, how far
  *   the footprint reaches outside (the largest distance from a point of the
  *   footprint to the area).
- * Both are exact for the outlines (no sampling of the polygons). The margin
+ * Both are exact for the outlines (no sampling of the polygons; where many
+ * boundary features tie, as at the centre of a regular polygon, a depth is
+ * exact to 1e-6 m). The margin
  * is subtracted from the outline's clearance: positive figures are then
  * exactly the clearance of the footprint grown by the margin, and a
  * violation's depth counts the margin in full. A clearance of 0 (touching)
