@@ -10,5 +10,6 @@
 #include "veer/route.h"
 #include "veer/plan.h"
 #include "veer/range.h"
+#include "veer/wire.h"
 
 #endif

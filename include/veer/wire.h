@@ -10,8 +10,14 @@
  * partly.
  *
  * Capacities (the .options files in proto/veer/v1): VEER_MAX_MODULES modules,
- * VEER_MAX_LEGS legs, VEER_MAX_WAYPOINTS waypoints, VEER_WIRE_MAX_KNOTS profile
- * knots, VEER_WIRE_MAX_PROFILE_BYTES bytes of compressed profile.
+ * VEER_MAX_LEGS legs, VEER_MAX_WAYPOINTS waypoints, VEER_WIRE_MAX_KNOTS grid
+ * points in a decoded plan, VEER_WIRE_MAX_PROFILE_BYTES bytes of compressed
+ * profile.
+ *
+ * Python classes for these messages: the CMake target veer_python_proto
+ * (built by default) runs protoc --python_out and writes
+ * <build>/python/veer/v1/{drive,limits,route,plan,setpoints}_pb2.py
+ * (-DVEER_PYTHON_PROTO_OUT=<dir> writes them elsewhere).
  * SPDX-License-Identifier: MIT */
 #ifndef VEER_WIRE_H
 #define VEER_WIRE_H
@@ -30,8 +36,11 @@ extern "C" {
 #define VEER_WIRE_SCHEMA_VERSION 1
 VEER_API unsigned veer_wire_schema_version(void);
 
-/* Profile knots a decoded plan holds at most (rests included), and the
- * compressed profile's byte capacity. */
+/* Grid points a plan decoded from bytes holds at most (its knots, the pieces
+ * knot intervals are split into, and the rests), and the compressed
+ * profile's byte capacity. The encoder refuses (VEER_ERR_CAPACITY) a plan
+ * whose profile does not fit; the demo scenario needs about 160 points and
+ * 600 bytes. */
 #define VEER_WIRE_MAX_KNOTS 2048
 #define VEER_WIRE_MAX_PROFILE_BYTES 16384
 
