@@ -249,8 +249,9 @@ typedef struct {
  * rest, so what it sweeps is part of the plan's own sweep
  * (veer_plan_check_range); the envelope's worst margin is therefore the
  * sweep's worst margin, and what this adds are the stops themselves: the
- * longest (stops begun at every grid point of the plan, refined in 1 ms
- * steps around the longest), the instant from which stopping no longer
+ * longest (stops begun at about 200 grid points spread over the plan, then
+ * at every grid point around the longest so far, then in steps of at most
+ * 1 ms around that one), the instant from which stopping no longer
  * avoids the worst pose, and the last instant a stop ends short of the
  * first violation (by bisection in time to 0.1 ms; the stop's end moves
  * forward with its start because the plan never brakes harder than the
