@@ -312,8 +312,10 @@ veer_status veer_plan_check_braking(const veer_plan *plan, const veer_range *ran
             t0 = plan->t[best_k];
             t1 = plan->t[best_k];
         }
-        double dt = (t1 - t0) / 400.0 > 1e-3 ? (t1 - t0) / 400.0 : 1e-3;
-        for (double t = t0; t <= t1; t += dt) {
+        double tb = plan->t[best_k]; /* at most 0.5 s either side (a dwell may lie between grid points) */
+        t0 = fmax(t0, tb - 0.5);
+        t1 = fmin(t1, tb + 0.5);
+        for (double t = t0; t <= t1; t += 1e-3) {
             double e = stop_end(plan, t, &info, &b.stops);
             if (e - info.s_start > best) best = e - info.s_start, b.stop_distance_t = info.t;
         }
