@@ -118,8 +118,9 @@ static int take_command(veer_link_receiver *rx, const veer_v1_Command *c, veer_l
     rx->command_seq = c->seq;
     ev->command = (int)c->kind;
     ev->seq = c->seq;
-    /* A heartbeat while a plan comes in asks what is missing. */
-    if (c->kind == veer_v1_CommandKind_COMMAND_KIND_HEARTBEAT && (rx->active || rx->last_plan_id)) ev->gaps_due = 1;
+    /* A heartbeat while a plan comes in asks what is missing (a settled
+     * plan's verdict is said again for any of its chunks). */
+    if (c->kind == veer_v1_CommandKind_COMMAND_KIND_HEARTBEAT && rx->active) ev->gaps_due = 1;
     return VEER_LINK_NONE;
 }
 

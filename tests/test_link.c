@@ -4,6 +4,7 @@
  * SPDX-License-Identifier: MIT */
 #include <criterion/criterion.h>
 #include <math.h>
+#include <stddef.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -572,4 +573,12 @@ Test(link, random_frames_never_crash) {
     cr_assert_eq(veer_link_receiver_accepted(rx), 0u);
     free(f);
     free(mem);
+}
+
+/* The layout bindings/python/veer/link.py mirrors (LinkDef). */
+Test(link, link_def_layout) {
+    cr_assert_eq(offsetof(veer_link_def, cart), 0u);
+    cr_assert_eq(offsetof(veer_link_def, key), 4u);
+    cr_assert_eq(offsetof(veer_link_def, frame_size), 36u);
+    cr_assert_eq(sizeof(veer_link_def), 40u);
 }

@@ -742,3 +742,48 @@ Test(player, random_frames_while_running) {
     free(b.bytes);
     free(mem);
 }
+
+/* A cart's configuration from CartConfig bytes: what a nanopb encoder wrote
+ * comes back field by field; garbage gets a named status. */
+Test(player, definition_from_cart_config) {
+    veer_player_def want = cart_def();
+    veer_v1_CartConfig m;
+    memset(&m, 0, sizeof m);
+    m.cart = 4;
+    strcpy(m.cart_name, want.cart_name);
+    m.has_drive = m.has_limits = true;
+    veer__wire_drive_to_pb(&want.drive, &m.drive);
+    veer__wire_limits_to_pb(&want.limits, 4, &m.limits);
+    m.has_link_timeout = true;
+    m.link_timeout = 0.75;
+    m.has_frame_size = true;
+    m.frame_size = 128;
+    uint8_t buf[veer_v1_CartConfig_size];
+    pb_ostream_t os = pb_ostream_from_buffer(buf, sizeof buf);
+    cr_assert(pb_encode(&os, veer_v1_CartConfig_fields, &m));
+    veer_player_def got;
+    veer_diag diag;
+    cr_assert_eq(veer_player_def_from_pb(buf, os.bytes_written, &got, &diag), VEER_OK, "%s", diag.message);
+    cr_assert_eq(got.link.cart, 4u);
+    cr_assert_eq(got.link.frame_size, 128);
+    cr_assert_float_eq(got.link_timeout, 0.75, 0.0);
+    cr_assert_str_eq(got.cart_name, want.cart_name);
+    cr_assert(memcmp(&got.drive, &want.drive, sizeof got.drive) == 0);
+    cr_assert_float_eq(got.limits.modules[3].wheel_accel, 10.0, 0.0);
+    cr_assert_float_eq(got.limits.body_speed, 1.5, 0.0);
+    for (int i = 0; i < VEER_LINK_KEY_BYTES; i++) cr_assert_eq(got.link.key[i], 0, "no key in a config");
+    /* with the key set it makes a player */
+    got.link.key[0] = 1;
+    void *mem;
+    veer_player *p = new_player(&got, &mem);
+    cr_assert_not_null(p);
+    free(mem);
+    veer_player_def untouched = want;
+    cr_assert_eq(veer_player_def_from_pb((const uint8_t *)"\xff\xff\xff", 3, &untouched, &diag), VEER_ERR_DECODE);
+    cr_assert(memcmp(&untouched, &want, sizeof want) == 0);
+    m.has_drive = false;
+    os = pb_ostream_from_buffer(buf, sizeof buf);
+    cr_assert(pb_encode(&os, veer_v1_CartConfig_fields, &m));
+    cr_assert_eq(veer_player_def_from_pb(buf, os.bytes_written, &untouched, &diag), VEER_ERR_VALUE);
+    cr_assert(strstr(diag.message, "drive") != NULL);
+}

@@ -92,6 +92,15 @@ typedef struct {
  * name, 1 s timeout, counters 0. */
 VEER_API veer_player_def veer_default_player_def(void);
 
+/* A player definition from CartConfig message bytes (link.proto): cart
+ * number, name, drive, limits, link timeout, frame size; every other field
+ * as veer_default_player_def(). The key is not in the message: set
+ * out->link.key afterwards. Untrusted bytes: a named status and diag on
+ * failure (ERR_DECODE, ERR_VALUE, ...), out untouched. Does not check the
+ * drive and limits (veer_player_init does). */
+VEER_API VEER_NODISCARD veer_status veer_player_def_from_pb(const uint8_t *config, size_t size,
+                                                            veer_player_def *out, veer_diag *diag);
+
 typedef struct veer_player veer_player;
 
 /* Bytes of memory a player needs (aligned for double); fixed. */
