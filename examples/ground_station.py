@@ -6,7 +6,8 @@ examples/cart_sim), starts it and watches the cart until it stands.
     ground_station.py --to 127.0.0.1:PORT --key-file KEY [--cart 4]
                       [--scenario FILE] [--frame-size 255]
                       [--heartbeat-period S] [--lose-link-after S]
-                      [--hold-stopped S] [--summary FILE] [--timeout S]
+                      [--hold-stopped S] [--deliver-only] [--summary FILE]
+                      [--timeout S]
     ground_station.py --write-cart-config FILE [--cart 4] [--scenario FILE]
                       [--frame-size 255] [--link-timeout S]
 
@@ -62,6 +63,7 @@ def main(argv=None):
     ap.add_argument("--hold-stopped", type=float, default=0.0)
     ap.add_argument("--summary")
     ap.add_argument("--timeout", type=float, default=120.0)
+    ap.add_argument("--deliver-only", action="store_true", help="stop once the cart has armed the plan")
     ap.add_argument("--write-cart-config")
     ap.add_argument("--link-timeout", type=float, default=1.0)
     ap.add_argument("--heartbeat-period", type=float, default=0.1)
@@ -108,6 +110,14 @@ def main(argv=None):
     t_armed = time.monotonic() - t0
     log("plan %d armed after %.2f s: %d frames (%d bytes) sent, %d received" % (
         plan_id, t_armed, delivery["frames_sent"], delivery["bytes_sent"], delivery["frames_received"]))
+    summary = {"scenario": scenario.name, "plan_id": plan_id, "plan_bytes": len(data),
+               "chunks": session.link.sender(plan_id, data).count, "plan_duration": plan.duration,
+               "plan_end_pose": [float(v) for v in end.pose], "seconds_to_arm": t_armed, "delivery": delivery}
+    if a.deliver_only:
+        if a.summary:
+            with open(a.summary, "w") as f:
+                json.dump(summary, f, indent=1)
+        return 0
     r = session.start(plan_id, timeout=a.timeout)
     log("started: %s" % vl.state_name(r.state))
     lose = a.lose_link_after
@@ -133,10 +143,7 @@ def main(argv=None):
     stats = session.stats.as_dict()
     log("frames on the air from the ground: %d (%d bytes); from the cart: %d (%d bytes)" % (
         stats["frames_sent"], stats["bytes_sent"], stats["frames_received"], stats["bytes_received"]))
-    summary = {"scenario": scenario.name, "plan_id": plan_id, "plan_bytes": len(data),
-               "chunks": session.link.sender(plan_id, data).count, "plan_duration": plan.duration,
-               "plan_end_pose": [float(v) for v in end.pose], "seconds_to_arm": t_armed, "delivery": delivery,
-               "total": stats, "final": report_dict(final), "held": held}
+    summary.update({"total": stats, "final": report_dict(final), "held": held})
     if a.summary:
         with open(a.summary, "w") as f:
             json.dump(summary, f, indent=1)

@@ -11,6 +11,11 @@
 #define NONE_ID veer__limit(VEER_LIMIT_NONE, -1)
 #define LINK_FAIL(diag, status, ...) veer__fail((diag), (status), -1, -1, -1, -1.0, NONE_ID, __VA_ARGS__)
 
+/* The largest report frame (length prefix, cart, report, tag, CRC) fits
+ * the smallest frame size; gap reports shrink their bitmap to fit. */
+_Static_assert(2 + 6 + 3 + veer_v1_PlayerReport_size + VEER__LINK_TAG_FIELD_BYTES + 4 <= VEER_LINK_FRAME_MIN,
+               "a player report must fit VEER_LINK_FRAME_MIN");
+
 /* ---- reasons ------------------------------------------------------------ */
 
 const char *veer_link_reason_name(int reason) {

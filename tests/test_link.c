@@ -135,7 +135,7 @@ Test(link, hmac_sha256_rfc4231) {
  * what is missing. The bytes here are arbitrary: the receiver does not
  * decode plans, the player does (test_player.c). */
 Test(link, chunking_round_trip_many_sizes) {
-    static const int frame_sizes[] = {VEER_LINK_FRAME_MIN, 100, VEER_LINK_FRAME_DEFAULT, VEER_LINK_FRAME_MAX};
+    static const int frame_sizes[] = {VEER_LINK_FRAME_MIN, 200, VEER_LINK_FRAME_DEFAULT, VEER_LINK_FRAME_MAX};
     static uint8_t plan[VEER_LINK_MAX_PLAN_BYTES];
     for (size_t i = 0; i < sizeof plan; i++) plan[i] = (uint8_t)rng();
     size_t sizes[64];
@@ -208,7 +208,7 @@ Test(link, chunks_fill_their_frames) {
 Test(link, gap_report_lists_missing_chunks) {
     static uint8_t plan[20000];
     for (size_t i = 0; i < sizeof plan; i++) plan[i] = (uint8_t)(i * 31);
-    veer_link_def d = link_for(9, 0x42, 128);
+    veer_link_def d = link_for(9, 0x42, VEER_LINK_FRAME_MIN);
     void *mem;
     veer_link_receiver *rx = new_receiver(&d, 0, &mem);
     frame_buf *f;
@@ -490,7 +490,7 @@ Test(link, bad_definitions_and_arguments) {
     veer_diag diag;
     cr_assert_eq(veer_link_def_check(&d, &diag), VEER_ERR_VALUE, "a zero key is refused");
     cr_assert(strstr(diag.message, "key") != NULL);
-    d = link_for(1, 1, 63);
+    d = link_for(1, 1, VEER_LINK_FRAME_MIN - 1);
     cr_assert_eq(veer_link_def_check(&d, &diag), VEER_ERR_VALUE);
     d = link_for(1, 1, VEER_LINK_FRAME_MAX + 1);
     cr_assert_eq(veer_link_def_check(&d, &diag), VEER_ERR_VALUE);

@@ -757,7 +757,7 @@ Test(player, definition_from_cart_config) {
     m.has_link_timeout = true;
     m.link_timeout = 0.75;
     m.has_frame_size = true;
-    m.frame_size = 128;
+    m.frame_size = 200;
     uint8_t buf[veer_v1_CartConfig_size];
     pb_ostream_t os = pb_ostream_from_buffer(buf, sizeof buf);
     cr_assert(pb_encode(&os, veer_v1_CartConfig_fields, &m));
@@ -765,7 +765,7 @@ Test(player, definition_from_cart_config) {
     veer_diag diag;
     cr_assert_eq(veer_player_def_from_pb(buf, os.bytes_written, &got, &diag), VEER_OK, "%s", diag.message);
     cr_assert_eq(got.link.cart, 4u);
-    cr_assert_eq(got.link.frame_size, 128);
+    cr_assert_eq(got.link.frame_size, 200);
     cr_assert_float_eq(got.link_timeout, 0.75, 0.0);
     cr_assert_str_eq(got.cart_name, want.cart_name);
     cr_assert(memcmp(&got.drive, &want.drive, sizeof got.drive) == 0);

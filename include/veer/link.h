@@ -45,7 +45,7 @@ extern "C" {
 #define VEER_LINK_PLAN_TAG_BYTES 32  /* plan tag: full HMAC-SHA-256 */
 #define VEER_LINK_FRAME_TAG_BYTES 16 /* command and report tag: HMAC-SHA-256 truncated */
 #define VEER_LINK_FRAME_DEFAULT 255  /* bytes a frame holds by default, checksum included */
-#define VEER_LINK_FRAME_MIN 64       /* smallest frame size a link may be set to */
+#define VEER_LINK_FRAME_MIN 160      /* smallest frame size a link may be set to (a player report fits) */
 #define VEER_LINK_FRAME_MAX 1024     /* largest (link.options: PlanChunk.data) */
 #define VEER_LINK_MAX_PLAN_BYTES 32768 /* Plan bytes a cart receives at most (any Plan message fits) */
 #define VEER_LINK_MAX_CHUNKS 2048    /* chunks a sealed plan may have (link.options: GapReport.missing * 8) */

@@ -25,14 +25,8 @@ range's safety rules and its safety officer always come first.
 
 import collections
 import ctypes
-import hashlib
 import importlib
-import os
-import pathlib
-import shutil
 import struct
-import subprocess
-import tempfile
 import time
 import zlib
 
@@ -167,43 +161,12 @@ _link_pb2 = None
 
 def link_pb2():
     """The protoc module of proto/veer/v1/link.proto (LinkFrame, GapReport,
-    PlayerReport, CartConfig): found beside the other generated classes, or
-    generated with protoc from the source tree into a cache folder."""
+    PlayerReport, CartConfig), found or generated with the schema's other
+    classes (veer._pb)."""
     global _link_pb2
-    if _link_pb2 is not None:
-        return _link_pb2
-    _pb.modules()  # puts the generated drive/limits/... classes on veer.v1's path
-    try:
-        _link_pb2 = importlib.import_module("veer.v1.link_pb2")
-        return _link_pb2
-    except ImportError:
-        pass
-    from . import v1 as _v1
-    proto = _pb._proto_dir()
-    src = proto / "veer" / "v1" / "link.proto" if proto is not None else None
-    protoc = shutil.which("protoc")
-    if src is None or not src.is_file() or not protoc:
-        raise _pb.SchemaNotFound("veer.v1.link_pb2 not found and proto/veer/v1/link.proto or protoc missing")
-    digest = hashlib.sha256(src.read_bytes()).hexdigest()[:16]
-    base = os.environ.get("VEER_PB_CACHE") or os.path.join(
-        os.environ.get("XDG_CACHE_HOME", str(pathlib.Path.home() / ".cache")), "veer", "pb")
-    out = pathlib.Path(base) / ("link-" + digest)
-    target = out / "veer" / "v1"
-    if not (target / "link_pb2.py").is_file():
-        try:
-            out.mkdir(parents=True, exist_ok=True)
-            tmp = pathlib.Path(tempfile.mkdtemp(dir=out))
-        except OSError:
-            tmp = out = pathlib.Path(tempfile.mkdtemp())
-        r = subprocess.run([protoc, "-I", str(proto), "--python_out=%s" % tmp, "veer/v1/link.proto"],
-                           capture_output=True, text=True)
-        if r.returncode != 0:
-            raise _pb.SchemaNotFound("protoc failed on link.proto: %s" % r.stderr.strip())
-        target.mkdir(parents=True, exist_ok=True)
-        os.replace(tmp / "veer" / "v1" / "link_pb2.py", target / "link_pb2.py")
-        shutil.rmtree(tmp, ignore_errors=True)
-    _v1.__path__.append(str(target))
-    _link_pb2 = importlib.import_module("veer.v1.link_pb2")
+    if _link_pb2 is None:
+        mods = _pb.modules()
+        _link_pb2 = mods["link"] if "link" in mods else importlib.import_module("veer.v1.link_pb2")
     return _link_pb2
 
 
