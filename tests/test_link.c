@@ -181,6 +181,7 @@ Test(link, chunking_round_trip_many_sizes) {
                 }
             }
             cr_assert(ready, "size %zu frame %d: never complete", n, d.frame_size);
+            cr_assert(dups <= count, "more duplicates than chunks");
             cr_assert_eq(veer_link_receiver_accepted(rx), id);
             free(order);
             free(f);

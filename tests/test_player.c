@@ -624,11 +624,12 @@ Test(player, commands_clocks_and_definitions) {
     blob b = plan_bytes(&def.drive, &def.limits, &r, NULL);
     cr_assert(send_plan(p, &def.link, 1, b, 1.0).armed);
     veer_sample o;
-    cr_assert_eq(veer_player_step(p, NAN, &o), VEER_ERR_VALUE);
+    /* NAN and INFINITY are float constants (C11 7.12): the casts say the promotion is meant. */
+    cr_assert_eq(veer_player_step(p, (double)NAN, &o), VEER_ERR_VALUE);
     cr_assert_eq(veer_player_step(p, 0.5, &o), VEER_ERR_VALUE, "the clock went back");
     uint8_t f[8] = {0};
     veer_player_event ev;
-    cr_assert_eq(veer_player_frame(p, f, sizeof f, INFINITY, &ev), VEER_ERR_VALUE);
+    cr_assert_eq(veer_player_frame(p, f, sizeof f, (double)INFINITY, &ev), VEER_ERR_VALUE);
     cr_assert_eq(veer_player_frame(NULL, f, sizeof f, 2.0, &ev), VEER_ERR_NULL);
     cr_assert_eq(veer_player_step(p, 2.0, NULL), VEER_ERR_NULL);
     cr_assert_eq(status(p).state, VEER_PLAYER_ARMED);
