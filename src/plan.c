@@ -67,9 +67,8 @@ void veer_plan_destroy(veer_plan *plan) {
 /* Grid intervals per path piece. A piece's weight is its length plus two
  * units per radian it turns (heading or direction of travel), so rounded
  * corners, spins and pivots get the points their quickly changing limits
- * need; every piece boundary is a grid point. Returns the number of grid
- * points (each segment has intervals + 1). */
-static int grid_layout(const veer_path *path, int points, int *piece_intervals) {
+ * need; every piece boundary is a grid point. */
+static void grid_layout(const veer_path *path, int points, int *piece_intervals) {
     double weight[VEER_PATH_MAX_PIECES], total = 0.0;
     for (int j = 0; j < path->segment_count; j++) {
         const veer_path_segment *ps = &path->segments[j];
@@ -85,7 +84,6 @@ static int grid_layout(const veer_path *path, int points, int *piece_intervals) 
             total += weight[p];
         }
     }
-    int n = 0;
     double budget = points - path->segment_count;
     for (int j = 0; j < path->segment_count; j++) {
         const veer_path_segment *ps = &path->segments[j];
@@ -99,9 +97,7 @@ static int grid_layout(const veer_path *path, int points, int *piece_intervals) 
         while (seg_intervals < VEER_SEGMENT_MIN_INTERVALS)
             for (int p = ps->first_piece; p < ps->first_piece + ps->piece_count; p++, seg_intervals++)
                 piece_intervals[p]++;
-        n += seg_intervals + 1;
     }
-    return n;
 }
 
 
@@ -137,6 +133,64 @@ static void apply_speed_caps(const veer_plan *plan, int j, int n, const double *
     }
 }
 
+/* Velocity of steered module i per unit sdot (body frame) and |d steer / ds|. */
+static double steer_slope(const veer_drive_def *d, int i, const double *xi, const double *dxi, double v[2]) {
+    double x = d->modules[i].x, y = d->modules[i].y;
+    v[0] = xi[0] - xi[2] * y;
+    v[1] = xi[1] + xi[2] * x;
+    double dvx = dxi[0] - dxi[2] * y, dvy = dxi[1] + dxi[2] * x;
+    double sp2 = v[0] * v[0] + v[1] * v[1];
+    return sp2 > 1e-18 ? fabs(v[0] * dvy - v[1] * dvx) / sp2 : 0.0;
+}
+
+/* The steer-rate bound x <= w^2 / phi'^2 changes fast where the
+ * instantaneous centre of rotation sweeps past a module, while the profile's
+ * x is linear in s between grid points. Each point is held to the lowest
+ * steer-rate bound of itself and its neighbours, which keeps the chord
+ * below the bound across every interval where the bound is monotone. Where
+ * a module's direction (mod pi) turns across an interval faster than its
+ * steer slope at either end allows, the slope peaks inside: that interval
+ * is sampled finely and both ends held to the lowest bound found. The turn
+ * is compared through its sine, |a x b| / (|a| |b|), no larger than the
+ * angle itself. */
+static void steer_rate_bounds(const veer_plan *plan, const veer_row_ctx *ctx, int j, int n, const double *s,
+                              veer_workspace *ws) {
+    const veer_drive_def *d = &plan->drive;
+    for (int i = 0; i < plan->module_count; i++) {
+        double w = ctx->limits->modules[i].steer_rate;
+        if (d->modules[i].out || !isfinite(w)) continue;
+        veer_limit_id id = veer__limit(VEER_LIMIT_STEER_RATE, i);
+        double a[2], b[2], prev_bound = VEER_UNLIMITED;
+        double r0 = steer_slope(d, i, ws->xi, ws->dxi, a);
+        for (int k = 0; k + 1 < n; k++) {
+            double r1 = steer_slope(d, i, ws->xi + 3 * (k + 1), ws->dxi + 3 * (k + 1), b);
+            double b0 = r0 > 0.0 ? w * w / (r0 * r0) : VEER_UNLIMITED, b1 = r1 > 0.0 ? w * w / (r1 * r1) : VEER_UNLIMITED;
+            double lo = b1 < prev_bound ? b1 : prev_bound; /* neighbours of point k */
+            double ds = s[k + 1] - s[k];
+            double cross = fabs(a[0] * b[1] - a[1] * b[0]);
+            double scale = sqrt((a[0] * a[0] + a[1] * a[1]) * (b[0] * b[0] + b[1] * b[1]));
+            if (ds > 0.0 && cross > (1.02 * fmax(r0, r1) * ds + 1e-9) * scale) {
+                double inner = VEER_UNLIMITED;
+                for (int q = 1; q < 32; q++) {
+                    veer_point_kin pk;
+                    veer__point_kin(&plan->path, j, s[k] + ds * q / 32.0, &pk);
+                    double v[2];
+                    double r = steer_slope(d, i, pk.xi, pk.dxi, v);
+                    if (r > 0.0 && w * w / (r * r) < inner) inner = w * w / (r * r);
+                }
+                if (inner < lo) lo = inner;
+                if (inner < ws->xmax[k + 1]) ws->xmax[k + 1] = inner, ws->xmax_id[k + 1] = id;
+            }
+            if (lo < ws->xmax[k]) ws->xmax[k] = lo, ws->xmax_id[k] = id;
+            prev_bound = b0 < b1 ? b0 : b1; /* for point k + 1: its left neighbour and itself */
+            r0 = r1;
+            a[0] = b[0];
+            a[1] = b[1];
+        }
+        if (prev_bound < ws->xmax[n - 1]) ws->xmax[n - 1] = prev_bound, ws->xmax_id[n - 1] = id;
+    }
+}
+
 /* Does any module have a motor curve? Its rows are linearized, so the solve
  * is repeated at the profile it found. */
 static int has_motor_curve(const veer_plan *plan) {
@@ -162,6 +216,7 @@ veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx,
             veer_point_kin pk;
             veer__point_kin(&plan->path, j, s[k], &pk);
             memcpy(ws->xi + 3 * k, pk.xi, sizeof pk.xi);
+            memcpy(ws->dxi + 3 * k, pk.dxi, sizeof pk.dxi);
             int c = veer__point_rows(ctx, &pk, pass ? x[k] : 0.0, ws->rows + (size_t)k * (size_t)m, &ws->xmax[k],
                                      &ws->xmax_id[k]);
             if (c < 0 && ws->xmax_id[k].kind == VEER_LIMIT_MODULE_OUT)
@@ -177,6 +232,7 @@ veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx,
             ws->row_count[k] = c;
         }
         if (plan->cap.cap) apply_speed_caps(plan, j, n, s, ws);
+        if (plan->steered) steer_rate_bounds(plan, ctx, j, n, s, ws);
         int bad = 0;
         veer_status st = veer__topp_solve(&p, x_start, x, ws->K, &bad);
         if (st != VEER_OK && bad == 0 && x_start > 0.0)
@@ -304,37 +360,121 @@ static veer_status start_state(veer_plan *plan, double *x_start, veer_diag *diag
     return VEER_OK;
 }
 
+/* Do two path positions need grid points between them? For each working
+ * steered module: its velocity (body frame, per unit sdot) turns more than
+ * 15 degrees between them (near 180 where the instantaneous centre of
+ * rotation passes close to the module), or its steer-rate bound
+ * w^2 / phi'^2 changes by more than 10 % while it could bind (within 1.5
+ * times the body-speed and wheel-speed bounds there). */
+static int needs_points(const veer_plan *plan, const veer_point_kin *pa, const veer_point_kin *pb) {
+    static const double c2 = 0.9330127018922193; /* cos^2(15 degrees) */
+    const veer_drive_def *d = &plan->drive;
+    for (int i = 0; i < plan->module_count; i++) {
+        if (d->modules[i].out) continue;
+        double va[2], vb[2];
+        double ra = steer_slope(d, i, pa->xi, pa->dxi, va), rb = steer_slope(d, i, pb->xi, pb->dxi, vb);
+        double a2 = va[0] * va[0] + va[1] * va[1], b2 = vb[0] * vb[0] + vb[1] * vb[1], dot = va[0] * vb[0] + va[1] * vb[1];
+        if (a2 < 1e-18 || b2 < 1e-18) continue;
+        if (dot < 0.0 || dot * dot < c2 * a2 * b2) return 1;
+        const veer_module_limits *ml = &plan->limits.modules[i];
+        double hi = fmax(ra, rb), lo = fmin(ra, rb);
+        if (!isfinite(ml->steer_rate) || !(hi > 0.0) || hi * hi <= 1.1 * lo * lo) continue;
+        const veer_point_kin *pk = ra > rb ? pa : pb;
+        double sp = hypot(pk->dq[0], pk->dq[1]), v = sqrt(ra > rb ? a2 : b2);
+        double other = VEER_UNLIMITED;
+        if (isfinite(plan->limits.body_speed) && sp > 0.0) other = plan->limits.body_speed / sp;
+        if (isfinite(ml->wheel_rate) && v > 0.0) other = fmin(other, ml->wheel_rate * d->wheel_radius / v);
+        if (ml->steer_rate / hi < 1.5 * other) return 1;
+    }
+    return 0;
+}
+
+/* Grid points to add between sa and sb (pa, pb: the path there): bisection
+ * while needs_points says so, writing the new points in order. *budget
+ * bounds the total. */
+static int refine(const veer_plan *plan, int seg, double sa, const veer_point_kin *pa, double sb,
+                  const veer_point_kin *pb, int depth, int *budget, double **out) {
+    if (depth >= 24 || *budget <= 0 || !needs_points(plan, pa, pb)) return 0;
+    double sm = 0.5 * (sa + sb);
+    veer_point_kin pm;
+    veer__point_kin(&plan->path, seg, sm, &pm);
+    (*budget)--;
+    int n = refine(plan, seg, sa, pa, sm, &pm, depth + 1, budget, out);
+    *(*out)++ = sm;
+    return n + 1 + refine(plan, seg, sm, &pm, sb, pb, depth + 1, budget, out);
+}
+
+/* The grid: the pieces' points (grid_layout), plus, for steered drives,
+ * points where a module's direction or its steer-rate bound changes fast
+ * (an ICR passing close to it), so steer angles, their rates and the
+ * steer-rate bound are resolved there. out has room for the pieces' points
+ * plus grid_points more; returns the number of points written. */
+static int grid_points(const veer_plan *plan, const int *intervals, double *out, int *seg_first) {
+    const veer_path *path = &plan->path;
+    int n = 0, budget = plan->options.grid_points;
+    for (int j = 0; j < path->segment_count; j++) {
+        const veer_path_segment *ps = &path->segments[j];
+        if (seg_first) seg_first[j] = n;
+        double prev = ps->s_begin;
+        veer_point_kin pprev, pk;
+        if (plan->steered) veer__point_kin(path, j, prev, &pprev);
+        *out++ = prev;
+        n++;
+        for (int p = ps->first_piece; p < ps->first_piece + ps->piece_count; p++) {
+            const veer_path_piece *pc = &path->pieces[p];
+            for (int i = 1; i <= intervals[p]; i++) {
+                double sn = (p + 1 == ps->first_piece + ps->piece_count && i == intervals[p])
+                                ? ps->s_end
+                                : pc->s0 + pc->len * i / intervals[p];
+                if (plan->steered) {
+                    veer__point_kin(path, j, sn, &pk);
+                    n += refine(plan, j, prev, &pprev, sn, &pk, 0, &budget, &out);
+                    pprev = pk;
+                }
+                *out++ = sn;
+                n++;
+                prev = sn;
+            }
+        }
+    }
+    return n;
+}
+
 static veer_status build(veer_plan *plan, veer_diag *diag) {
     const veer_path *path = &plan->path;
-    int intervals[VEER_PATH_MAX_PIECES];
-    int n = grid_layout(path, plan->options.grid_points, intervals);
+    int intervals[VEER_PATH_MAX_PIECES], first[VEER_PATH_MAX_SEGMENTS + 1];
+    grid_layout(path, plan->options.grid_points, intervals);
+    int base = path->segment_count;
+    for (int p = 0; p < path->piece_count; p++) base += intervals[p];
+    size_t grid_room = (size_t)(base + plan->options.grid_points) * sizeof(double);
+    double *grid = veer__alloc(grid_room);
+    if (!grid) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
+    int n = grid_points(plan, intervals, grid, first);
     int M = plan->module_count;
     size_t grid_bytes = (size_t)n * (3 * sizeof(double) + sizeof(veer_limit_id)) + (size_t)n * (size_t)M * sizeof(double);
     char *g = veer__alloc(grid_bytes);
-    if (!g) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
+    if (!g) {
+        veer__free(grid, grid_room);
+        return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
+    }
     plan->n = n;
     plan->s = (double *)g;
     plan->x = plan->s + n;
     plan->t = plan->x + n;
     plan->steer = plan->t + n;
     plan->binding = (veer_limit_id *)(plan->steer + (size_t)n * (size_t)M);
+    memcpy(plan->s, grid, (size_t)n * sizeof(double));
+    veer__free(grid, grid_room);
+    first[path->segment_count] = n;
 
-    int k = 0, longest = 0;
+    int longest = 0;
     plan->segment_count = path->segment_count;
     for (int j = 0; j < path->segment_count; j++) {
         veer_plan_segment *sg = &plan->segs[j];
-        const veer_path_segment *ps = &path->segments[j];
-        sg->k0 = k;
-        plan->s[k] = ps->s_begin;
-        for (int p = ps->first_piece; p < ps->first_piece + ps->piece_count; p++) {
-            const veer_path_piece *pc = &path->pieces[p];
-            for (int i = 1; i <= intervals[p]; i++) plan->s[++k] = pc->s0 + pc->len * i / intervals[p];
-        }
-        sg->k1 = k;
-        plan->s[sg->k1] = ps->s_end;
+        sg->k0 = first[j];
+        sg->k1 = first[j + 1] - 1;
         if (sg->k1 - sg->k0 + 1 > longest) longest = sg->k1 - sg->k0 + 1;
-        k = sg->k1 + 1;
-        sg->dwell = ps->dwell;
+        sg->dwell = path->segments[j].dwell;
     }
 
     veer_status st = start_state(plan, &plan->x_start, diag);
@@ -342,14 +482,15 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
 
     veer_workspace ws;
     int m = plan->rows.m;
-    ws.bytes = (size_t)longest * ((size_t)m * sizeof(veer_row) + 5 * sizeof(double) + sizeof(veer_limit_id) + sizeof(int));
+    ws.bytes = (size_t)longest * ((size_t)m * sizeof(veer_row) + 8 * sizeof(double) + sizeof(veer_limit_id) + sizeof(int));
     char *w = veer__alloc(ws.bytes);
     if (!w) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
     ws.rows = (veer_row *)w;
     ws.xmax = (double *)(ws.rows + (size_t)longest * (size_t)m);
     ws.K = ws.xmax + longest;
     ws.xi = ws.K + longest;
-    ws.xmax_id = (veer_limit_id *)(ws.xi + 3 * (size_t)longest);
+    ws.dxi = ws.xi + 3 * (size_t)longest;
+    ws.xmax_id = (veer_limit_id *)(ws.dxi + 3 * (size_t)longest);
     ws.row_count = (int *)(ws.xmax_id + longest);
 
     double from[VEER_MAX_MODULES];

@@ -159,7 +159,7 @@ struct veer_plan {
 typedef struct {
     veer_row *rows;
     int *row_count;
-    double *xmax, *K, *xi;
+    double *xmax, *K, *xi, *dxi; /* xi, dxi: body twist per unit sdot and its s-derivative, 3 per point */
     veer_limit_id *xmax_id;
     size_t bytes;
 } veer_workspace;

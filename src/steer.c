@@ -77,7 +77,13 @@ veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, cons
     for (int i = 0; i < M; i++) {
         sg->steer_from[i] = from[i];
         sg->steer_to[i] = from[i];
-        if (!plan->steered || plan->drive.modules[i].out) { /* fixed wheels, or out of service: the angle stays */
+        if (!plan->steered) { /* fixed wheels report the direction they push (drive.h) */
+            double fixed = plan->drive.kind == VEER_DRIVE_OMNI ? plan->drive.modules[i].drive_angle : 0.0;
+            sg->steer_from[i] = sg->steer_to[i] = fixed;
+            for (int k = sg->k0; k <= sg->k1; k++) plan->steer[(size_t)k * (size_t)M + (size_t)i] = fixed;
+            continue;
+        }
+        if (plan->drive.modules[i].out) { /* out of service: the angle stays */
             for (int k = sg->k0; k <= sg->k1; k++) plan->steer[(size_t)k * (size_t)M + (size_t)i] = from[i];
             continue;
         }

@@ -121,6 +121,7 @@ class Rows:
     def __init__(self):
         self.xmax = math.inf
         self.xmax_name = "none"
+        self.steer_bounds = {}  # module -> its steer-rate bound on b
         self.alpha, self.beta, self.gamma, self.names = [], [], [], []
 
     def speed(self, f, limit, name):
@@ -199,6 +200,9 @@ def point_rows(drive, limits, q, dq, ddq, polygon_sides=32, still=1e-9, traction
                 # phi' = (p' x p'') / |p'|^2 - yaw'
                 dphi = (p1[0] * p2[1] - p1[1] * p2[0]) / (v * v) - dq[2]
                 R.speed(dphi, ml.get("steer_rate", math.inf), "steer_rate[%d]" % i)
+                w = ml.get("steer_rate", math.inf)
+                if math.isfinite(w) and dphi != 0.0:
+                    R.steer_bounds[i] = w * w / (dphi * dphi)
                 e = p1 / v
             else:
                 d = float(np.hypot(*p2))
@@ -240,6 +244,29 @@ def profile_time(s, b):
     if np.any(den[keep] <= 0.0):
         return math.inf
     return float(np.sum(2.0 * ds[keep] / den[keep]))
+
+
+def hold_steer_to_neighbours(s, rows_right, rows_left):
+    """The rule veer states for steer-rate bounds (plan.c, steer_rate_bounds):
+    b at a point is held to the lowest steer-rate bound of the point and its
+    neighbours within the same rest-to-rest piece, so that b, linear in s
+    between grid points, stays below a bound that is monotone across each
+    interval. Applied to the bounds of both sides of each point."""
+    n = len(s)
+    ds = np.diff(np.asarray(s, dtype=float))
+    held = []
+    for k in range(n):
+        lo = math.inf
+        for nb_, ok in ((k - 1, k > 0 and ds[k - 1] > 0.0), (k + 1, k + 1 < n and ds[k] > 0.0)):
+            if ok:
+                side = rows_left[nb_] if nb_ < k else rows_right[nb_]
+                for b in side.steer_bounds.values():
+                    lo = min(lo, b)
+        held.append(lo)
+    for k in range(n):
+        for r in (rows_right[k], rows_left[k]):
+            if held[k] < r.xmax:
+                r.xmax, r.xmax_name = held[k], "steer_rate (neighbour)"
 
 
 def solve_lp(s, rows_right, rows_left, rest):

@@ -64,6 +64,7 @@ def lp_case(veer, request):
             rows_left.append(ref.point_rows(drive, limits, ql, dql, ddql, polygon_sides=sides))
         else:
             rows_left.append(r)
+    ref.hold_steer_to_neighbours(s, rows_right, rows_left)
     b_lp, _ = ref.solve_lp(s, rows_right, rows_left, rest)
     return p, s, sdot, b_lp, rows_right, rows_left
 
