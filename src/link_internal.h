@@ -82,9 +82,4 @@ struct veer_link_receiver {
 void veer__link_receiver_setup(veer_link_receiver *rx, const veer_link_def *def, uint64_t accepted,
                                uint64_t command_seq);
 
-/* Canonical fingerprint of a drive and limits: SHA-256 of their canonical
- * DriveDef and Limits encodings (wire_internal.h's *_to_pb), each preceded
- * by its length. */
-veer_status veer__link_config_hash(const veer_drive_def *drive, const veer_limits *limits, uint8_t hash[32]);
-
 #endif

@@ -116,18 +116,6 @@ static veer_status config_hashes(const veer_drive_def *drive, const veer_limits 
     return hash_message(veer_v1_Limits_fields, &m.l, lh);
 }
 
-veer_status veer__link_config_hash(const veer_drive_def *drive, const veer_limits *limits, uint8_t hash[32]) {
-    uint8_t dh[32], lh[32];
-    veer_status st = config_hashes(drive, limits, dh, lh);
-    if (st != VEER_OK) return st;
-    crypto_hash_sha256_state s;
-    crypto_hash_sha256_init(&s);
-    crypto_hash_sha256_update(&s, dh, 32);
-    crypto_hash_sha256_update(&s, lh, 32);
-    crypto_hash_sha256_final(&s, hash);
-    return VEER_OK;
-}
-
 /* ---- set-up ------------------------------------------------------------- */
 
 veer_player_def veer_default_player_def(void) {

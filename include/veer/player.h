@@ -8,8 +8,10 @@
  * exactly this cart's drive and limits. "Exactly" means: the canonical
  * DriveDef and Limits messages of the plan and of the cart's configuration
  * (fields that apply to the drive kind, unset limits left out, identical
- * module limits once) have the same SHA-256. Arming switches atomically; a
- * plan is armed only while the cart stands (idle, armed or stopped).
+ * module limits once; steering limits do not count for fixed-wheel drives)
+ * have the same SHA-256. Arming switches atomically; a plan is armed only
+ * while the cart stands (idle, armed or stopped): one refused as BUSY, like
+ * any refused plan, has to be sent again under a new plan counter.
  *
  * An armed plan starts on an authenticated START command and then runs once.
  * A controlled stop (brake along the planned path as hard as the plan's
