@@ -440,6 +440,36 @@ static int grid_points(const veer_plan *plan, const int *intervals, double *out,
     return n;
 }
 
+void veer__plan_timeline(veer_plan *plan) {
+    const veer_path *path = &plan->path;
+    double clock = 0.0;
+    for (int j = 0; j < plan->segment_count; j++) {
+        veer_plan_segment *sg = &plan->segs[j];
+        sg->t_resteer = clock;
+        sg->t_move = clock + sg->resteer_time;
+        for (int q = sg->k0; q <= sg->k1; q++) plan->t[q] += sg->t_move;
+        clock = sg->t_move + sg->move_time + sg->dwell;
+    }
+    plan->duration = clock;
+    plan->leg_count = plan->route.leg_count;
+    for (int l = 0; l < plan->leg_count; l++) {
+        memset(&plan->legs[l], 0, sizeof plan->legs[l]);
+        plan->legs[l].start = -1.0;
+    }
+    for (int j = 0; j < plan->segment_count; j++) {
+        const veer_plan_segment *sg = &plan->segs[j];
+        veer_leg_summary *ls = &plan->legs[path->segments[j].leg];
+        if (ls->start < 0.0) {
+            ls->start = sg->t_resteer;
+            ls->s_begin = path->segments[j].s_begin;
+        }
+        ls->s_end = path->segments[j].s_end;
+        ls->duration = sg->t_move + sg->move_time + sg->dwell - ls->start;
+        ls->resteer_time += sg->resteer_time;
+        ls->dwell_time += sg->dwell;
+    }
+}
+
 static veer_status build(veer_plan *plan, veer_diag *diag) {
     const veer_path *path = &plan->path;
     int intervals[VEER_PATH_MAX_PIECES], first[VEER_PATH_MAX_SEGMENTS + 1];
@@ -506,36 +536,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     veer__free(w, ws.bytes);
     if (st != VEER_OK) return st;
 
-    /* The timeline: re-steer, motion, dwell, segment after segment. */
-    double clock = 0.0;
-    for (int j = 0; j < path->segment_count; j++) {
-        veer_plan_segment *sg = &plan->segs[j];
-        sg->t_resteer = clock;
-        sg->t_move = clock + sg->resteer_time;
-        for (int q = sg->k0; q <= sg->k1; q++) plan->t[q] += sg->t_move;
-        clock = sg->t_move + sg->move_time + sg->dwell;
-    }
-    plan->duration = clock;
-
-    /* Leg summaries from the segments. */
-    plan->leg_count = plan->route.leg_count;
-    for (int l = 0; l < plan->leg_count; l++) {
-        veer_leg_summary *ls = &plan->legs[l];
-        memset(ls, 0, sizeof *ls);
-        ls->start = -1.0;
-    }
-    for (int j = 0; j < plan->segment_count; j++) {
-        const veer_plan_segment *sg = &plan->segs[j];
-        veer_leg_summary *ls = &plan->legs[path->segments[j].leg];
-        if (ls->start < 0.0) {
-            ls->start = sg->t_resteer;
-            ls->s_begin = path->segments[j].s_begin;
-        }
-        ls->s_end = path->segments[j].s_end;
-        ls->duration = sg->t_move + sg->move_time + sg->dwell - ls->start;
-        ls->resteer_time += sg->resteer_time;
-        ls->dwell_time += sg->dwell;
-    }
+    veer__plan_timeline(plan);
     return VEER_OK;
 }
 

@@ -172,6 +172,11 @@ veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx,
 veer_status veer__shape_segment(veer_plan *plan, int j, const veer_limits *lim, double x_start, veer_workspace *ws,
                                 veer_diag *diag);
 
+/* Absolute times from the segments' re-steer, motion and dwell times (grid
+ * times plan->t relative to each segment's motion start on entry), the
+ * duration and the leg summaries. */
+void veer__plan_timeline(veer_plan *plan);
+
 /* ---- timing.c: timed stops and duration target ------------------------- */
 
 veer_status veer__meet_arrivals(veer_plan *plan, veer_workspace *ws, veer_diag *diag);

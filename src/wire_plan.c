@@ -244,7 +244,6 @@ static veer_status timeline(veer_plan *plan, double *xi, veer_diag *diag) {
     int M = plan->module_count;
     double from[VEER_MAX_MODULES];
     for (int i = 0; i < M; i++) from[i] = plan->route.has_start_steer ? plan->route.start_steer[i] : 0.0;
-    double clock = 0.0;
     for (int j = 0; j < plan->segment_count; j++) {
         veer_plan_segment *sg = &plan->segs[j];
         sg->dwell = path->segments[j].dwell;
@@ -265,30 +264,9 @@ static veer_status timeline(veer_plan *plan, double *xi, veer_diag *diag) {
         veer_status st = veer__steer_segment(plan, j, from, xi, diag);
         if (st != VEER_OK) return st;
         if (j == 0 && plan->x_start > 0.0) sg->resteer_time = 0.0; /* already pointing along the motion */
-        sg->t_resteer = clock;
-        sg->t_move = clock + sg->resteer_time;
-        for (int k = sg->k0; k <= sg->k1; k++) plan->t[k] += sg->t_move;
-        clock = sg->t_move + sg->move_time + sg->dwell;
         for (int i = 0; i < M; i++) from[i] = plan->steer[(size_t)sg->k1 * (size_t)M + (size_t)i];
     }
-    plan->duration = clock;
-    plan->leg_count = plan->route.leg_count;
-    for (int l = 0; l < plan->leg_count; l++) {
-        memset(&plan->legs[l], 0, sizeof plan->legs[l]);
-        plan->legs[l].start = -1.0;
-    }
-    for (int j = 0; j < plan->segment_count; j++) {
-        const veer_plan_segment *sg = &plan->segs[j];
-        veer_leg_summary *ls = &plan->legs[path->segments[j].leg];
-        if (ls->start < 0.0) {
-            ls->start = sg->t_resteer;
-            ls->s_begin = path->segments[j].s_begin;
-        }
-        ls->s_end = path->segments[j].s_end;
-        ls->duration = sg->t_move + sg->move_time + sg->dwell - ls->start;
-        ls->resteer_time += sg->resteer_time;
-        ls->dwell_time += sg->dwell;
-    }
+    veer__plan_timeline(plan);
     return VEER_OK;
 }
 
