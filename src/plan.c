@@ -57,7 +57,7 @@ static veer_status check_options(const veer_plan_options *o, veer_diag *diag) {
 }
 
 void veer_plan_destroy(veer_plan *plan) {
-    if (!plan) return;
+    if (!plan || plan->alloc_size == 0) return; /* NULL, or a plan in a caller's workspace (veer_plan_load_pb) */
     size_t grid_bytes = (size_t)plan->n * (3 * sizeof(double) + sizeof(veer_limit_id)) +
                         (size_t)plan->n * (size_t)plan->module_count * sizeof(double);
     veer__free(plan->s, grid_bytes);
@@ -618,7 +618,8 @@ veer_status veer_plan_grid(const veer_plan *plan, int k, double *s, double *sdot
 
 veer_status veer_plan_path_at(const veer_plan *plan, double s, double q[3], double dq[3], double ddq[3]) {
     if (!plan || !q || !dq || !ddq) return VEER_ERR_NULL;
-    if (!isfinite(s)) return VEER_ERR_VALUE;
+    double tol = 1e-9 * (1.0 + plan->path.length);
+    if (!isfinite(s) || s < -tol || s > plan->path.length + tol) return VEER_ERR_VALUE;
     int seg = veer__path_segment_at(&plan->path, s);
     veer__path_eval(&plan->path, seg, s, q, dq, ddq);
     return VEER_OK;

@@ -83,6 +83,8 @@ typedef struct veer_plan veer_plan;
 VEER_API VEER_NODISCARD veer_status veer_plan_create(const veer_drive_def *drive, const veer_limits *limits,
                                                      const veer_route *route, const veer_plan_options *options,
                                                      veer_plan **out, veer_diag *diag);
+/* Frees a plan from veer_plan_create or veer_plan_decode_pb; NULL and plans
+ * living in a caller's workspace (veer_plan_load_pb) are left alone. */
 VEER_API void veer_plan_destroy(veer_plan *plan);
 
 /* Whole-plan figures. */
@@ -142,7 +144,7 @@ VEER_API VEER_NODISCARD veer_status veer_plan_table(const veer_plan *plan, doubl
 
 /* Path geometry at path position s in [0, length]: q = (x, y, yaw) and its
  * first and second derivatives with respect to s. At a rest between two
- * pieces the piece that starts there is used. */
+ * pieces the piece that starts there is used. s outside: VEER_ERR_VALUE. */
 VEER_API VEER_NODISCARD veer_status veer_plan_path_at(const veer_plan *plan, double s, double q[3], double dq[3],
                                                       double ddq[3]);
 
