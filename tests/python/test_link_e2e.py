@@ -369,5 +369,10 @@ def test_frames_against_zlib_hmac_and_protoc(veer):
     with pytest.raises(vl.LinkError) as e:
         link.check(bytes(bad))
     assert e.value.name == "CRC"
+    # The module's reason and state numbers are libveer's.
+    for name in ("TRUNCATED", "CRC", "MALFORMED", "WRONG_DIRECTION", "STALE", "REPLAY", "PLAN_TAG"):
+        assert vl.reason_name(getattr(vl, name)) == name
+    for name in ("IDLE", "ARMED", "RUNNING", "STOPPING", "STOPPED", "FAULT"):
+        assert vl.state_name(getattr(vl, name)) == name
     # The key never shows in a Link's text.
     assert key.hex() not in repr(link) and key.hex() not in str(vars(link))

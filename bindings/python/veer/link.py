@@ -38,6 +38,8 @@ HEARTBEAT, START, STOP = 1, 2, 3  # veer_link_command
 
 # veer_player_state
 IDLE, ARMED, RUNNING, STOPPING, STOPPED, FAULT = 1, 2, 3, 4, 5, 6
+# veer_link_reason values this module acts on (the full table: reason_name())
+TRUNCATED, CRC, MALFORMED, WRONG_DIRECTION, STALE, REPLAY, PLAN_TAG = 2, 3, 4, 6, 9, 10, 12
 
 
 class LinkDef(ctypes.Structure):
@@ -177,7 +179,7 @@ def frame_body(frame):
     n, shift, i = 0, 0, 0
     while True:
         if i >= len(frame) or shift > 7:
-            raise LinkError(2)  # TRUNCATED
+            raise LinkError(TRUNCATED)
         b = frame[i]
         i += 1
         n |= (b & 0x7F) << shift
@@ -185,12 +187,12 @@ def frame_body(frame):
         if not b & 0x80:
             break
     if len(frame) < i + n + 4:
-        raise LinkError(2)
+        raise LinkError(TRUNCATED)
     if len(frame) > i + n + 4:
-        raise LinkError(4)  # MALFORMED
+        raise LinkError(MALFORMED)
     (crc,) = struct.unpack("<I", frame[i + n:])
     if zlib.crc32(frame[:i + n]) != crc:
-        raise LinkError(3)  # CRC
+        raise LinkError(CRC)
     return frame[i:i + n]
 
 
@@ -266,7 +268,7 @@ class Link:
             return Received("gaps", msg.gaps, bytes(frame))
         if which == "report":
             return Received("report", msg.report, bytes(frame))
-        raise LinkError(6)  # WRONG_DIRECTION
+        raise LinkError(WRONG_DIRECTION)
 
 
 class Sender:
@@ -427,7 +429,7 @@ class Session:
                 if m.complete:
                     if m.verdict == 0:
                         return plan_id
-                    if m.verdict == 12:  # PLAN_TAG: a chunk was spoilt on the way; all again
+                    if m.verdict == PLAN_TAG:  # a chunk was spoilt on the way: all again
                         last_sent = [0.0] * sender.count
                         send(range(sender.count))
                         continue
@@ -436,12 +438,12 @@ class Session:
                 if not m.missing:  # missing chunks beyond what the report could hold
                     send(range(m.base, sender.count))
             elif got.kind == "gaps" and m.plan_id > plan_id and not m.complete:
-                raise LinkError(9, "the cart is receiving a newer plan (%d)" % m.plan_id)
+                raise LinkError(STALE, "the cart is receiving a newer plan (%d)" % m.plan_id)
             elif got.kind == "report":
                 if m.accepted_plan_id >= plan_id and m.plan_id == plan_id:
                     return plan_id
                 if m.accepted_plan_id > plan_id:
-                    raise LinkError(10, "the cart accepted a newer plan (%d)" % m.accepted_plan_id)
+                    raise LinkError(REPLAY, "the cart accepted a newer plan (%d)" % m.accepted_plan_id)
         raise TimeoutError("plan %d did not arrive within %.0f s" % (plan_id, timeout))
 
     def start(self, plan_id, timeout=10.0):
