@@ -281,7 +281,8 @@ stage_consumer_pkgconfig() {
     export PKG_CONFIG_PATH=$pcdir
     local prefix_seen
     prefix_seen=$(pkg-config --variable=prefix veer)
-    if [[ $prefix_seen != "$PREFIX" ]]; then
+    # veer.pc names its prefix relative to itself (relocatable): compare the real paths
+    if [[ $(realpath -m "$prefix_seen") != $(realpath -m "$PREFIX") ]]; then
         log "veer.pc says prefix=$prefix_seen, installed in $PREFIX"
         return 1
     fi
