@@ -124,6 +124,24 @@ def write_csv(p, rate_hz, f):
     return len(tab)
 
 
+# ---- range safety checks (issue 6) ----
+def _range_check(input_path, range_path):
+    """(plan, RangeCheck): a scenario planned with the range's speed zones, or
+    Plan bytes as they are, checked against the range file."""
+    from . import range as vrange
+
+    rng, fp = vrange.load(range_path)
+    if fp is None:
+        raise PlanError("ERR_VALUE", "%s has no footprint; a range file holds {\"range\": ..., \"footprint\": ...}"
+                        % range_path)
+    if str(input_path).lower().endswith(".json"):
+        p = vrange.plan_in_range(input_path, rng, fp)
+    else:
+        p = load_input(input_path)
+    return p, vrange.check(p, rng, fp)
+# ---- end range safety checks ----
+
+
 def _parser():
     ap = argparse.ArgumentParser(
         prog="python3 -m veer",
@@ -149,6 +167,20 @@ def _parser():
     dp.add_argument("-o", "--output", required=True, help="figure file, .png or .svg")
     dp.add_argument("--title", help="figure title (default: the cart id)")
     dp.add_argument("--footprints", type=int, default=14, help="footprints drawn along the plan (default 14)")
+    # ---- range safety checks (issue 6) ----
+    dp.add_argument("--range", metavar="RANGE_FILE", dest="range_file",
+                    help="also draw the range's areas and speed zones, the footprint sweep and the worst margin "
+                         "(a range file: see `check`); a scenario is then planned with the speed zones")
+    cp = sub.add_parser("check", help="check a plan against a range (areas, speed zones, braking)", description=
+                        "Sweep the cart's footprint along the plan against the range's keep-in and keep-out "
+                        "areas, and check the braking envelope (the controlled stop from every instant). A "
+                        "scenario is planned with the range's speed zones. " + CAUTION, epilog=CAUTION)
+    cp.add_argument("input", help=INPUT_HELP)
+    cp.add_argument("range_file", metavar="RANGE_FILE",
+                    help="the range and footprint: {\"range\": Range, \"footprint\": Footprint} in the proto3 "
+                         "JSON mapping of proto/veer/v1/range.proto")
+    cp.add_argument("--json", action="store_true", help="print the reports as JSON")
+    # ---- end range safety checks ----
 
     tp = sub.add_parser("table", help="export the setpoint table as CSV", description=
                         "Export the setpoint table at a fixed rate as CSV (SI units, radians). " + CAUTION,
@@ -187,9 +219,27 @@ def main(argv=None):
             if ext not in (".png", ".svg"):
                 print("veer: the figure file must end in .png or .svg: %s" % args.output, file=sys.stderr)
                 return 2
-            p = load_input(args.input)
-            draw.save(p, args.output, title=args.title, footprints=args.footprints)
+            # ---- range safety checks (issue 6) ----
+            rc = None
+            if args.range_file:
+                p, rc = _range_check(args.input, args.range_file)
+                print("\n".join(rc.lines()))
+            else:
+                p = load_input(args.input)
+            draw.save(p, args.output, title=args.title, footprints=args.footprints, range_check=rc)
+            # ---- end range safety checks ----
             print("wrote %s" % args.output)
+        # ---- range safety checks (issue 6) ----
+        elif args.command == "check":
+            p, rc = _range_check(args.input, args.range_file)
+            if args.json:
+                json.dump(rc.to_json(), sys.stdout, indent=2)
+                sys.stdout.write("\n")
+            else:
+                print("\n".join(rc.lines()))
+                print(CAUTION)
+            return 0 if rc.clear else 3
+        # ---- end range safety checks ----
         elif args.command == "table":
             p = load_input(args.input)
             if args.output:

@@ -118,8 +118,10 @@ def _leg_marks(ax, legs, key, top_label=True):
                     va="top", ha="left")
 
 
-def figure(plan, title=None, footprints=14, rate_hz=None):
-    """The figure of a plan (a matplotlib Figure; save it with savefig)."""
+def figure(plan, title=None, footprints=14, rate_hz=None, range_check=None):
+    """The figure of a plan (a matplotlib Figure; save it with savefig).
+    range_check (a veer.range.RangeCheck) adds the range's areas, speed
+    zones, the footprint sweep and the worst margin to the top view."""
     drive, limits = plan.drive(), plan.limits()
     req = plan.request
     kind = drive["kind"]
@@ -209,6 +211,10 @@ def figure(plan, title=None, footprints=14, rate_hz=None):
             ax.plot(leg.pivot_x, leg.pivot_y, marker="P", ms=9, color="#6a3d9a", zorder=5)
             ax.annotate("pivot (leg %d)" % li, (leg.pivot_x, leg.pivot_y), xytext=(6, -12), textcoords="offset points",
                         fontsize=8, color="#6a3d9a")
+    # ---- range safety checks (issue 6): drawn by veer.range ----
+    if range_check is not None:
+        range_check.draw_top(ax)
+    # ---- end range safety checks ----
     ax.set_aspect("equal", adjustable="datalim")
     ax.autoscale_view()
     ax.grid(True, lw=0.4, alpha=0.5)
