@@ -143,6 +143,24 @@ def test_separation_against_brute_force(vr, veer):
         vr.separation([(a, 0.0, fa)], 1.0)
 
 
+def test_bytes_api_gives_the_same_figures(vr, veer):
+    """Through range.proto from Python (protoc classes, veer_range_check_pb):
+    the reply carries the figures of the demo check, which match Shapely's
+    distance to the nearest area at the worst pose (to 1e-9 m)."""
+    rng, fp = vr.load(str(RANGE))
+    p = vr.plan_in_range(str(DEMO), rng, fp)
+    rep = vr.check_bytes(p.to_bytes(), rng, fp)
+    w = rep.report.worst
+    assert rep.report.clear and w.area_name == "keep_out[1]"
+    F = _world(fp, (w.x, w.y, w.yaw))
+    assert abs(w.margin - (Polygon(rng.keep_out[1]).distance(F) - fp.margin)) < 1e-9
+    assert rep.HasField("braking") and rep.braking.stop_distance > 1.0
+    bad = vr.Range(keep_in=None, keep_out=rng.keep_out)
+    with pytest.raises(veer.PlanError) as e:
+        vr.check_bytes(p.to_bytes(), bad, fp)
+    assert "keep-in" in str(e.value)
+
+
 def _cli(*args):
     env = dict(os.environ)
     env.setdefault("MPLBACKEND", "Agg")

@@ -21,6 +21,7 @@ first.
 SPDX-License-Identifier: MIT"""
 
 import ctypes
+import importlib
 import json
 import math
 import numbers
@@ -104,6 +105,7 @@ _PROTOTYPES = {
     "veer_plan_check_braking": [ctypes.c_void_p, _P(CRange), _P(CFootprint), _P(CBrakingReport), _P(_lib.Diag)],
     "veer_carts_check_separation": [_P(CCart), ctypes.c_int, _D, _P(CSeparationReport), _P(_lib.Diag)],
     "veer_plan_encode_pb": [ctypes.c_void_p, ctypes.c_void_p, ctypes.c_size_t, _P(ctypes.c_size_t), _P(_lib.Diag)],
+    "veer_range_check_pb": [ctypes.c_char_p, ctypes.c_size_t, ctypes.c_void_p, ctypes.c_size_t, _P(ctypes.c_size_t)],
 }
 _declared = {}
 
@@ -522,3 +524,43 @@ def separation(carts, required):
     out = {k: getattr(rep, k) for k, _ in CSeparationReport._fields_}
     out["conflict"] = bool(rep.conflict)
     return out
+
+
+# ---- through the message interface (proto/veer/v1/range.proto) -----------------------
+
+def messages():
+    """The protoc classes of range.proto (module veer.v1.range_pb2), found
+    where the package finds the rest of the schema (veer._pb)."""
+    _pb.modules()  # puts the schema's folder on veer.v1's path
+    try:
+        return importlib.import_module("veer.v1.range_pb2")
+    except ImportError as exc:
+        raise PlanError("ERR_STATE", "the Python classes of proto/veer/v1/range.proto are missing (%s); build the "
+                        "CMake target veer_python_proto" % exc) from None
+
+
+def check_bytes(plan_bytes, rng, footprint, braking=True):
+    """The same check as check(), through the bytes API: a RangeCheckRequest
+    (Plan bytes, range, footprint) to veer_range_check_pb; returns the
+    RangeCheckReply message. Raises PlanError when the reply is an error."""
+    from google.protobuf import json_format
+
+    m = messages()
+    req = m.RangeCheckRequest(plan=bytes(plan_bytes), braking=bool(braking))
+    json_format.ParseDict(rng.to_json(), req.range)
+    json_format.ParseDict(footprint.to_json(), req.footprint)
+    data = req.SerializeToString()
+    fn = _fn("veer_range_check_pb")
+    size = ctypes.c_size_t(0)
+    cap = 2048  # VEER_RANGE_REPLY_CAPACITY, include/veer/range_wire.h
+    buf = ctypes.create_string_buffer(cap)
+    st = fn(data, len(data), buf, cap, ctypes.byref(size))
+    if st == 8:  # VEER_ERR_BUFFER: larger than promised; once more with the size asked for
+        buf = ctypes.create_string_buffer(size.value)
+        st = fn(data, len(data), buf, size.value, ctypes.byref(size))
+    rep = m.RangeCheckReply.FromString(buf.raw[:size.value])
+    if st != 0:
+        d = rep.diagnostic
+        raise PlanError(library().status_name(st), d.message or "veer_range_check_pb failed")
+    return rep
+
