@@ -788,3 +788,41 @@ Test(player, definition_from_cart_config) {
     cr_assert_eq(veer_player_def_from_pb(buf, os.bytes_written, &untouched, &diag), VEER_ERR_VALUE);
     cr_assert(strstr(diag.message, "drive") != NULL);
 }
+
+/* Regression (tests/fuzz/findings/fuzz_link_receiver/report_frame_64): at
+ * the smallest frame size a link accepts, a running player's report frame
+ * still fits, with counters at their widest (10-byte varints). */
+Test(player, report_fits_the_smallest_frame) {
+    veer_player_def def = cart_def();
+    def.link.frame_size = VEER_LINK_FRAME_MIN;
+    def.link_timeout = 60.0;
+    void *mem;
+    veer_player *p = new_player(&def, &mem);
+    veer_route r = corner_route();
+    blob b = plan_bytes(&def.drive, &def.limits, &r, NULL);
+    uint64_t id = UINT64_MAX;
+    cr_assert(send_plan(p, &def.link, id, b, 0.0).armed);
+    uint8_t f[VEER_LINK_FRAME_MAX];
+    size_t n;
+    veer_player_event ev;
+    cr_assert_eq(veer_link_command_frame(&def.link, UINT64_MAX - 1, VEER_LINK_COMMAND_START, id, f, sizeof f, &n),
+                 VEER_OK);
+    cr_assert_eq(veer_player_frame(p, f, n, 0.0, &ev), VEER_OK);
+    cr_assert(ev.started);
+    veer_sample o;
+    cr_assert_eq(veer_player_step(p, 2.345678, &o), VEER_OK);
+    for (int k = 0; k < 3; k++) {
+        cr_assert_eq(veer_player_report_frame(p, f, sizeof f, &n), VEER_OK);
+        cr_assert(n <= (size_t)VEER_LINK_FRAME_MIN, "%zu bytes", n);
+    }
+    veer_link_message m;
+    cr_assert_eq(veer_link_parse(&def.link, f, n, &m, NULL), VEER_OK);
+    cr_assert_eq(m.report.plan_id, UINT64_MAX);
+    cr_assert_eq(m.report.command_seq, UINT64_MAX - 1);
+    /* a smaller frame size is refused when the player is set up */
+    def.link.frame_size = VEER_LINK_FRAME_MIN - 1;
+    veer_player *q;
+    cr_assert_eq(veer_player_init(mem, veer_player_size(), &def, &q, NULL), VEER_ERR_VALUE);
+    free(b.bytes);
+    free(mem);
+}
