@@ -9,6 +9,9 @@
 #include <math.h>
 #include <string.h>
 #include <veer/veer.h>
+/* NAN and INFINITY are float constants under clang: doubles here (-Wdouble-promotion). */
+#define T_NAN ((double)NAN)
+#define T_INF ((double)INFINITY)
 #include <veer/range.h>
 
 /* ---- helpers --------------------------------------------------------------- */
@@ -74,7 +77,7 @@ static int t_cross(const double *a, const double *b, const double *c, const doub
 }
 /* Distance between two areas, 0 when they overlap. */
 static double t_gap(const veer_outline *a, const veer_outline *b) {
-    double m = INFINITY;
+    double m = T_INF;
     for (int i = 0, j = a->count - 1; i < a->count; j = i++)
         for (int k = 0, l = b->count - 1; k < b->count; l = k++) {
             if (t_cross(a->points[j], a->points[i], b->points[l], b->points[k])) return 0.0;
@@ -191,7 +194,7 @@ Test(range_geom, bad_outlines_get_named_statuses) {
     const double two[] = {0, 0, 1, 0};
     cr_expect_eq(veer_outline_set(&o, two, 2, &d), VEER_ERR_VALUE);
     cr_expect_eq(o.count, 0, "unchanged on failure");
-    const double nanp[] = {0, 0, NAN, 0, 1, 1};
+    const double nanp[] = {0, 0, T_NAN, 0, 1, 1};
     cr_expect_eq(veer_outline_set(&o, nanp, 3, &d), VEER_ERR_VALUE);
     cr_expect(strstr(d.message, "vertex 1") != NULL, "%s", d.message);
     const double bow[] = {0, 0, 1, 1, 1, 0, 0, 1}; /* a bow tie */
@@ -219,12 +222,12 @@ Test(range_geom, bad_outlines_get_named_statuses) {
     veer_range r = big_range();
     veer_outline ko = box(1, 1, 2, 2);
     cr_assert_eq(veer_range_add_keep_out(&r, &ko, &d), VEER_OK);
-    r.keep_out[0].points[1][1] = NAN;
+    r.keep_out[0].points[1][1] = T_NAN;
     cr_expect_eq(veer_range_check(&r, &d), VEER_ERR_VALUE);
     cr_expect(strstr(d.message, "keep_out[0]") != NULL, "%s", d.message);
     r.keep_out[0] = ko;
     cr_expect_eq(veer_range_add_speed_zone(&r, &ko, 0.0, &d), VEER_ERR_VALUE);
-    cr_expect_eq(veer_range_add_speed_zone(&r, &ko, NAN, &d), VEER_ERR_VALUE);
+    cr_expect_eq(veer_range_add_speed_zone(&r, &ko, T_NAN, &d), VEER_ERR_VALUE);
     cr_expect_eq(r.zone_count, 0);
     veer_footprint fp = veer_footprint_rectangle(0.5, 0.5, 0.3, 0.3, -0.1);
     cr_expect_eq(veer_footprint_check(&fp, &d), VEER_ERR_VALUE);
@@ -353,7 +356,7 @@ Test(range_check, bad_input_leaves_the_report_alone) {
     veer_range none = veer_default_range();
     cr_expect_eq(veer_plan_check_range(p, &none, &fp, &rep, &d), VEER_ERR_VALUE);
     cr_expect(strstr(d.message, "keep-in") != NULL, "%s", d.message);
-    fp.margin = NAN;
+    fp.margin = T_NAN;
     cr_expect_eq(veer_plan_check_range(p, &r, &fp, &rep, &d), VEER_ERR_VALUE);
     fp.margin = 0.0;
     r.keep_out_count = 40;
@@ -421,7 +424,7 @@ Test(range_braking, last_safe_stop_before_a_wall) {
 
 static double t_speed_cap(const veer_range *r, const veer_footprint *fp, const double pose[3], int *zone) {
     veer_outline F = t_place(fp, pose);
-    double cap = INFINITY;
+    double cap = T_INF;
     *zone = -1;
     for (int i = 0; i < r->zone_count; i++)
         if (t_gap(&F, &r->zones[i].area) <= fp->margin && r->zones[i].speed < cap) cap = r->zones[i].speed, *zone = i;
@@ -527,7 +530,7 @@ Test(range_multi, crossing_lanes_against_brute_force) {
         cr_assert_eq(veer_carts_check_separation(carts, 2, required, &rep, &d), VEER_OK, "%s", d.message);
         /* brute force */
         double t0 = fmin(0.0, offsets[o]), t1 = fmax(veer_plan_duration(pa), offsets[o] + veer_plan_duration(pb));
-        double best = INFINITY, best_t = 0.0, first = -1.0;
+        double best = T_INF, best_t = 0.0, first = -1.0;
         for (long k = 0; t0 + k * 1e-4 <= t1; k++) {
             double T = t0 + k * 1e-4;
             veer_sample sa, sb;
@@ -554,7 +557,7 @@ Test(range_multi, crossing_lanes_against_brute_force) {
     veer_separation_report rep;
     cr_expect_eq(veer_carts_check_separation(one, 1, 1.0, &rep, NULL), VEER_ERR_VALUE);
     veer_cart two[2] = {one[0], one[0]};
-    two[1].start_time = NAN;
+    two[1].start_time = T_NAN;
     cr_expect_eq(veer_carts_check_separation(two, 2, 1.0, &rep, NULL), VEER_ERR_VALUE);
     two[1].start_time = 0.0;
     cr_expect_eq(veer_carts_check_separation(two, 2, -1.0, &rep, NULL), VEER_ERR_VALUE);
@@ -628,7 +631,7 @@ Test(range_zones, brief_touch_between_grid_points) {
  * gives finite answers. */
 Test(range_geom, random_garbage_never_crashes) {
     unsigned long long state = 0x6a09e667f3bcc909ull;
-    const double odd[] = {NAN, INFINITY, -INFINITY, 1e300, -1e300, 1e-310, 0.0, 1e6, 2e6, 1e-7};
+    const double odd[] = {T_NAN, T_INF, -T_INF, 1e300, -1e300, 1e-310, 0.0, 1e6, 2e6, 1e-7};
     int accepted = 0;
     for (int it = 0; it < 3000; it++) {
         veer_outline a = veer_default_outline(), b = veer_default_outline();

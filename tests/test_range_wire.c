@@ -9,6 +9,9 @@
 #include <pb_decode.h>
 #include <pb_encode.h>
 #include <veer/veer.h>
+/* NAN and INFINITY are float constants under clang: doubles here (-Wdouble-promotion). */
+#define T_NAN ((double)NAN)
+#define T_INF ((double)INFINITY)
 #include <veer/range_wire.h>
 #include "veer/v1/range.pb.h"
 
@@ -170,7 +173,7 @@ Test(range_wire, bad_bytes_are_refused_by_name) {
     /* a NaN in a keep-out, a bow tie, no footprint, no plan, no keep-in, wrong version */
     req.range.keep_out_count = 1;
     box_pb(&req.range.keep_out[0], 1, 1, 2, 2);
-    req.range.keep_out[0].points[2].x = NAN;
+    req.range.keep_out[0].points[2].x = T_NAN;
     rep = check(req_buf, encode(veer_v1_RangeCheckRequest_fields, &req, req_buf, sizeof req_buf), VEER_ERR_VALUE);
     cr_expect(strstr(rep.diagnostic.message, "keep_out[0]") != NULL, "%s", rep.diagnostic.message);
     box_pb(&req.range.keep_out[0], 1, 1, 2, 2);
@@ -342,7 +345,7 @@ Test(range_wire, separation_of_crossing_carts) {
     cr_assert_eq(veer_plan_decode_pb(ba, src.plans[0].size, &da, NULL), VEER_OK);
     cr_assert_eq(veer_plan_decode_pb(bb, src.plans[1].size, &db, NULL), VEER_OK);
     double t0 = -3.2, t1 = fmax(veer_plan_duration(da), -3.2 + veer_plan_duration(db));
-    double best = INFINITY, first = -1.0;
+    double best = T_INF, first = -1.0;
     for (long k = 0; t0 + k * 1e-4 <= t1; k++) {
         double T = t0 + k * 1e-4;
         veer_sample sa, sb;
