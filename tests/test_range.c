@@ -9,10 +9,11 @@
 #include <math.h>
 #include <string.h>
 #include <veer/veer.h>
+#include <veer/range.h>
+
 /* NAN and INFINITY are float constants under clang: doubles here (-Wdouble-promotion). */
 #define T_NAN ((double)NAN)
 #define T_INF ((double)INFINITY)
-#include <veer/range.h>
 
 /* ---- helpers --------------------------------------------------------------- */
 

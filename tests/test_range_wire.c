@@ -9,11 +9,12 @@
 #include <pb_decode.h>
 #include <pb_encode.h>
 #include <veer/veer.h>
+#include <veer/range_wire.h>
+#include "veer/v1/range.pb.h"
+
 /* NAN and INFINITY are float constants under clang: doubles here (-Wdouble-promotion). */
 #define T_NAN ((double)NAN)
 #define T_INF ((double)INFINITY)
-#include <veer/range_wire.h>
-#include "veer/v1/range.pb.h"
 
 typedef struct {
     const uint8_t *buf;
