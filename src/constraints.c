@@ -38,7 +38,9 @@ void veer__module_velocity(const veer_drive_def *drive, int i, const veer_point_
 static int set(double v) { return isfinite(v); }
 
 static void polygon_init(veer_polygon *pg, int sides, double radius) {
-    pg->faces = sides / 2;
+    pg->faces = sides / 2 < VEER_MAX_POLYGON_FACES ? sides / 2 : VEER_MAX_POLYGON_FACES; /* options are checked; never overflow */
+    if (pg->faces < 1) pg->faces = 1;
+    if (sides < 2) sides = 2;
     /* Faces of the polygon inscribed in the circle of radius `radius`, with a
      * vertex on the tangent: normals at odd multiples of pi / sides. */
     for (int j = 0; j < pg->faces && j < VEER_MAX_POLYGON_FACES; j++) {

@@ -36,7 +36,7 @@ veer_plan_options veer_default_plan_options(void) {
     return o;
 }
 
-static veer_status check_options(const veer_plan_options *o, veer_diag *diag) {
+veer_status veer__plan_options_check(const veer_plan_options *o, veer_diag *diag) {
     veer_limit_id none = veer__limit(VEER_LIMIT_NONE, -1);
     if (o->grid_points < VEER_GRID_MIN || o->grid_points > VEER_GRID_MAX)
         return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, none, "grid_points must be in [%d, %d], got %d",
@@ -203,6 +203,55 @@ static int has_motor_curve(const veer_plan *plan) {
  * sdot^2 = x_start. With a motor curve the solve repeats twice more with the
  * curve linearized at the previous profile: every row stays conservative
  * and the last one is exact where the profile runs. */
+/* Room for n more rows in the extra-row pool. */
+static int extra_room(veer_workspace *ws, int n) {
+    if (ws->extra_used + n <= ws->extra_cap) return 1;
+    int cap = 2 * ws->extra_cap + n + 256;
+    veer_row *pool = veer__alloc((size_t)cap * sizeof *pool);
+    if (!pool) return 0;
+    if (ws->extra_used) memcpy(pool, ws->extra, (size_t)ws->extra_used * sizeof *pool);
+    veer__free(ws->extra, (size_t)ws->extra_cap * sizeof *ws->extra);
+    ws->extra = pool;
+    ws->extra_cap = cap;
+    return 1;
+}
+
+/* Between grid points the profile runs with constant u and x linear in s,
+ * but the rows' coefficients follow the path. Each interval's midpoint is
+ * checked against every limit at the profile's (u, x_mid); where one is
+ * exceeded by more than 0.1 %, the midpoint's rows join the stage (written
+ * in the stage's variables: x_mid = x + ds u) for the next solve. Returns
+ * the number of stages that gained rows, or -1 when out of memory. */
+static int midpoint_rows(const veer_plan *plan, int j, const veer_row_ctx *ctx, int n, const double *s,
+                         const double *x, veer_workspace *ws) {
+    veer_row rows[VEER_MAX_POINT_ROWS];
+    int added = 0;
+    for (int k = 0; k + 1 < n; k++) {
+        double ds = s[k + 1] - s[k];
+        if (!(ds > 0.0) || ws->extra_n[k] > 0) continue;
+        double u = (x[k + 1] - x[k]) / (2.0 * ds), xm = 0.5 * (x[k] + x[k + 1]);
+        veer_point_kin pk;
+        veer__point_kin(&plan->path, j, s[k] + 0.5 * ds, &pk);
+        double xmax;
+        veer_limit_id id;
+        int c = veer__point_rows(ctx, &pk, xm, rows, &xmax, &id);
+        if (c < 0) continue;
+        int broke = xm > xmax * (1.0 + 1e-3);
+        for (int r = 0; r < c && !broke; r++) broke = rows[r].a * u + rows[r].b * xm > rows[r].c * (1.0 + 1e-3);
+        if (!broke) continue;
+        if (!extra_room(ws, c + 1)) return -1;
+        veer_row *e = ws->extra + ws->extra_used;
+        ws->extra_at[k] = ws->extra_used;
+        for (int r = 0; r < c; r++) e[r] = (veer_row){rows[r].a + ds * rows[r].b, rows[r].b, rows[r].c, rows[r].id};
+        int ne = c;
+        if (isfinite(xmax)) e[ne++] = (veer_row){ds, 1.0, xmax, id}; /* x + ds u <= xmax at the midpoint */
+        ws->extra_n[k] = ne;
+        ws->extra_used += ne;
+        added++;
+    }
+    return added;
+}
+
 veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx, double x_start, veer_workspace *ws,
                                 veer_diag *diag) {
     veer_plan_segment *sg = &plan->segs[j];
@@ -210,8 +259,11 @@ veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx,
     int n = sg->k1 - sg->k0 + 1, m = ctx->m;
     double *s = plan->s + sg->k0, *x = plan->x + sg->k0;
     int passes = has_motor_curve(plan) ? 3 : 1;
-    veer_topp_problem p = {n, s, ws->xmax, ws->xmax_id, ws->rows, ws->row_count, m};
+    veer_topp_problem p = {n, s, ws->xmax, ws->xmax_id, ws->rows, ws->row_count, m, NULL, NULL, NULL};
     for (int pass = 0; pass < passes; pass++) {
+        ws->extra_used = 0;
+        memset(ws->extra_n, 0, (size_t)n * sizeof *ws->extra_n);
+        p.extra = NULL;
         for (int k = 0; k < n; k++) {
             veer_point_kin pk;
             veer__point_kin(&plan->path, j, s[k], &pk);
@@ -235,6 +287,20 @@ veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx,
         if (plan->steered) steer_rate_bounds(plan, ctx, j, n, s, ws);
         int bad = 0;
         veer_status st = veer__topp_solve(&p, x_start, x, ws->K, &bad);
+        /* Limits broken between grid points: add those midpoints' rows and
+         * solve again (a few rounds; each only adds rows, so the profile
+         * only gets slower and stays within every earlier row). */
+        for (int round = 0; round < 4 && st == VEER_OK; round++) {
+            int added = midpoint_rows(plan, j, ctx, n, s, x, ws);
+            if (added < 0)
+                return veer__fail(diag, VEER_ERR_NO_MEMORY, ps->leg, -1, -1, -1.0, veer__limit(VEER_LIMIT_NONE, -1),
+                                  "out of memory");
+            if (added == 0) break;
+            p.extra = ws->extra;
+            p.extra_at = ws->extra_at;
+            p.extra_n = ws->extra_n;
+            st = veer__topp_solve(&p, x_start, x, ws->K, &bad);
+        }
         if (st != VEER_OK && bad == 0 && x_start > 0.0)
             return veer__fail(diag, st, ps->leg, ps->waypoint, sg->k0, s[0], veer__limit(VEER_LIMIT_START_STATE, -1),
                               "leg %d: from %.3f m/s there is no room to stop before s = %.3f within the limits",
@@ -512,7 +578,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
 
     veer_workspace ws;
     int m = plan->rows.m;
-    ws.bytes = (size_t)longest * ((size_t)m * sizeof(veer_row) + 8 * sizeof(double) + sizeof(veer_limit_id) + sizeof(int));
+    ws.bytes = (size_t)longest * ((size_t)m * sizeof(veer_row) + 8 * sizeof(double) + sizeof(veer_limit_id) + 3 * sizeof(int));
     char *w = veer__alloc(ws.bytes);
     if (!w) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
     ws.rows = (veer_row *)w;
@@ -522,6 +588,10 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     ws.dxi = ws.xi + 3 * (size_t)longest;
     ws.xmax_id = (veer_limit_id *)(ws.dxi + 3 * (size_t)longest);
     ws.row_count = (int *)(ws.xmax_id + longest);
+    ws.extra_at = ws.row_count + longest;
+    ws.extra_n = ws.extra_at + longest;
+    ws.extra = NULL;
+    ws.extra_used = ws.extra_cap = 0;
 
     double from[VEER_MAX_MODULES];
     for (int i = 0; i < M; i++) from[i] = plan->route.has_start_steer ? plan->route.start_steer[i] : 0.0;
@@ -533,6 +603,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     }
     if (st == VEER_OK && plan->x_start > 0.0) plan->segs[0].resteer_time = 0.0; /* already pointing along the motion */
     if (st == VEER_OK) st = veer__meet_arrivals(plan, &ws, diag);
+    veer__free(ws.extra, (size_t)ws.extra_cap * sizeof *ws.extra);
     veer__free(w, ws.bytes);
     if (st != VEER_OK) return st;
 
@@ -557,7 +628,7 @@ veer_status veer__plan_create_with(const veer_drive_def *drive, const veer_limit
                           !drive ? "drive" : !limits ? "limits" : "route");
     veer_plan_options opt = options ? *options : veer_default_plan_options();
     veer_status st;
-    if ((st = check_options(&opt, diag))) return st;
+    if ((st = veer__plan_options_check(&opt, diag))) return st;
     if ((st = veer_drive_check(drive, diag))) return st;
     if ((st = veer__limits_check(drive, limits, diag))) return st;
     int M = veer_drive_module_count(drive);

@@ -83,6 +83,10 @@ typedef struct {
     const veer_row *rows;   /* [n * m] u-rows per point, m per point */
     const int *row_count;   /* [n] rows used at each point (<= m) */
     int m;
+    /* Extra rows of stage k, already in the stage's variables (u, x_k):
+     * extra[extra_at[k] .. extra_at[k] + extra_n[k]). NULL: none. */
+    const veer_row *extra;
+    const int *extra_at, *extra_n;
 } veer_topp_problem;
 
 /* Fills x[n] (sdot^2) with the time-optimal profile: backward controllable
@@ -109,6 +113,9 @@ typedef struct {
     double (*cap)(const void *user, const double pose[3], int *zone);
     const void *user;
 } veer_speed_cap;
+
+/* Checks plan options (grid size, polygon sides, duration target). */
+veer_status veer__plan_options_check(const veer_plan_options *o, veer_diag *diag);
 
 /* veer_plan_create with an optional speed cap (NULL: none). */
 veer_status veer__plan_create_with(const veer_drive_def *drive, const veer_limits *limits, const veer_route *route,
@@ -162,6 +169,11 @@ typedef struct {
     double *xmax, *K, *xi, *dxi; /* xi, dxi: body twist per unit sdot and its s-derivative, 3 per point */
     veer_limit_id *xmax_id;
     size_t bytes;
+    /* Midpoint rows added where the profile broke a limit between grid
+     * points (plan.c): a pool and, per stage, where its rows are. */
+    veer_row *extra;
+    int *extra_at, *extra_n; /* [longest] */
+    int extra_used, extra_cap;
 } veer_workspace;
 
 /* Rows, solve and times of segment j with the limits behind ctx, starting at

@@ -24,7 +24,7 @@ typedef struct {
     double p, q;
 } bound;
 
-#define VEER_STAGE_ROWS (2 * VEER_MAX_POINT_ROWS + 1)
+#define VEER_STAGE_ROWS (3 * VEER_MAX_POINT_ROWS + 2)
 
 typedef struct {
     bound up[VEER_STAGE_ROWS], lo[VEER_STAGE_ROWS];
@@ -57,6 +57,11 @@ static void stage_build(const veer_topp_problem *pr, int k, double hi_next, stag
     st->lo[st->nlo++] = (bound){0.0, -1.0 / d2};
     for (int j = 0; j < pr->row_count[k]; j++) stage_add(st, r0[j].a, r0[j].b, r0[j].c);
     for (int j = 0; j < pr->row_count[k + 1]; j++) stage_add(st, r1[j].a + d2 * r1[j].b, r1[j].b, r1[j].c);
+    if (pr->extra)
+        for (int j = 0; j < pr->extra_n[k]; j++) {
+            const veer_row *e = &pr->extra[pr->extra_at[k] + j];
+            stage_add(st, e->a, e->b, e->c);
+        }
 }
 
 /* U(x) and L(x), and the bounds that define them (ties go to the steeper
@@ -159,10 +164,12 @@ veer_limit_id veer__topp_binding(const veer_topp_problem *p, const double *x, in
     double d2 = 2.0 * (p->s[k + 1] - p->s[k]);
     double u = (x[k + 1] - x[k]) / d2;
     double tight = 2e-3;
-    for (int j = 0; j < p->row_count[k] + p->row_count[k + 1]; j++) {
-        int first = j < p->row_count[k];
-        const veer_row *r = first ? &r0[j] : &r1[j - p->row_count[k]];
-        double a = first ? r->a : r->a + d2 * r->b;
+    int ne = p->extra ? p->extra_n[k] : 0;
+    for (int j = 0; j < p->row_count[k] + p->row_count[k + 1] + ne; j++) {
+        int first = j < p->row_count[k], second = !first && j < p->row_count[k] + p->row_count[k + 1];
+        const veer_row *r = first ? &r0[j] : second ? &r1[j - p->row_count[k]]
+                                                    : &p->extra[p->extra_at[k] + j - p->row_count[k] - p->row_count[k + 1]];
+        double a = first || !second ? r->a : r->a + d2 * r->b;
         if (!(r->c > 0.0)) continue;
         double slack = (r->c - a * u - r->b * x[k]) / r->c;
         if (slack < tight) {

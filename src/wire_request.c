@@ -505,6 +505,8 @@ veer_status veer__wire_options_from_pb(const veer_v1_PlanOptions *m, veer_plan_o
                        m->duration_target);
         o.duration_target = m->duration_target;
     }
+    veer_status st = veer__plan_options_check(&o, diag); /* the planner's own ranges: a decoded plan obeys them too */
+    if (st != VEER_OK) return st;
     *out = o;
     return VEER_OK;
 }
