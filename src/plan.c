@@ -216,38 +216,60 @@ static int extra_room(veer_workspace *ws, int n) {
     return 1;
 }
 
+/* Appends to stage k's extra rows the rows of the point at fraction f of
+ * interval k, written in the stage's variables (x there = x + 2 ds f u);
+ * existing rows are moved along so the stage's rows stay contiguous. */
+static int add_point_rows(veer_workspace *ws, int k, double ds, double f, const veer_row *rows, int c, double xmax,
+                          veer_limit_id id) {
+    int old = ws->extra_n[k], need = old + c + 1;
+    if (!extra_room(ws, need)) return 0;
+    veer_row *e = ws->extra + ws->extra_used;
+    if (old) memmove(e, ws->extra + ws->extra_at[k], (size_t)old * sizeof *e);
+    double g = 2.0 * ds * f;
+    int ne = old;
+    for (int r = 0; r < c; r++) e[ne++] = (veer_row){rows[r].a + g * rows[r].b, rows[r].b, rows[r].c, rows[r].id};
+    if (isfinite(xmax)) e[ne++] = (veer_row){g, 1.0, xmax, id}; /* x + g u <= xmax there */
+    ws->extra_at[k] = ws->extra_used;
+    ws->extra_n[k] = ne;
+    ws->extra_used += ne;
+    return 1;
+}
+
 /* Between grid points the profile runs with constant u and x linear in s,
  * but the rows' coefficients follow the path. Each interval's midpoint is
- * checked against every limit at the profile's (u, x_mid); where one is
- * exceeded by more than 0.1 %, the midpoint's rows join the stage (written
- * in the stage's variables: x_mid = x + ds u) for the next solve. Returns
- * the number of stages that gained rows, or -1 when out of memory. */
+ * checked against every limit at the profile's (u, x there), and its
+ * quarter points too where the midpoint comes within 5 % of a limit; where
+ * one is exceeded by more than 0.3 %, that point's rows join the stage for
+ * the next solve. Returns the number of points added, or -1 when out of
+ * memory. */
 static int midpoint_rows(const veer_plan *plan, int j, const veer_row_ctx *ctx, int n, const double *s,
-                         const double *x, veer_workspace *ws) {
+                         const double *x, veer_workspace *ws, unsigned char *done) {
     veer_row rows[VEER_MAX_POINT_ROWS];
+    static const double frac[3] = {0.5, 0.25, 0.75};
     int added = 0;
     for (int k = 0; k + 1 < n; k++) {
         double ds = s[k + 1] - s[k];
-        if (!(ds > 0.0) || ws->extra_n[k] > 0) continue;
-        double u = (x[k + 1] - x[k]) / (2.0 * ds), xm = 0.5 * (x[k] + x[k + 1]);
-        veer_point_kin pk;
-        veer__point_kin(&plan->path, j, s[k] + 0.5 * ds, &pk);
-        double xmax;
-        veer_limit_id id;
-        int c = veer__point_rows(ctx, &pk, xm, rows, &xmax, &id);
-        if (c < 0) continue;
-        int broke = xm > xmax * (1.0 + 1e-3);
-        for (int r = 0; r < c && !broke; r++) broke = rows[r].a * u + rows[r].b * xm > rows[r].c * (1.0 + 1e-3);
-        if (!broke) continue;
-        if (!extra_room(ws, c + 1)) return -1;
-        veer_row *e = ws->extra + ws->extra_used;
-        ws->extra_at[k] = ws->extra_used;
-        for (int r = 0; r < c; r++) e[r] = (veer_row){rows[r].a + ds * rows[r].b, rows[r].b, rows[r].c, rows[r].id};
-        int ne = c;
-        if (isfinite(xmax)) e[ne++] = (veer_row){ds, 1.0, xmax, id}; /* x + ds u <= xmax at the midpoint */
-        ws->extra_n[k] = ne;
-        ws->extra_used += ne;
-        added++;
+        if (!(ds > 0.0)) continue;
+        double u = (x[k + 1] - x[k]) / (2.0 * ds);
+        for (int q = 0; q < 3; q++) {
+            if (done[k] & (1u << q)) continue;
+            double f = frac[q], xf = x[k] + f * (x[k + 1] - x[k]);
+            veer_point_kin pk;
+            veer__point_kin(&plan->path, j, s[k] + f * ds, &pk);
+            double xmax;
+            veer_limit_id id;
+            int c = veer__point_rows(ctx, &pk, xf, rows, &xmax, &id);
+            if (c < 0) break;
+            double worst = isfinite(xmax) ? xf / xmax : 0.0;
+            for (int r = 0; r < c; r++)
+                if (rows[r].c > 0.0) worst = fmax(worst, (rows[r].a * u + rows[r].b * xf) / rows[r].c);
+            if (worst > 1.0 + 3e-3) {
+                if (!add_point_rows(ws, k, ds, f, rows, c, xmax, id)) return -1;
+                done[k] |= (unsigned char)(1u << q);
+                added++;
+            }
+            if (q == 0) break;
+        }
     }
     return added;
 }
@@ -290,8 +312,9 @@ veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx,
         /* Limits broken between grid points: add those midpoints' rows and
          * solve again (a few rounds; each only adds rows, so the profile
          * only gets slower and stays within every earlier row). */
+        memset(ws->extra_done, 0, (size_t)n);
         for (int round = 0; round < 4 && st == VEER_OK; round++) {
-            int added = midpoint_rows(plan, j, ctx, n, s, x, ws);
+            int added = midpoint_rows(plan, j, ctx, n, s, x, ws, ws->extra_done);
             if (added < 0)
                 return veer__fail(diag, VEER_ERR_NO_MEMORY, ps->leg, -1, -1, -1.0, veer__limit(VEER_LIMIT_NONE, -1),
                                   "out of memory");
@@ -474,10 +497,10 @@ static int refine(const veer_plan *plan, int seg, double sa, const veer_point_ki
  * points where a module's direction or its steer-rate bound changes fast
  * (an ICR passing close to it), so steer angles, their rates and the
  * steer-rate bound are resolved there. out has room for the pieces' points
- * plus grid_points more; returns the number of points written. */
+ * plus grid_points / 4 more; returns the number of points written. */
 static int grid_points(const veer_plan *plan, const int *intervals, double *out, int *seg_first) {
     const veer_path *path = &plan->path;
-    int n = 0, budget = plan->options.grid_points;
+    int n = 0, budget = plan->options.grid_points / 4; /* refinement adds at most a quarter more points */
     for (int j = 0; j < path->segment_count; j++) {
         const veer_path_segment *ps = &path->segments[j];
         if (seg_first) seg_first[j] = n;
@@ -578,7 +601,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
 
     veer_workspace ws;
     int m = plan->rows.m;
-    ws.bytes = (size_t)longest * ((size_t)m * sizeof(veer_row) + 8 * sizeof(double) + sizeof(veer_limit_id) + 3 * sizeof(int));
+    ws.bytes = (size_t)longest * ((size_t)m * sizeof(veer_row) + 8 * sizeof(double) + sizeof(veer_limit_id) + 3 * sizeof(int) + 1);
     char *w = veer__alloc(ws.bytes);
     if (!w) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
     ws.rows = (veer_row *)w;
@@ -590,6 +613,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     ws.row_count = (int *)(ws.xmax_id + longest);
     ws.extra_at = ws.row_count + longest;
     ws.extra_n = ws.extra_at + longest;
+    ws.extra_done = (unsigned char *)(ws.extra_n + longest);
     ws.extra = NULL;
     ws.extra_used = ws.extra_cap = 0;
 

@@ -173,6 +173,7 @@ typedef struct {
      * points (plan.c): a pool and, per stage, where its rows are. */
     veer_row *extra;
     int *extra_at, *extra_n; /* [longest] */
+    unsigned char *extra_done; /* [longest]: which of an interval's points were added */
     int extra_used, extra_cap;
 } veer_workspace;
 

@@ -24,7 +24,7 @@ typedef struct {
     double p, q;
 } bound;
 
-#define VEER_STAGE_ROWS (3 * VEER_MAX_POINT_ROWS + 2)
+#define VEER_STAGE_ROWS (5 * VEER_MAX_POINT_ROWS + 8) /* two points, up to three extra points */
 
 typedef struct {
     bound up[VEER_STAGE_ROWS], lo[VEER_STAGE_ROWS];
