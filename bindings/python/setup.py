@@ -18,7 +18,7 @@ from setuptools import setup
 from setuptools.command.build_py import build_py
 
 HERE = pathlib.Path(__file__).resolve().parent
-NAMES = ("drive", "limits", "route", "plan", "setpoints", "link")
+NAMES = ("drive", "limits", "route", "plan", "setpoints", "link", "range")
 
 
 class build_py_with_schema(build_py):

@@ -20,7 +20,7 @@ import tempfile
 from . import _lib
 from . import v1 as _v1
 
-PROTO_NAMES = ("drive", "limits", "route", "plan", "setpoints", "link")
+PROTO_NAMES = ("drive", "limits", "route", "plan", "setpoints", "link", "range")
 # The message schema version this package was written for; must equal the
 # library's veer_wire_schema_version() (proto/veer/v1/plan.proto says 1).
 SCHEMA_VERSION = 1
