@@ -71,7 +71,7 @@ Test(input, null_pointers) {
 
 Test(input, limits_nan_negative_zero) {
     request q = good();
-    q.l.body_speed = NAN;
+    q.l.body_speed = ((double)NAN);
     veer_diag d = expect(&q, NULL, VEER_ERR_VALUE);
     cr_assert_eq(d.limit.kind, VEER_LIMIT_BODY_SPEED);
     q = good();
@@ -105,13 +105,13 @@ Test(input, route_geometry) {
     veer_diag d = expect(&q, NULL, VEER_ERR_GEOMETRY);
     cr_assert_eq(d.leg, 0);
     q = good();
-    q.r.waypoints[0].y = NAN;
+    q.r.waypoints[0].y = ((double)NAN);
     expect(&q, NULL, VEER_ERR_VALUE);
     q = good();
     q.r.waypoints[1].dwell = -1.0;
     expect(&q, NULL, VEER_ERR_VALUE);
     q = good();
-    q.r.start_yaw = INFINITY;
+    q.r.start_yaw = ((double)INFINITY);
     expect(&q, NULL, VEER_ERR_VALUE);
     q = good();
     q.r.legs[0].kind = (veer_leg_kind)77;
@@ -176,7 +176,7 @@ Test(input, sampling_and_tables) {
     veer_sample s;
     memset(&s, 0x5a, sizeof s);
     veer_sample before = s;
-    cr_assert_eq(veer_plan_sample(p, NAN, &s), VEER_ERR_VALUE);
+    cr_assert_eq(veer_plan_sample(p, ((double)NAN), &s), VEER_ERR_VALUE);
     cr_assert_eq(memcmp(&s, &before, sizeof s), 0, "output written on failure");
     cr_assert_eq(veer_plan_sample(p, -5.0, &s), VEER_OK); /* clamped to the start */
     cr_assert_float_eq(s.pose[0], 0.0, 1e-12);
@@ -185,7 +185,7 @@ Test(input, sampling_and_tables) {
     cr_assert_float_eq(s.pose[1], 2.0, 1e-9);
     size_t n = 0;
     cr_assert_eq(veer_plan_table(p, 0.0, NULL, 0, &n), VEER_ERR_VALUE);
-    cr_assert_eq(veer_plan_table(p, NAN, NULL, 0, &n), VEER_ERR_VALUE);
+    cr_assert_eq(veer_plan_table(p, ((double)NAN), NULL, 0, &n), VEER_ERR_VALUE);
     cr_assert_eq(veer_plan_table(p, -50.0, NULL, 0, &n), VEER_ERR_VALUE);
     cr_assert_eq(veer_plan_table(p, 50.0, NULL, 0, &n), VEER_ERR_BUFFER);
     veer_sample small[3];
@@ -194,7 +194,7 @@ Test(input, sampling_and_tables) {
     cr_assert(n > 3);
     for (int i = 0; i < 3; i++) cr_assert_eq(memcmp(&small[i], &before, sizeof before), 0);
     double q3[3], dq[3], ddq[3];
-    cr_assert_eq(veer_plan_path_at(p, NAN, q3, dq, ddq), VEER_ERR_VALUE);
+    cr_assert_eq(veer_plan_path_at(p, ((double)NAN), q3, dq, ddq), VEER_ERR_VALUE);
     cr_assert_eq(veer_plan_grid(p, -1, NULL, NULL, NULL), VEER_ERR_VALUE);
     cr_assert_eq(veer_plan_grid(p, veer_plan_grid_count(p), NULL, NULL, NULL), VEER_ERR_VALUE);
     cr_assert_eq(veer_plan_leg(p, 5, &(veer_leg_summary){0}), VEER_ERR_VALUE);
@@ -213,7 +213,7 @@ static uint64_t rng(void) {
 }
 
 static void scramble_double(double *v) {
-    static const double odd[] = {NAN, INFINITY, -INFINITY, 0.0, -0.0, 1e300, -1e300, 1e-300, -1.0, 4.9e-324};
+    static const double odd[] = {((double)NAN), ((double)INFINITY), -(double)INFINITY, 0.0, -0.0, 1e300, -1e300, 1e-300, -1.0, 4.9e-324};
     *v = (rng() % 2) ? odd[rng() % 10] : ((double)(int64_t)rng() / 9.2e18) * 50.0;
 }
 

@@ -64,9 +64,9 @@ Test(stop, at_rest_and_near_the_end) {
     veer_sample s;
     cr_assert_eq(veer_plan_stop_sample(p, 6.5, 3.0, &s), VEER_OK);
     cr_assert_eq(s.phase, VEER_PHASE_DONE);
-    cr_assert_eq(veer_plan_stop_info(p, NAN, &in), VEER_ERR_VALUE);
+    cr_assert_eq(veer_plan_stop_info(p, (double)NAN, &in), VEER_ERR_VALUE);
     cr_assert_eq(veer_plan_stop_info(NULL, 1.0, &in), VEER_ERR_NULL);
-    cr_assert_eq(veer_plan_stop_sample(p, 1.0, NAN, &s), VEER_ERR_VALUE);
+    cr_assert_eq(veer_plan_stop_sample(p, 1.0, (double)NAN, &s), VEER_ERR_VALUE);
     veer_plan_destroy(p);
 }
 
