@@ -11,6 +11,9 @@
 
 #define VEER_JERK_DT 2e-3   /* s: sampling step while searching */
 #define VEER_JERK_TAU_MAX 60.0
+/* Sampled jerk peaks depend a little on where the samples fall; aim below
+ * the limit so that any 1 ms sampling stays within it. */
+#define VEER_JERK_AIM 0.97
 
 int veer__has_jerk_limit(const veer_plan *plan) {
     if (isfinite(plan->limits.body_jerk)) return 1;
@@ -30,18 +33,26 @@ static double jerk_ratio(veer_plan *plan, int j, double tau, double dt) {
 }
 
 double veer__jerk_window(veer_plan *plan, int j) {
+    /* Jerk that the path's own geometry causes at speed (a wheel's rate
+     * changing along a curve) does not average away; a window longer than
+     * half the stretch means the stretch must be driven slower. */
+    double cap = fmin(VEER_JERK_TAU_MAX, fmax(0.5, 0.5 * plan->segs[j].raw_time));
     double hi = 0.02;
-    while (hi < VEER_JERK_TAU_MAX && jerk_ratio(plan, j, hi, VEER_JERK_DT) > 1.0) hi *= 2.0;
+    while (hi < cap && jerk_ratio(plan, j, hi, VEER_JERK_DT) > VEER_JERK_AIM) hi *= 2.0;
+    if (hi >= cap) {
+        jerk_ratio(plan, j, 0.0, VEER_JERK_DT);
+        return -1.0;
+    }
     double lo = hi > 0.02 ? 0.5 * hi : 0.0;
     while (hi - lo > 0.02 * hi) {
         double mid = 0.5 * (lo + hi);
-        if (jerk_ratio(plan, j, mid, VEER_JERK_DT) > 1.0)
+        if (jerk_ratio(plan, j, mid, VEER_JERK_DT) > VEER_JERK_AIM)
             lo = mid;
         else
             hi = mid;
     }
     /* confirm at the checking step of the tests and users (1 ms) */
-    for (int it = 0; it < 20 && jerk_ratio(plan, j, hi, 1e-3) > 1.0; it++) hi *= 1.05;
+    for (int it = 0; it < 20 && jerk_ratio(plan, j, hi, 1e-3) > VEER_JERK_AIM; it++) hi *= 1.05;
     jerk_ratio(plan, j, hi, 1e-3); /* leaves tau = hi */
     veer_check_report r;
     memset(&r, 0, sizeof r);

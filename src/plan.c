@@ -382,8 +382,9 @@ veer_status veer__shape_segment(veer_plan *plan, int j, const veer_limits *lim, 
     if (!veer__has_jerk_limit(plan) || x_start > 0.0) return VEER_OK;
     double g = 1.0;
     for (int it = 0; it < 40; it++) {
-        if (veer__jerk_window(plan, j) <= 1.005) return VEER_OK;
-        g *= 0.97;
+        double worst = veer__jerk_window(plan, j);
+        if (worst >= 0.0 && worst <= 1.005) return VEER_OK;
+        g *= worst < 0.0 ? 0.85 : 0.97; /* jerk from geometry falls with the cube of speed */
         veer_limits sc = scaled_limits(lim, g);
         veer_row_ctx ctx;
         veer__row_ctx_init(&ctx, &plan->drive, &sc, &plan->options);
