@@ -456,39 +456,45 @@ static veer_status start_state(veer_plan *plan, double *x_start, veer_diag *diag
  * rotation passes close to the module), or its steer-rate bound
  * w^2 / phi'^2 changes by more than 10 % while it could bind (within 1.5
  * times the body-speed and wheel-speed bounds there). */
+/* 2: a module's direction turns more than 15 degrees (steer continuity
+ * needs points there); 1: only its steer-rate bound changes more than 10 %
+ * while it could bind; 0: neither. */
 static int needs_points(const veer_plan *plan, const veer_point_kin *pa, const veer_point_kin *pb) {
     static const double c2 = 0.9330127018922193; /* cos^2(15 degrees) */
     const veer_drive_def *d = &plan->drive;
+    int need = 0;
     for (int i = 0; i < plan->module_count; i++) {
         if (d->modules[i].out) continue;
         double va[2], vb[2];
         double ra = steer_slope(d, i, pa->xi, pa->dxi, va), rb = steer_slope(d, i, pb->xi, pb->dxi, vb);
         double a2 = va[0] * va[0] + va[1] * va[1], b2 = vb[0] * vb[0] + vb[1] * vb[1], dot = va[0] * vb[0] + va[1] * vb[1];
         if (a2 < 1e-18 || b2 < 1e-18) continue;
-        if (dot < 0.0 || dot * dot < c2 * a2 * b2) return 1;
+        if (dot < 0.0 || dot * dot < c2 * a2 * b2) return 2;
         const veer_module_limits *ml = &plan->limits.modules[i];
         double hi = fmax(ra, rb), lo = fmin(ra, rb);
-        if (!isfinite(ml->steer_rate) || !(hi > 0.0) || hi * hi <= 1.1 * lo * lo) continue;
+        if (need || !isfinite(ml->steer_rate) || !(hi > 0.0) || hi * hi <= 1.1 * lo * lo) continue;
         const veer_point_kin *pk = ra > rb ? pa : pb;
         double sp = hypot(pk->dq[0], pk->dq[1]), v = sqrt(ra > rb ? a2 : b2);
         double other = VEER_UNLIMITED;
         if (isfinite(plan->limits.body_speed) && sp > 0.0) other = plan->limits.body_speed / sp;
         if (isfinite(ml->wheel_rate) && v > 0.0) other = fmin(other, ml->wheel_rate * d->wheel_radius / v);
-        if (ml->steer_rate / hi < 1.5 * other) return 1;
+        if (ml->steer_rate / hi < 1.5 * other) need = 1;
     }
-    return 0;
+    return need;
 }
 
 /* Grid points to add between sa and sb (pa, pb: the path there): bisection
- * while needs_points says so, writing the new points in order. *budget
- * bounds the total. */
+ * while needs_points says so, writing the new points in order. budget[0]
+ * bounds the points added for steer continuity, budget[1] those for the
+ * steer-rate bound. */
 static int refine(const veer_plan *plan, int seg, double sa, const veer_point_kin *pa, double sb,
-                  const veer_point_kin *pb, int depth, int *budget, double **out) {
-    if (depth >= 24 || *budget <= 0 || !needs_points(plan, pa, pb)) return 0;
+                  const veer_point_kin *pb, int depth, int budget[2], double **out) {
+    int need = depth < 24 ? needs_points(plan, pa, pb) : 0;
+    if (need == 0 || budget[need == 2 ? 0 : 1] <= 0) return 0;
     double sm = 0.5 * (sa + sb);
     veer_point_kin pm;
     veer__point_kin(&plan->path, seg, sm, &pm);
-    (*budget)--;
+    budget[need == 2 ? 0 : 1]--;
     int n = refine(plan, seg, sa, pa, sm, &pm, depth + 1, budget, out);
     *(*out)++ = sm;
     return n + 1 + refine(plan, seg, sm, &pm, sb, pb, depth + 1, budget, out);
@@ -498,10 +504,11 @@ static int refine(const veer_plan *plan, int seg, double sa, const veer_point_ki
  * points where a module's direction or its steer-rate bound changes fast
  * (an ICR passing close to it), so steer angles, their rates and the
  * steer-rate bound are resolved there. out has room for the pieces' points
- * plus grid_points / 4 more; returns the number of points written. */
+ * plus 4.25 grid_points more; returns the number of points written. */
 static int grid_points(const veer_plan *plan, const int *intervals, double *out, int *seg_first) {
     const veer_path *path = &plan->path;
-    int n = 0, budget = plan->options.grid_points / 4; /* refinement adds at most a quarter more points */
+    /* at most 4 grid_points more for steer continuity, a quarter for the steer-rate bound */
+    int n = 0, budget[2] = {4 * plan->options.grid_points, plan->options.grid_points / 4};
     for (int j = 0; j < path->segment_count; j++) {
         const veer_path_segment *ps = &path->segments[j];
         if (seg_first) seg_first[j] = n;
@@ -518,7 +525,7 @@ static int grid_points(const veer_plan *plan, const int *intervals, double *out,
                                 : pc->s0 + pc->len * i / intervals[p];
                 if (plan->steered) {
                     veer__point_kin(path, j, sn, &pk);
-                    n += refine(plan, j, prev, &pprev, sn, &pk, 0, &budget, &out);
+                    n += refine(plan, j, prev, &pprev, sn, &pk, 0, budget, &out);
                     pprev = pk;
                 }
                 *out++ = sn;
@@ -566,7 +573,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     grid_layout(path, plan->options.grid_points, intervals);
     int base = path->segment_count;
     for (int p = 0; p < path->piece_count; p++) base += intervals[p];
-    size_t grid_room = (size_t)(base + plan->options.grid_points) * sizeof(double);
+    size_t grid_room = (size_t)(base + 4 * plan->options.grid_points + plan->options.grid_points / 4 + 1) * sizeof(double);
     double *grid = veer__alloc(grid_room);
     if (!grid) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
     int n = grid_points(plan, intervals, grid, first);
