@@ -15,6 +15,8 @@
 #   VEER_SKIP_DEPS=1 do not check or install Debian packages
 #   VEER_CLANG=0     skip the clang -Werror build
 #   VEER_BENCH=1     run examples/bench_plan after the tests
+#   VEER_HARDEN=0    skip the hardening stages (sanitize, valgrind, fuzz)
+#   VEER_FUZZ_SECONDS  seconds of fuzzing per target (default 20; three targets)
 #   VEER_KEEP_TMP=1  keep the temporary install prefix and print where it is
 #
 # Each stage is one function below; add a stage by writing a function and a
@@ -34,7 +36,7 @@ BENCH_TIMEOUT=600         # s for the benchmark
 # Debian 12 packages the build, the tests and the later stages need.
 DEBIAN_PACKAGES=(build-essential cmake pkg-config clang libcriterion-dev nanopb libnanopb-dev
     protobuf-compiler libsodium-dev python3-protobuf python3-numpy python3-scipy
-    python3-matplotlib python3-pytest python3-shapely valgrind)
+    python3-matplotlib python3-pytest python3-shapely valgrind libclang-rt-dev)
 
 # Warnings the consumer example is compiled with by hand (the library's own
 # set lives in CMakeLists.txt).
@@ -303,6 +305,117 @@ stage_clang() {
     note "$(clang --version | head -n 1)"
 }
 
+# ---- hardening (issue 7): sanitizers, valgrind, fuzzing ----
+# The whole C suite built with AddressSanitizer and UndefinedBehaviorSanitizer
+# (gcc), the normal build's suite under valgrind memcheck, and a bounded run of
+# each libFuzzer target (tests/fuzz/README.md has the longer run).
+
+SANITIZE_FLAGS="-fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer"
+VALGRIND_PROPERTY_CASES=100 # of test_property's 2000 cases: memcheck is ~40 times slower
+FUZZ_TARGETS=(fuzz_plan_request fuzz_plan_decode fuzz_link_receiver)
+
+stage_sanitize() {
+    [[ ${VEER_HARDEN:-1} == 0 ]] && skip "VEER_HARDEN=0"
+    local dir=$BUILD_DIR/sanitize out=$TMP_ROOT/sanitize.out rc=0 reports
+    fresh_dir "$dir"
+    # shellcheck disable=SC2086 # VEER_CMAKE_ARGS is a list of words on purpose
+    cmake -S "$REPO" -B "$dir" -DVEER_WERROR=ON -DVEER_BUILD_EXAMPLES=OFF -DCMAKE_C_FLAGS="$SANITIZE_FLAGS" \
+        -DCMAKE_EXE_LINKER_FLAGS="-fsanitize=address,undefined" \
+        -DCMAKE_SHARED_LINKER_FLAGS="-fsanitize=address,undefined" ${VEER_CMAKE_ARGS:-}
+    cmake --build "$dir" -j "$JOBS"
+    (cd "$dir" && ASAN_OPTIONS=detect_leaks=1:halt_on_error=1:detect_stack_use_after_return=1 \
+        UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 \
+        ctest --output-on-failure --no-tests=error -j "$JOBS" --timeout "$CTEST_TIMEOUT") 2>&1 |
+        tee "$out" || rc=${PIPESTATUS[0]}
+    reports=$(grep -cE 'ERROR: (AddressSanitizer|LeakSanitizer)|runtime error:' "$out" || true)
+    note "$(cc --version | head -n 1 | sed 's/ (.*)//'): $reports sanitizer reports; $(grep -E 'tests passed' "$out" | tail -n 1)"
+    ((reports == 0)) || return 1
+    return "$rc"
+}
+
+# One suite under memcheck. Criterion runs each test in a child process whose
+# exit code does not reach its verdict, so every process writes its own log
+# and a log with errors fails the suite. No suppressions.
+valgrind_suite() {
+    local exe=$1 logs=$2 name rc=0
+    name=$(basename "$exe")
+    VEER_PROPERTY_CASES=$VALGRIND_PROPERTY_CASES timeout "$CTEST_TIMEOUT" valgrind --error-exitcode=99 \
+        --leak-check=full --errors-for-leak-kinds=definite,indirect --show-leak-kinds=definite,indirect \
+        --track-origins=yes --trace-children=yes --log-file="$logs/$name.%p.log" "$exe" --jobs 1 \
+        >"$logs/$name.out" 2>&1 || rc=$?
+    echo "$rc" >"$logs/$name.rc"
+}
+
+stage_valgrind() {
+    [[ ${VEER_HARDEN:-1} == 0 ]] && skip "VEER_HARDEN=0"
+    command -v valgrind >/dev/null 2>&1 || { note "valgrind is not installed"; return 1; }
+    local logs=$BUILD_DIR/valgrind exe name bad running=0 memfail=() unfinished=()
+    rm -rf "$logs" && mkdir -p "$logs"
+    local suites=("$BUILD_DIR"/tests/test_*)
+    [[ -x ${suites[0]} ]] || { note "no test executables in $BUILD_DIR/tests"; return 1; }
+    for exe in "${suites[@]}"; do
+        valgrind_suite "$exe" "$logs" &
+        running=$((running + 1))
+        if ((running >= JOBS)); then
+            wait -n || true
+            running=$((running - 1))
+        fi
+    done
+    wait || true
+    for exe in "${suites[@]}"; do
+        name=$(basename "$exe")
+        bad=$(grep -l 'ERROR SUMMARY: [1-9]' "$logs/$name".*.log 2>/dev/null | head -n 1 || true)
+        if [[ -n $bad || $(cat "$logs/$name.rc" 2>/dev/null) == 99 ]]; then
+            memfail+=("$name")
+            log "valgrind: $name: memory errors; the first, from $bad:"
+            grep -A 14 -m 1 -E '^==[0-9]+== (Invalid|Conditional|Use of|Mismatched|Syscall|[0-9,]+ \(?[0-9,]* ?\)?bytes)' "$bad" || true
+        fi
+        if ! grep -q 'Synthesis: Tested' "$logs/$name.out"; then
+            unfinished+=("$name")
+            log "valgrind: $name did not finish (see $logs/$name.out)"
+        fi
+        log "valgrind: $name: $(grep -h 'Synthesis' "$logs/$name.out" | sed 's/.*Synthesis: //')"
+    done
+    note "${#suites[@]} suites under memcheck (test_property: $VALGRIND_PROPERTY_CASES cases): ${#memfail[@]} with memory errors${memfail:+ (${memfail[*]})}, ${#unfinished[@]} unfinished${unfinished:+ (${unfinished[*]})}"
+    ((${#memfail[@]} == 0 && ${#unfinished[@]} == 0))
+}
+
+stage_fuzz() {
+    [[ ${VEER_HARDEN:-1} == 0 ]] && skip "VEER_HARDEN=0"
+    command -v clang >/dev/null 2>&1 || { note "clang is not installed"; return 1; }
+    local dir=$BUILD_DIR/fuzz art=$BUILD_DIR/fuzz-artifacts secs=${VEER_FUZZ_SECONDS:-20}
+    local t f rc open=() crashed=() stats=""
+    fresh_dir "$dir"
+    rm -rf "$art" && mkdir -p "$art"
+    CC=clang cmake -S "$REPO" -B "$dir" -DVEER_FUZZ=ON -DVEER_BUILD_TESTS=OFF -DVEER_BUILD_EXAMPLES=OFF -DVEER_WERROR=ON
+    cmake --build "$dir" -j "$JOBS"
+    for t in "${FUZZ_TARGETS[@]}"; do
+        # Open findings (tests/fuzz/findings/<target>/) fail until they are fixed.
+        for f in "$REPO/tests/fuzz/findings/$t"/*; do
+            [[ -f $f ]] || continue
+            if ! "$dir/tests/fuzz/$t" "$f" >"$art/$t.$(basename "$f").log" 2>&1; then
+                open+=("$t/$(basename "$f")")
+                log "fuzz: open finding $t/$(basename "$f") still fails: $(grep -m 1 -E 'fuzz finding|runtime error|ERROR:' "$art/$t.$(basename "$f").log" || true)"
+            fi
+        done
+        # A bounded run from the committed seeds; new inputs stay in the build tree.
+        mkdir -p "$dir/corpus/$t"
+        rc=0
+        (cd "$art" && "$dir/tests/fuzz/$t" -max_total_time="$secs" -timeout=10 -rss_limit_mb=2048 \
+            -artifact_prefix="$art/$t-" -print_final_stats=1 "$dir/corpus/$t" "$REPO/tests/fuzz/corpus/$t") \
+            >"$art/$t.log" 2>&1 || rc=$?
+        grep -E '^#[0-9]+ +DONE|fuzz finding|runtime error|ERROR: ' "$art/$t.log" | head -n 5 || true
+        stats+=" $t $(grep -oE 'stat::number_of_executed_units: [0-9]+' "$art/$t.log" | awk '{print $2}') runs;"
+        if ((rc != 0)); then
+            crashed+=("$t")
+            log "fuzz: $t found a failing input: $(find "$art" -name "$t-*" | head -n 1)"
+        fi
+    done
+    note "$secs s per target:$stats new findings: ${#crashed[@]}${crashed:+ (${crashed[*]})}; open findings still failing: ${#open[@]}"
+    ((${#crashed[@]} == 0 && ${#open[@]} == 0))
+}
+# ---- end hardening ----
+
 stage_bench() {
     [[ ${VEER_BENCH:-0} == 1 ]] || skip "set VEER_BENCH=1 to run"
     local exe=$BUILD_DIR/examples/bench_plan
@@ -377,6 +490,9 @@ main() {
     run_stage consumer-cmake stage_consumer_cmake install
     run_stage consumer-pkgconfig stage_consumer_pkgconfig install
     run_stage clang-werror stage_clang build
+    run_stage sanitize stage_sanitize deps
+    run_stage valgrind stage_valgrind build
+    run_stage fuzz stage_fuzz deps
     run_stage bench stage_bench build
     run_stage pytest stage_pytest build
     summary
