@@ -1,0 +1,99 @@
+#!/usr/bin/env bash
+# veer's benchmark command: builds the library (its own build directory,
+# RelWithDebInfo = -O2, with -ffunction-sections -fdata-sections for the size
+# figures) and the benchmark programs, then prints markdown tables:
+#   planning time against scipy's HiGHS on the identical LP (bench/bench.py lp),
+#   scaling with grid size, route length and module count (bench_cart scaling),
+#   cart side: player step time, stack, memory, code and static RAM size,
+#   encoded plan size and airtime against the dense 50 Hz setpoint stream,
+#   the time a user saves against a careful conventional plan.
+#
+#   bench/run.sh            print the tables
+#   bench/run.sh --write    also write them to bench/RESULTS.md
+#
+# Environment: VEER_BENCH_BUILD (default /tmp/veer-bench), VEER_BENCH_RATE
+# (radio air rate in bit/s for the airtime, default 9600).
+# Figures are wall-clock on this machine; run it on an otherwise idle one.
+set -euo pipefail
+
+REPO=$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)
+BUILD=${VEER_BENCH_BUILD:-/tmp/veer-bench}
+RATE=${VEER_BENCH_RATE:-9600}
+PYTHON=/usr/bin/python3 # Debian's python3, with numpy and scipy
+WRITE=0
+[[ ${1:-} == --write ]] && WRITE=1
+
+cmake -S "$REPO" -B "$BUILD" -DCMAKE_BUILD_TYPE=RelWithDebInfo -DVEER_BUILD_TESTS=OFF -DVEER_BUILD_EXAMPLES=OFF \
+    -DCMAKE_C_FLAGS="-ffunction-sections -fdata-sections" >"$BUILD.cmake.log" 2>&1 ||
+    { cat "$BUILD.cmake.log"; exit 1; }
+cmake --build "$BUILD" -j "$(nproc)" >"$BUILD.build.log" 2>&1 || { tail -n 40 "$BUILD.build.log"; exit 1; }
+NANOPB_INC=$(sed -n 's/^VEER_NANOPB_INCLUDE_DIR:PATH=//p' "$BUILD/CMakeCache.txt")
+cc -std=c11 -O2 -Wall -Wextra -Werror -I"$REPO/include" -I"$REPO/src" -I"$REPO/examples" -I"$BUILD/pb" \
+    -I"$NANOPB_INC" "$REPO/bench/bench_cart.c" "$BUILD/libveer.a" -lsodium -lm -lpthread -o "$BUILD/bench_cart"
+
+OUT=$(mktemp -d)
+trap 'rm -rf "$OUT"' EXIT
+# Each part into a file of its own; "summary KEY VALUE ..." lines feed the targets table.
+"$PYTHON" "$REPO/bench/bench.py" lp "$BUILD" >"$OUT/lp.md"
+"$BUILD/bench_cart" scaling >"$OUT/scaling.md"
+"$BUILD/bench_cart" player >"$OUT/player.md"
+"$PYTHON" "$REPO/bench/size.py" "$BUILD" >"$OUT/size.md"
+"$BUILD/bench_cart" stack >"$OUT/stack.txt"
+"$BUILD/bench_cart" wire "$RATE" >"$OUT/wire.md"
+"$PYTHON" "$REPO/bench/bench.py" conventional "$BUILD" >"$OUT/conventional.md"
+
+fig() { # fig KEY: the value after KEY on a summary line (or in stack.txt)
+    cat "$OUT"/*.md "$OUT/stack.txt" | awk -v k="$1" '{for (i = 1; i < NF; i++) if ($i == k) {print $(i + 1); exit}}'
+}
+verdict() { # verdict OK?: met / missed
+    if [[ $1 == 1 ]]; then echo met; else echo "**missed**"; fi
+}
+ratio=$(fig lp_ratio_1000) diff=$(fig lp_diff_1000) scale=$(fig scale_16000_over_1000) step=$(fig step_mean_us)
+p99=$(fig step_p99_us) code=$(fig code_bytes) ram=$(fig ram_bytes) sodium=$(fig sodium_code_bytes)
+stack=$(fig stack_high_water_bytes) mem=$(fig player_size_bytes)
+ok() { awk "BEGIN {print ($1) ? 1 : 0}"; }
+
+{
+    echo "# veer benchmark results"
+    echo
+    echo "Made by \`bench/run.sh --write\` on $(date -u +%Y-%m-%d): veer $(sed -n 's/.*VEER_VERSION_STRING "\(.*\)".*/\1/p' "$REPO/include/veer/version.h")" \
+        "(commit $(git -C "$REPO" rev-parse --short HEAD 2>/dev/null || echo unknown)), $(cc --version | head -n 1 | sed 's/ (.*)//'), -O2," \
+        "$(lscpu 2>/dev/null | sed -n 's/^Model name: *//p' | head -n 1), $(nproc) cores."
+    echo "Regenerate: \`bench/run.sh --write\` (prints the same tables; needs Debian's python3-scipy)."
+    echo
+    echo "## Targets (issue 7)"
+    echo
+    echo "| target | measured | |"
+    echo "|---|---|---|"
+    echo "| at 1000 grid points, at least 200 times faster than HiGHS | $ratio times | $(verdict "$(ok "$ratio >= 200")") |"
+    echo "| ... with the duration within 0.2 % of the LP optimum | ${diff} % | $(verdict "$(ok "$diff <= 0.2 && $diff >= -0.2")") |"
+    echo "| time linear in N: 16000 grid points cost at most 20 times 1000 | $scale times | $(verdict "$(ok "$scale <= 20")") |"
+    echo "| player step under 1 us for a 4-module cart | mean $step us, 99th percentile $p99 us | $(verdict "$(ok "$step < 1")") |"
+    echo "| receiver + player + decoder under 48 KiB of code | $code B ($(awk "BEGIN {printf \"%.1f\", $code / 1024}") KiB), libsodium's HMAC apart: $sodium B | $(verdict "$(ok "$code < 49152")") |"
+    echo "| ... and under 16 KiB of RAM | static $ram B; stack high-water $stack B; player memory (caller's) $mem B | $(verdict "$(ok "$ram + $stack + $mem < 16384")") (static RAM alone: $(verdict "$(ok "$ram < 16384")")) |"
+    echo
+    for part in lp scaling player size; do
+        sed '/^summary /d' "$OUT/$part.md"
+        echo
+    done
+    echo "### Cart-side memory"
+    echo
+    awk '
+        /stack_high_water_bytes/ {printf "- stack high-water mark of the cart loop (frames, 30 s of 50 Hz steps, reports): %d B (%.1f KiB)\n", $2, $2 / 1024}
+        /player_size_bytes/ {printf "- veer_player_size(): %d B (%.1f KiB), memory the caller gives the player (two plan workspaces and the receiver)\n", $2, $2 / 1024}
+        /receiver_size_bytes/ {printf "- veer_link_receiver_size(): %d B (%.1f KiB)\n", $2, $2 / 1024}
+        /plan_workspace_bytes/ {printf "- veer_plan_workspace_size(): %d B (%.1f KiB); veer_plan_sample_pb puts one on the stack\n", $2, $2 / 1024}' "$OUT/stack.txt"
+    echo
+    cat "$OUT/wire.md"
+    echo
+    echo "Airtime is bytes x 8 / $RATE bit/s (an assumed sub-GHz telemetry air rate), frames included, no"
+    echo "retransmissions. The dense streams are cut into frames with the plan's per-frame overhead."
+    echo
+    sed '/^summary /d' "$OUT/conventional.md"
+} >"$OUT/RESULTS.md"
+cat "$OUT/RESULTS.md"
+
+if ((WRITE)); then
+    cp "$OUT/RESULTS.md" "$REPO/bench/RESULTS.md"
+    echo "wrote $REPO/bench/RESULTS.md" >&2
+fi

@@ -1,0 +1,119 @@
+"""Cart-side code and static RAM: links bench/cart_min.c (the player with its
+receiver and plan decoder) against libveer.a with --gc-sections and sums, from
+the GNU ld map, the input sections that made it into the program, by the
+archive member they came from.
+
+  /usr/bin/python3 bench/size.py BUILD_DIR [CC]
+
+Code is .text* and .rodata* (what goes to flash), static RAM .data* and
+.bss*. libc and libm are linked dynamically here and not counted; libsodium
+(the HMAC-SHA-256 of the link) is counted apart. The library must be built
+with -ffunction-sections -fdata-sections (bench/run.sh does) so that unused
+functions drop out.
+"""
+
+import collections
+import os
+import re
+import subprocess
+import sys
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+REPO = os.path.dirname(HERE)
+
+LINE = re.compile(r"^\s*(\S+)?\s+0x([0-9a-f]+)\s+0x([0-9a-f]+)\s+(\S+)$")
+
+
+def kind(section):
+    for prefix, k in ((".text", "code"), (".rodata", "code"), (".data.rel.ro", "code"), (".data", "ram"),
+                      (".bss", "ram"), (".tbss", "ram"), (".tdata", "ram"), ("COMMON", "ram")):
+        if section.startswith(prefix):
+            return k
+    return None
+
+
+def origin(path):
+    m = re.search(r"([^/]+\.a)\(([^)]+)\)$", path)
+    if m:
+        return m.group(1), m.group(2)
+    return os.path.basename(path), os.path.basename(path)
+
+
+def link(build, cc, out):
+    mapfile = out + ".map"
+    cmd = [cc, "-std=c11", "-O2", "-ffunction-sections", "-fdata-sections", "-I", os.path.join(REPO, "include"),
+           os.path.join(HERE, "cart_min.c"), os.path.join(build, "libveer.a"), "-Wl,--gc-sections",
+           "-Wl,-Map=" + mapfile, "-Wl,-Bstatic", "-lsodium", "-Wl,-Bdynamic", "-lm", "-o", out]
+    subprocess.run(cmd, check=True)
+    return mapfile
+
+
+def parse(mapfile):
+    sizes = collections.defaultdict(lambda: collections.Counter())
+    section = None
+    in_map = False
+    with open(mapfile) as f:
+        for raw in f:
+            line = raw.rstrip("\n")
+            if line.startswith("Linker script and memory map"):
+                in_map = True
+                continue
+            if not in_map:
+                continue
+            if re.match(r"^ \S+$", line):  # a long section name on a line of its own
+                section = line.strip()
+                continue
+            m = LINE.match(line)
+            if not m or not line.startswith(" "):
+                continue
+            name = m.group(1) or section
+            section = None
+            if not name or not name.startswith((".", "COMMON")):
+                continue
+            k = kind(name)
+            size = int(m.group(3), 16)
+            if k is None or size == 0:
+                continue
+            archive, member = origin(m.group(4))
+            sizes[(archive, member)][k] += size
+    return sizes
+
+
+def main():
+    build = sys.argv[1]
+    cc = sys.argv[2] if len(sys.argv) > 2 else "cc"
+    out = os.path.join(build, "cart_min")
+    sizes = parse(link(build, cc, out))
+    veer = {k: v for k, v in sizes.items() if k[0] == "libveer.a"}
+    sodium = {k: v for k, v in sizes.items() if k[0] == "libsodium.a"}
+
+    def group(member):
+        if member.startswith("pb_"):
+            return "nanopb runtime"
+        if ".pb.c" in member:
+            return "generated messages (nanopb)"
+        return "veer"
+
+    print("### Cart-side code and static RAM (bench/cart_min.c linked with --gc-sections, %s)\n" % cc)
+    print("| object | code (text + rodata) B | static RAM (data + bss) B |\n|---|---|---|")
+    tot = collections.Counter()
+    for (a, mbr), c in sorted(veer.items(), key=lambda kv: -kv[1]["code"]):
+        print("| %s | %d | %d |" % (mbr.replace(".c.o", ".c"), c["code"], c["ram"]))
+        tot.update(c)
+    by = collections.defaultdict(collections.Counter)
+    for (a, mbr), c in veer.items():
+        by[group(mbr)].update(c)
+    print("| **veer + nanopb, total** | **%d (%.1f KiB)** | **%d (%.1f KiB)** |" % (
+        tot["code"], tot["code"] / 1024, tot["ram"], tot["ram"] / 1024))
+    st = collections.Counter()
+    for c in sodium.values():
+        st.update(c)
+    print("| libsodium (HMAC-SHA-256), apart | %d (%.1f KiB) | %d |" % (st["code"], st["code"] / 1024, st["ram"]))
+    print()
+    for g in ("veer", "nanopb runtime", "generated messages (nanopb)"):
+        print("- %s: %d B code, %d B static RAM" % (g, by[g]["code"], by[g]["ram"]))
+    print("\nsummary code_bytes %d ram_bytes %d sodium_code_bytes %d" % (tot["code"], tot["ram"], st["code"]))
+
+
+if __name__ == "__main__":
+    main()
