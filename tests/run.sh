@@ -349,7 +349,7 @@ valgrind_suite() {
 stage_valgrind() {
     [[ ${VEER_HARDEN:-1} == 0 ]] && skip "VEER_HARDEN=0"
     command -v valgrind >/dev/null 2>&1 || { note "valgrind is not installed"; return 1; }
-    local logs=$BUILD_DIR/valgrind exe name bad running=0 memfail=() unfinished=()
+    local logs=$BUILD_DIR/valgrind exe name bad line running=0 memfail=() unfinished=() slow=()
     rm -rf "$logs" && mkdir -p "$logs"
     local suites=("$BUILD_DIR"/tests/test_*)
     [[ -x ${suites[0]} ]] || { note "no test executables in $BUILD_DIR/tests"; return 1; }
@@ -374,9 +374,15 @@ stage_valgrind() {
             unfinished+=("$name")
             log "valgrind: $name did not finish (see $logs/$name.out)"
         fi
+        # A test that runs into its Criterion timeout under memcheck's slowdown
+        # is reported, not failed: memcheck saw everything it ran until then.
+        while read -r line; do
+            slow+=("$line")
+        done < <(sed -n 's/^\[FAIL\] \(.*\): Timed out.*/\1/p' "$logs/$name.out")
         log "valgrind: $name: $(grep -h 'Synthesis' "$logs/$name.out" | sed 's/.*Synthesis: //')"
     done
-    note "${#suites[@]} suites under memcheck (test_property: $VALGRIND_PROPERTY_CASES cases): ${#memfail[@]} with memory errors${memfail:+ (${memfail[*]})}, ${#unfinished[@]} unfinished${unfinished:+ (${unfinished[*]})}"
+    ((${#slow[@]} == 0)) || log "valgrind: timed out under memcheck (not counted as failures): ${slow[*]}"
+    note "${#suites[@]} suites under memcheck (test_property: $VALGRIND_PROPERTY_CASES cases): ${#memfail[@]} with memory errors${memfail:+ (${memfail[*]})}, ${#unfinished[@]} unfinished${unfinished:+ (${unfinished[*]})}, ${#slow[@]} tests timed out${slow:+ (${slow[*]})}"
     ((${#memfail[@]} == 0 && ${#unfinished[@]} == 0))
 }
 
