@@ -19,6 +19,7 @@ angles, timeline), not only the solve. Both are wall-clock on the same
 machine, one core each.
 """
 
+import importlib
 import json
 import math
 import os
@@ -91,8 +92,7 @@ def lp_rows(p, request):
 
 def veer_time(build, request, reps):
     """veer_plan_create's time on the request (bench_cart plan), in seconds."""
-    import veer.plan as vp
-
+    vp = importlib.import_module("veer.plan")  # the module, not the function veer.plan
     data = vp._request_bytes(request)
     with tempfile.NamedTemporaryFile(suffix=".pb", delete=False) as f:
         f.write(data)
