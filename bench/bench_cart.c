@@ -215,7 +215,7 @@ static int cmd_scaling(void) {
     printf("| grid points asked | grid points | rows | median ms | us per grid point | ns per row | "
            "cost / cost at 1000 |\n|---|---|---|---|---|---|---|\n");
     if (kestrel_demo(&d, &l, &r) != VEER_OK) DIE("demo");
-    const int sizes[] = {250, 1000, 4000, 16000, 64000};
+    const int sizes[] = {250, 1000, 4000, 16000, 32000};
     plan_time pts[5];
     for (int z = 0; z < 5; z++) {
         veer_plan_options o = veer_default_plan_options();

@@ -3,7 +3,7 @@ receiver and plan decoder) against libveer.a with --gc-sections and sums, from
 the GNU ld map, the input sections that made it into the program, by the
 archive member they came from.
 
-  /usr/bin/python3 bench/size.py BUILD_DIR [CC]
+  /usr/bin/python3 bench/size.py BUILD_DIR [CC [OPT]]
 
 Code is .text* and .rodata* (what goes to flash), static RAM .data* and
 .bss*. libc and libm are linked dynamically here and not counted; libsodium
@@ -39,9 +39,9 @@ def origin(path):
     return os.path.basename(path), os.path.basename(path)
 
 
-def link(build, cc, out):
+def link(build, cc, opt, out):
     mapfile = out + ".map"
-    cmd = [cc, "-std=c11", "-O2", "-ffunction-sections", "-fdata-sections", "-I", os.path.join(REPO, "include"),
+    cmd = [cc, "-std=c11", opt, "-ffunction-sections", "-fdata-sections", "-I", os.path.join(REPO, "include"),
            os.path.join(HERE, "cart_min.c"), os.path.join(build, "libveer.a"), "-Wl,--gc-sections",
            "-Wl,-Map=" + mapfile, "-Wl,-Bstatic", "-lsodium", "-Wl,-Bdynamic", "-lm", "-o", out]
     subprocess.run(cmd, check=True)
@@ -82,8 +82,9 @@ def parse(mapfile):
 def main():
     build = sys.argv[1]
     cc = sys.argv[2] if len(sys.argv) > 2 else "cc"
+    opt = sys.argv[3] if len(sys.argv) > 3 else "-O2"
     out = os.path.join(build, "cart_min")
-    sizes = parse(link(build, cc, out))
+    sizes = parse(link(build, cc, opt, out))
     veer = {k: v for k, v in sizes.items() if k[0] == "libveer.a"}
     sodium = {k: v for k, v in sizes.items() if k[0] == "libsodium.a"}
 
@@ -94,7 +95,8 @@ def main():
             return "generated messages (nanopb)"
         return "veer"
 
-    print("### Cart-side code and static RAM (bench/cart_min.c linked with --gc-sections, %s)\n" % cc)
+    print("### Cart-side code and static RAM (bench/cart_min.c linked with --gc-sections; %s, library and "
+          "program at %s)\n" % (cc, opt))
     print("| object | code (text + rodata) B | static RAM (data + bss) B |\n|---|---|---|")
     tot = collections.Counter()
     for (a, mbr), c in sorted(veer.items(), key=lambda kv: -kv[1]["code"]):
@@ -112,7 +114,9 @@ def main():
     print()
     for g in ("veer", "nanopb runtime", "generated messages (nanopb)"):
         print("- %s: %d B code, %d B static RAM" % (g, by[g]["code"], by[g]["ram"]))
-    print("\nsummary code_bytes %d ram_bytes %d sodium_code_bytes %d" % (tot["code"], tot["ram"], st["code"]))
+    tag = "" if opt == "-O2" else "_" + opt.lstrip("-")
+    print("\nsummary code_bytes%s %d ram_bytes%s %d sodium_code_bytes%s %d" % (tag, tot["code"], tag, tot["ram"], tag,
+                                                                         st["code"]))
 
 
 if __name__ == "__main__":
