@@ -291,7 +291,8 @@ static void reports(run *u) {
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size);
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size) {
     fuzz_reader r = {data, size, 0};
-    static const int frame_sizes[4] = {VEER_LINK_FRAME_DEFAULT, VEER_LINK_FRAME_MIN, 128, VEER_LINK_FRAME_MAX};
+    static const int frame_sizes[4] = {VEER_LINK_FRAME_DEFAULT, VEER_LINK_FRAME_MIN, (VEER_LINK_FRAME_MIN + VEER_LINK_FRAME_DEFAULT) / 2,
+                                       VEER_LINK_FRAME_MAX};
     cart.link.frame_size = frame_sizes[fuzz_u8(&r) % 4];
     run u;
     memset(&u, 0, sizeof u);
