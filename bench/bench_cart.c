@@ -223,7 +223,7 @@ static int cmd_scaling(void) {
         pts[z] = time_plans(&d, &l, &r, &o, sizes[z] > 4000 ? 15 : 101, 20.0);
     }
     for (int z = 0; z < 5; z++)
-        printf("| %d | %d | %ld | %.3f | %.3f | %.2f | %.1f (points x%.0f) |\n", sizes[z], pts[z].grid, pts[z].rows,
+        printf("| %d | %d | %ld | %.3f | %.3f | %.2f | %.1f (%.2gx the points) |\n", sizes[z], pts[z].grid, pts[z].rows,
                pts[z].median * 1e3, pts[z].median * 1e6 / pts[z].grid, pts[z].median * 1e9 / (double)pts[z].rows,
                pts[z].median / pts[1].median, (double)pts[z].grid / pts[1].grid);
     printf("\nsummary scale_16000_over_1000 %.2f\n", pts[3].median / pts[1].median);
