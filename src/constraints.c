@@ -239,6 +239,8 @@ static veer_status check_one(veer_diag *diag, double v, veer_limit_id id, int al
     if (isnan(v) || (!allow_any_sign && v < 0.0))
         return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, id,
                           "limit %s must be a positive number or unset (+inf), got %g", name, v);
+    if (!allow_any_sign && v > 0.0 && v < 1e-9) /* a denormal limit gave infinite durations (fuzz finding) */
+        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, id, "limit %s is implausibly small (%g)", name, v);
     if (!allow_any_sign && v == 0.0)
         return veer__fail(diag, VEER_ERR_INFEASIBLE, -1, -1, -1, -1.0, id,
                           "limit %s is zero: the cart cannot move within it", name);
