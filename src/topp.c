@@ -64,6 +64,31 @@ static void stage_build(const veer_topp_problem *pr, int k, double hi_next, stag
         }
 }
 
+/* The upper bound U(x) of stage k alone, straight from its rows: all the
+ * forward pass needs (x lies in the stage's controllable set already, so
+ * neither the lower bounds nor the x-only rows can cut it). The same
+ * arithmetic as stage_add and stage_eval, without building the stage. */
+static inline void upper_row(double a, double b, double c, double x, double *U) {
+    if (!(a > 0.0) || x_only(a, b, c)) return;
+    double v = c / a + (-b / a) * x;
+    if (v < *U) *U = v;
+}
+
+static double stage_upper(const veer_topp_problem *pr, int k, double hi_next, double x) {
+    const veer_row *r0 = pr->rows + (size_t)k * (size_t)pr->m;
+    const veer_row *r1 = pr->rows + (size_t)(k + 1) * (size_t)pr->m;
+    double d2 = 2.0 * (pr->s[k + 1] - pr->s[k]);
+    double U = hi_next / d2 + (-1.0 / d2) * x;
+    for (int j = 0; j < pr->row_count[k]; j++) upper_row(r0[j].a, r0[j].b, r0[j].c, x, &U);
+    for (int j = 0; j < pr->row_count[k + 1]; j++) upper_row(r1[j].a + d2 * r1[j].b, r1[j].b, r1[j].c, x, &U);
+    if (pr->extra)
+        for (int j = 0; j < pr->extra_n[k]; j++) {
+            const veer_row *e = &pr->extra[pr->extra_at[k] + j];
+            upper_row(e->a, e->b, e->c, x, &U);
+        }
+    return U;
+}
+
 /* U(x) and L(x), and the bounds that define them (ties go to the steeper
  * piece to the right: the right derivative of F). */
 static void stage_eval(const stage *st, double x, double *U, const bound **bu, double *L, const bound **bl) {
@@ -133,9 +158,7 @@ veer_status veer__topp_solve(const veer_topp_problem *p, double x_start, double 
     /* Forward pass: the greatest acceleration that stays controllable. */
     x[0] = x_start;
     for (int k = 0; k < n - 1; k++) {
-        stage_build(p, k, K[k + 1], &st);
-        double U, L;
-        stage_eval(&st, x[k], &U, NULL, &L, NULL);
+        double U = stage_upper(p, k, K[k + 1], x[k]);
         double next = x[k] + 2.0 * (p->s[k + 1] - p->s[k]) * U;
         if (next > K[k + 1]) next = K[k + 1];
         x[k + 1] = next > 0.0 ? next : 0.0;
