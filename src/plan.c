@@ -107,12 +107,13 @@ static void apply_speed_caps(const veer_plan *plan, int j, int n, const double *
     double prev = VEER_UNLIMITED, cur, next;
     int zprev = -1, zcur = -1, znext = -1;
     veer_point_kin pk;
-    veer__point_kin(&plan->path, j, s[0], &pk);
+    const veer_point_kin *kin = ws->kin ? ws->kin + plan->segs[j].k0 : NULL;
+    if (kin) pk = kin[0]; else veer__point_kin(&plan->path, j, s[0], &pk);
     cur = plan->cap.cap(plan->cap.user, pk.q, &zcur);
     for (int k = 0; k < n; k++) {
         double sp2 = pk.dq[0] * pk.dq[0] + pk.dq[1] * pk.dq[1];
         if (k + 1 < n) {
-            veer__point_kin(&plan->path, j, s[k + 1], &pk);
+            if (kin) pk = kin[k + 1]; else veer__point_kin(&plan->path, j, s[k + 1], &pk);
             next = plan->cap.cap(plan->cap.user, pk.q, &znext);
         } else {
             next = VEER_UNLIMITED;
@@ -282,16 +283,18 @@ veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx,
     double *s = plan->s + sg->k0, *x = plan->x + sg->k0;
     int passes = has_motor_curve(plan) ? 3 : 1;
     veer_topp_problem p = {n, s, ws->xmax, ws->xmax_id, ws->rows, ws->row_count, m, NULL, NULL, NULL};
+    const veer_point_kin *kin = ws->kin ? ws->kin + sg->k0 : NULL;
     for (int pass = 0; pass < passes; pass++) {
         ws->extra_used = 0;
         memset(ws->extra_n, 0, (size_t)n * sizeof *ws->extra_n);
         p.extra = NULL;
         for (int k = 0; k < n; k++) {
-            veer_point_kin pk;
-            veer__point_kin(&plan->path, j, s[k], &pk);
-            memcpy(ws->xi + 3 * k, pk.xi, sizeof pk.xi);
-            memcpy(ws->dxi + 3 * k, pk.dxi, sizeof pk.dxi);
-            int c = veer__point_rows(ctx, &pk, pass ? x[k] : 0.0, ws->rows + (size_t)k * (size_t)m, &ws->xmax[k],
+            veer_point_kin own;
+            const veer_point_kin *pk = kin ? &kin[k] : &own;
+            if (!kin) veer__point_kin(&plan->path, j, s[k], &own);
+            memcpy(ws->xi + 3 * k, pk->xi, sizeof pk->xi);
+            memcpy(ws->dxi + 3 * k, pk->dxi, sizeof pk->dxi);
+            int c = veer__point_rows(ctx, pk, pass ? x[k] : 0.0, ws->rows + (size_t)k * (size_t)m, &ws->xmax[k],
                                      &ws->xmax_id[k]);
             if (c < 0 && ws->xmax_id[k].kind == VEER_LIMIT_MODULE_OUT)
                 return veer__fail(diag, VEER_ERR_INFEASIBLE, ps->leg, ps->waypoint, sg->k0 + k, s[k], ws->xmax_id[k],
@@ -488,24 +491,27 @@ static int needs_points(const veer_plan *plan, const veer_point_kin *pa, const v
  * bounds the points added for steer continuity, budget[1] those for the
  * steer-rate bound. */
 static int refine(const veer_plan *plan, int seg, double sa, const veer_point_kin *pa, double sb,
-                  const veer_point_kin *pb, int depth, int budget[2], double **out) {
+                  const veer_point_kin *pb, int depth, int budget[2], double **out, veer_point_kin **kin) {
     int need = depth < 24 ? needs_points(plan, pa, pb) : 0;
     if (need == 0 || budget[need == 2 ? 0 : 1] <= 0) return 0;
     double sm = 0.5 * (sa + sb);
     veer_point_kin pm;
     veer__point_kin(&plan->path, seg, sm, &pm);
     budget[need == 2 ? 0 : 1]--;
-    int n = refine(plan, seg, sa, pa, sm, &pm, depth + 1, budget, out);
+    int n = refine(plan, seg, sa, pa, sm, &pm, depth + 1, budget, out, kin);
     *(*out)++ = sm;
-    return n + 1 + refine(plan, seg, sm, &pm, sb, pb, depth + 1, budget, out);
+    *(*kin)++ = pm;
+    return n + 1 + refine(plan, seg, sm, &pm, sb, pb, depth + 1, budget, out, kin);
 }
 
 /* The grid: the pieces' points (grid_layout), plus, for steered drives,
  * points where a module's direction or its steer-rate bound changes fast
  * (an ICR passing close to it), so steer angles, their rates and the
- * steer-rate bound are resolved there. out has room for the pieces' points
- * plus 4.25 grid_points more; returns the number of points written. */
-static int grid_points(const veer_plan *plan, const int *intervals, double *out, int *seg_first) {
+ * steer-rate bound are resolved there. out and kin (the path kinematics at
+ * each point, for the solves) have room for the pieces' points plus 4.25
+ * grid_points more; returns the number of points written. */
+static int grid_points(const veer_plan *plan, const int *intervals, double *out, veer_point_kin *kin,
+                       int *seg_first) {
     const veer_path *path = &plan->path;
     /* at most 4 grid_points more for steer continuity, a quarter for the steer-rate bound */
     int n = 0, budget[2] = {4 * plan->options.grid_points, plan->options.grid_points / 4};
@@ -514,8 +520,9 @@ static int grid_points(const veer_plan *plan, const int *intervals, double *out,
         if (seg_first) seg_first[j] = n;
         double prev = ps->s_begin;
         veer_point_kin pprev, pk;
-        if (plan->steered) veer__point_kin(path, j, prev, &pprev);
+        veer__point_kin(path, j, prev, &pprev);
         *out++ = prev;
+        *kin++ = pprev;
         n++;
         for (int p = ps->first_piece; p < ps->first_piece + ps->piece_count; p++) {
             const veer_path_piece *pc = &path->pieces[p];
@@ -523,12 +530,11 @@ static int grid_points(const veer_plan *plan, const int *intervals, double *out,
                 double sn = (p + 1 == ps->first_piece + ps->piece_count && i == intervals[p])
                                 ? ps->s_end
                                 : pc->s0 + pc->len * i / intervals[p];
-                if (plan->steered) {
-                    veer__point_kin(path, j, sn, &pk);
-                    n += refine(plan, j, prev, &pprev, sn, &pk, 0, budget, &out);
-                    pprev = pk;
-                }
+                veer__point_kin(path, j, sn, &pk);
+                if (plan->steered) n += refine(plan, j, prev, &pprev, sn, &pk, 0, budget, &out, &kin);
+                pprev = pk;
                 *out++ = sn;
+                *kin++ = pk;
                 n++;
                 prev = sn;
             }
@@ -573,15 +579,21 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     grid_layout(path, plan->options.grid_points, intervals);
     int base = path->segment_count;
     for (int p = 0; p < path->piece_count; p++) base += intervals[p];
-    size_t grid_room = (size_t)(base + 4 * plan->options.grid_points + plan->options.grid_points / 4 + 1) * sizeof(double);
+    size_t room = (size_t)(base + 4 * plan->options.grid_points + plan->options.grid_points / 4 + 1);
+    size_t grid_room = room * sizeof(double), kin_room = room * sizeof(veer_point_kin);
     double *grid = veer__alloc(grid_room);
-    if (!grid) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
-    int n = grid_points(plan, intervals, grid, first);
+    veer_point_kin *kin = grid ? veer__alloc(kin_room) : NULL;
+    if (!kin) {
+        veer__free(grid, grid_room);
+        return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
+    }
+    int n = grid_points(plan, intervals, grid, kin, first);
     int M = plan->module_count;
     size_t grid_bytes = (size_t)n * (3 * sizeof(double) + sizeof(veer_limit_id)) + (size_t)n * (size_t)M * sizeof(double);
     char *g = veer__alloc(grid_bytes);
     if (!g) {
         veer__free(grid, grid_room);
+        veer__free(kin, kin_room);
         return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
     }
     plan->n = n;
@@ -605,13 +617,20 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     }
 
     veer_status st = start_state(plan, &plan->x_start, diag);
-    if (st != VEER_OK) return st;
+    if (st != VEER_OK) {
+        veer__free(kin, kin_room);
+        return st;
+    }
 
     veer_workspace ws;
     int m = plan->rows.m;
     ws.bytes = (size_t)longest * ((size_t)m * sizeof(veer_row) + 8 * sizeof(double) + sizeof(veer_limit_id) + 3 * sizeof(int) + 1);
     char *w = veer__alloc(ws.bytes);
-    if (!w) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
+    if (!w) {
+        veer__free(kin, kin_room);
+        return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
+    }
+    ws.kin = kin;
     ws.rows = (veer_row *)w;
     ws.xmax = (double *)(ws.rows + (size_t)longest * (size_t)m);
     ws.K = ws.xmax + longest;
@@ -637,6 +656,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     if (st == VEER_OK) st = veer__meet_arrivals(plan, &ws, diag);
     veer__free(ws.extra, (size_t)ws.extra_cap * sizeof *ws.extra);
     veer__free(w, ws.bytes);
+    veer__free(kin, kin_room);
     if (st != VEER_OK) return st;
 
     veer__plan_timeline(plan);

@@ -168,6 +168,7 @@ typedef struct {
     int *row_count;
     double *xmax, *K, *xi, *dxi; /* xi, dxi: body twist per unit sdot and its s-derivative, 3 per point */
     veer_limit_id *xmax_id;
+    const veer_point_kin *kin; /* [plan->n] path kinematics at every grid point, NULL: computed when needed */
     size_t bytes;
     /* Midpoint rows added where the profile broke a limit between grid
      * points (plan.c): a pool and, per stage, where its rows are. */
