@@ -149,8 +149,7 @@ veer_status veer__link_encode(const veer_link_def *def, veer_v1_LinkFrame *frame
     size_t n = os.bytes_written;
     if (tagged) {
         uint8_t tag[VEER_LINK_FRAME_TAG_BYTES];
-        veer_status st = veer__link_frame_tag(def->key, tmp + head, n - head, tag);
-        if (st != VEER_OK) return st;
+        veer__link_frame_tag(def->key, tmp + head, n - head, tag);
         tmp[n++] = (uint8_t)(veer_v1_LinkFrame_tag_tag << 3 | PB_WT_STRING);
         tmp[n++] = VEER_LINK_FRAME_TAG_BYTES;
         memcpy(tmp + n, tag, VEER_LINK_FRAME_TAG_BYTES);
@@ -201,9 +200,8 @@ int veer__link_decode(const veer_link_def *def, const uint8_t *bytes, size_t siz
         memcmp(b + n - VEER_LINK_FRAME_TAG_BYTES, frame->tag.bytes, VEER_LINK_FRAME_TAG_BYTES) != 0)
         return VEER_LINK_FRAME_TAG;
     uint8_t tag[VEER_LINK_FRAME_TAG_BYTES];
-    if (veer__link_frame_tag(def->key, b, n - VEER__LINK_TAG_FIELD_BYTES, tag) != VEER_OK ||
-        !veer__link_equal16(tag, frame->tag.bytes))
-        return VEER_LINK_FRAME_TAG;
+    veer__link_frame_tag(def->key, b, n - VEER__LINK_TAG_FIELD_BYTES, tag);
+    if (!veer__link_equal(tag, frame->tag.bytes, VEER_LINK_FRAME_TAG_BYTES)) return VEER_LINK_FRAME_TAG;
     return VEER_LINK_NONE;
 }
 
@@ -243,11 +241,7 @@ veer_status veer_link_sender_create(const veer_link_def *def, uint64_t plan_id, 
     s->chunk_bytes = chunk;
     s->sealed = sealed;
     memcpy(s->data, plan, plan_size);
-    st = veer__link_plan_tag(def->key, def->cart, plan_id, plan, plan_size, s->tag);
-    if (st != VEER_OK) {
-        veer__free(s, bytes);
-        return LINK_FAIL(diag, st, "libsodium did not start");
-    }
+    veer__link_plan_tag(def->key, def->cart, plan_id, plan, plan_size, s->tag);
     memcpy(s->data + plan_size, s->tag, VEER_LINK_PLAN_TAG_BYTES);
     *out = s;
     veer__diag_ok(diag);

@@ -19,16 +19,15 @@
 /* ---- link_mac.c: HMAC-SHA-256 over the link's messages ------------------- */
 
 /* Plan tag over "veer-link-plan-1" || cart || plan_id || size || plan (RFC 2104). */
-veer_status veer__link_plan_tag(const uint8_t key[VEER_LINK_KEY_BYTES], uint32_t cart, uint64_t plan_id,
-                                const uint8_t *plan, size_t size, uint8_t tag[VEER_LINK_PLAN_TAG_BYTES]);
+void veer__link_plan_tag(const uint8_t key[VEER_LINK_KEY_BYTES], uint32_t cart, uint64_t plan_id,
+                         const uint8_t *plan, size_t size, uint8_t tag[VEER_LINK_PLAN_TAG_BYTES]);
 /* Frame tag over "veer-link-frame-1" || body, truncated to 16 bytes (RFC 2104 section 5). */
-veer_status veer__link_frame_tag(const uint8_t key[VEER_LINK_KEY_BYTES], const uint8_t *body, size_t size,
-                                 uint8_t tag[VEER_LINK_FRAME_TAG_BYTES]);
-/* Constant-time comparisons (libsodium crypto_verify_*): 1 when equal. */
-int veer__link_equal32(const uint8_t a[32], const uint8_t b[32]);
-int veer__link_equal16(const uint8_t a[16], const uint8_t b[16]);
-/* libsodium's own start-up (sodium_init), idempotent; 0 on success. */
-int veer__link_crypto_ready(void);
+void veer__link_frame_tag(const uint8_t key[VEER_LINK_KEY_BYTES], const uint8_t *body, size_t size,
+                          uint8_t tag[VEER_LINK_FRAME_TAG_BYTES]);
+/* Comparison of n bytes in time independent of their contents: 1 when equal. */
+int veer__link_equal(const uint8_t *a, const uint8_t *b, size_t n);
+/* Zeros n bytes at p with stores the compiler may not drop (key material). */
+void veer__link_wipe(void *p, size_t n);
 
 /* ---- link_frame.c: frames on the air -------------------------------------- */
 

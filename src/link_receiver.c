@@ -41,7 +41,6 @@ veer_status veer_link_receiver_init(void *memory, size_t size, const veer_link_d
                          sizeof(veer_link_receiver));
     veer_status st = veer_link_def_check(def, diag);
     if (st != VEER_OK) return st;
-    if (veer__link_crypto_ready() != 0) return LINK_FAIL(diag, VEER_ERR_STATE, "libsodium did not start");
     veer_link_receiver *rx = memory;
     veer__link_receiver_setup(rx, def, accepted_plan_id, command_seq);
     *out = rx;
@@ -97,8 +96,8 @@ static int take_chunk(veer_link_receiver *rx, const veer_v1_PlanChunk *c, veer_l
     ev->gaps_due = 1;
     size_t plan_size = rx->sealed - VEER_LINK_PLAN_TAG_BYTES;
     uint8_t tag[VEER_LINK_PLAN_TAG_BYTES];
-    if (veer__link_plan_tag(rx->def.key, rx->def.cart, rx->plan_id, rx->buf, plan_size, tag) != VEER_OK ||
-        !veer__link_equal32(tag, rx->buf + plan_size)) {
+    veer__link_plan_tag(rx->def.key, rx->def.cart, rx->plan_id, rx->buf, plan_size, tag);
+    if (!veer__link_equal(tag, rx->buf + plan_size, VEER_LINK_PLAN_TAG_BYTES)) {
         rx->last_plan_id = rx->plan_id;
         rx->last_count = rx->count;
         rx->last_verdict = VEER_LINK_PLAN_TAG;

@@ -12,7 +12,6 @@
  * own limits allow at each point, integrated in 1 ms steps.
  * SPDX-License-Identifier: MIT */
 #include <string.h>
-#include <sodium.h>
 #include "link_internal.h"
 #include "wire_internal.h"
 
@@ -68,21 +67,21 @@ TABLE_LOOKUP(veer_stop_reason_str, VEER_STOP_REASON_TABLE, TEXT_CASE_, "unknown 
 /* ---- the cart's fingerprint --------------------------------------------- */
 
 static bool hash_write(pb_ostream_t *os, const pb_byte_t *buf, size_t count) {
-    crypto_hash_sha256_update(os->state, buf, count);
+    veer__sha256_update(os->state, buf, count);
     return true;
 }
 
 static veer_status hash_message(const pb_msgdesc_t *fields, const void *msg, uint8_t out[32]) {
     size_t n = 0;
     if (!pb_get_encoded_size(&n, fields, msg)) return VEER_ERR_CAPACITY;
-    crypto_hash_sha256_state st;
-    crypto_hash_sha256_init(&st);
+    veer_sha256 st;
+    veer__sha256_init(&st);
     uint8_t len[8];
     for (int i = 0; i < 8; i++) len[i] = (uint8_t)((uint64_t)n >> (8 * i));
-    crypto_hash_sha256_update(&st, len, sizeof len);
+    veer__sha256_update(&st, len, sizeof len);
     pb_ostream_t os = {hash_write, &st, SIZE_MAX, 0, NULL};
     if (!pb_encode(&os, fields, msg)) return VEER_ERR_CAPACITY;
-    crypto_hash_sha256_final(&st, out);
+    veer__sha256_final(&st, out);
     return VEER_OK;
 }
 
@@ -192,7 +191,6 @@ veer_status veer_player_init(void *memory, size_t size, const veer_player_def *d
                            sizeof def->cart_name - 1);
     if (!(def->link_timeout >= 0.05 && def->link_timeout <= 60.0))
         return PLAYER_FAIL(diag, VEER_ERR_VALUE, "link_timeout %g s is outside 0.05..60 s", def->link_timeout);
-    if (veer__link_crypto_ready() != 0) return PLAYER_FAIL(diag, VEER_ERR_STATE, "libsodium did not start");
     uint8_t dh[32], lh[32];
     if ((st = config_hashes(&def->drive, &def->limits, dh, lh)))
         return PLAYER_FAIL(diag, st, "the cart's drive and limits do not encode");

@@ -12,6 +12,9 @@
 #include <veer/link.h>
 #include <veer/player.h>
 #include <veer/wire.h>
+#include <sodium.h>
+#include "link_internal.h"
+#include "wire_internal.h"
 
 /* ---- helpers ------------------------------------------------------------ */
 
@@ -126,6 +129,108 @@ Test(link, hmac_sha256_rfc4231) {
     hex("60e431591ee0b67f0d8a26aacbf5b77f8e0bc6213728c5140546040f0ee37f54", want, 32);
     cr_assert_arr_eq(mac, want, 32, "RFC 4231 test case 6");
     cr_assert_eq(veer_link_hmac_sha256(key1, 20, NULL, 3, mac), VEER_ERR_NULL);
+}
+
+Test(link, hmac_sha256_rfc4231_remaining_cases) {
+    uint8_t mac[32], want[32], key[131], data[152];
+    /* RFC 4231, 4.4, test case 3: key 20 x 0xaa, data 50 x 0xdd. */
+    memset(key, 0xaa, 20);
+    memset(data, 0xdd, 50);
+    cr_assert_eq(veer_link_hmac_sha256(key, 20, data, 50, mac), VEER_OK);
+    hex("773ea91e36800e46854db8ebd09181a72959098b3ef8c122d9635514ced565fe", want, 32);
+    cr_assert_arr_eq(mac, want, 32, "RFC 4231 test case 3");
+    /* RFC 4231, 4.5, test case 4: key 0x01..0x19 (25 bytes), data 50 x 0xcd. */
+    for (int i = 0; i < 25; i++) key[i] = (uint8_t)(i + 1);
+    memset(data, 0xcd, 50);
+    cr_assert_eq(veer_link_hmac_sha256(key, 25, data, 50, mac), VEER_OK);
+    hex("82558a389a443c0ea4cc819899f2083a85f0faa3e578f8077a2e3ff46729665b", want, 32);
+    cr_assert_arr_eq(mac, want, 32, "RFC 4231 test case 4");
+    /* RFC 4231, 4.6, test case 5: key 20 x 0x0c, "Test With Truncation";
+     * the RFC gives the leftmost 128 bits only (the frame tag's truncation). */
+    memset(key, 0x0c, 20);
+    cr_assert_eq(veer_link_hmac_sha256(key, 20, "Test With Truncation", 20, mac), VEER_OK);
+    hex("a3b6167473100ee06e0c796c2955552b", want, 16);
+    cr_assert_arr_eq(mac, want, 16, "RFC 4231 test case 5");
+    /* RFC 4231, 4.8, test case 7: a 131-byte key (hashed first) and 152 bytes of data. */
+    memset(key, 0xaa, 131);
+    const char *d7 = "This is a test using a larger than block-size key and a larger than block-size data. "
+                     "The key needs to be hashed before being used by the HMAC algorithm.";
+    cr_assert_eq(strlen(d7), 152);
+    cr_assert_eq(veer_link_hmac_sha256(key, 131, d7, strlen(d7), mac), VEER_OK);
+    hex("9b09ffa71b942fcb27635fbcd5b0e944bfdc63644f0713938a7f51535c3a35e2", want, 32);
+    cr_assert_arr_eq(mac, want, 32, "RFC 4231 test case 7");
+    /* An empty key and an empty message are valid HMAC input (RFC 2104 allows
+     * any key length); NULL with length 0 is accepted for both. */
+    cr_assert_eq(veer_link_hmac_sha256(NULL, 0, NULL, 0, mac), VEER_OK);
+    /* HMAC-SHA-256 of "" under "": Python's hmac module (Debian python3),
+     * hmac.new(b"", b"", "sha256"). */
+    hex("b613679a0814d9ec772f95d778c35fc5ff1697c493715653c6c712144292c5ad", want, 32);
+    cr_assert_arr_eq(mac, want, 32, "empty key, empty message");
+}
+
+/* libsodium (Debian libsodium-dev) as the reference: its
+ * crypto_auth_hmacsha256_* over random keys of 0..200 bytes (around the
+ * 64-byte block where key hashing starts) and messages of 0..700 bytes
+ * (every padding case of SHA-256's last block). */
+Test(link, hmac_sha256_against_libsodium) {
+    cr_assert_geq(sodium_init(), 0);
+    static uint8_t key[200], msg[700];
+    uint8_t ours[32], ref[32];
+    int cases = 0;
+    for (size_t kn = 0; kn <= sizeof key; kn += (kn < 70 ? 1 : 13)) {
+        for (size_t mn = 0; mn <= sizeof msg; mn += (mn < 140 ? 1 : 37)) {
+            for (size_t i = 0; i < kn; i++) key[i] = (uint8_t)rng();
+            for (size_t i = 0; i < mn; i++) msg[i] = (uint8_t)rng();
+            crypto_auth_hmacsha256_state st;
+            crypto_auth_hmacsha256_init(&st, key, kn);
+            crypto_auth_hmacsha256_update(&st, msg, mn);
+            crypto_auth_hmacsha256_final(&st, ref);
+            cr_assert_eq(veer_link_hmac_sha256(kn ? key : NULL, kn, mn ? msg : NULL, mn, ours), VEER_OK);
+            cr_assert_arr_eq(ours, ref, 32, "key %zu bytes, message %zu bytes", kn, mn);
+            cases++;
+        }
+    }
+    cr_assert_gt(cases, 5000);
+}
+
+/* SHA-256 (the HMAC's hash, src/wire_sha256.c) against libsodium's
+ * crypto_hash_sha256 at every length 0..300 (padding into one or two final
+ * blocks) and fed in uneven pieces. The FIPS 180-4 examples are in
+ * test_wire.c. */
+Test(link, sha256_against_libsodium) {
+    cr_assert_geq(sodium_init(), 0);
+    static uint8_t msg[300];
+    for (size_t i = 0; i < sizeof msg; i++) msg[i] = (uint8_t)rng();
+    for (size_t n = 0; n <= sizeof msg; n++) {
+        uint8_t ours[32], ref[32];
+        crypto_hash_sha256(ref, msg, n);
+        veer_sha256 c;
+        veer__sha256_init(&c);
+        for (size_t at = 0, step = 1; at < n; at += step, step = step * 3 % 71 + 1)
+            veer__sha256_update(&c, msg + at, at + step <= n ? step : n - at);
+        veer__sha256_final(&c, ours);
+        cr_assert_arr_eq(ours, ref, 32, "%zu bytes", n);
+    }
+}
+
+/* The tag comparison finds a difference at every position and in every bit;
+ * the wipe leaves zeros. */
+Test(link, tag_compare_and_wipe) {
+    uint8_t a[32], b[32];
+    for (int i = 0; i < 32; i++) a[i] = b[i] = (uint8_t)rng();
+    cr_assert_eq(veer__link_equal(a, b, 32), 1);
+    cr_assert_eq(veer__link_equal(a, b, 0), 1);
+    for (int i = 0; i < 32; i++) {
+        for (int bit = 0; bit < 8; bit++) {
+            b[i] ^= (uint8_t)(1u << bit);
+            cr_assert_eq(veer__link_equal(a, b, 32), 0, "byte %d bit %d", i, bit);
+            cr_assert_eq(veer__link_equal(a, b, (size_t)i + 1), 0);
+            cr_assert_eq(veer__link_equal(a, b, (size_t)i), 1);
+            b[i] ^= (uint8_t)(1u << bit);
+        }
+    }
+    veer__link_wipe(a, sizeof a);
+    for (int i = 0; i < 32; i++) cr_assert_eq(a[i], 0);
 }
 
 /* ---- chunking ----------------------------------------------------------- */
