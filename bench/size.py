@@ -6,8 +6,8 @@ archive member they came from.
   /usr/bin/python3 bench/size.py BUILD_DIR [CC [OPT]]
 
 Code is .text* and .rodata* (what goes to flash), static RAM .data* and
-.bss*. libc and libm are linked dynamically here and not counted; libsodium
-(the HMAC-SHA-256 of the link) is counted apart. The library must be built
+.bss*. libc and libm are linked dynamically here and not counted (the
+link's HMAC-SHA-256 is veer's own, counted with it). The library must be built
 with -ffunction-sections -fdata-sections (bench/run.sh does) so that unused
 functions drop out.
 """
@@ -43,7 +43,7 @@ def link(build, cc, opt, out):
     mapfile = out + ".map"
     cmd = [cc, "-std=c11", opt, "-ffunction-sections", "-fdata-sections", "-I", os.path.join(REPO, "include"),
            os.path.join(HERE, "cart_min.c"), os.path.join(build, "libveer.a"), "-Wl,--gc-sections",
-           "-Wl,-Map=" + mapfile, "-Wl,-Bstatic", "-lsodium", "-Wl,-Bdynamic", "-lm", "-o", out]
+           "-Wl,-Map=" + mapfile, "-lm", "-o", out]
     subprocess.run(cmd, check=True)
     return mapfile
 
@@ -86,7 +86,6 @@ def main():
     out = os.path.join(build, "cart_min")
     sizes = parse(link(build, cc, opt, out))
     veer = {k: v for k, v in sizes.items() if k[0] == "libveer.a"}
-    sodium = {k: v for k, v in sizes.items() if k[0] == "libsodium.a"}
 
     def group(member):
         if member.startswith("pb_"):
@@ -107,16 +106,11 @@ def main():
         by[group(mbr)].update(c)
     print("| **veer + nanopb, total** | **%d (%.1f KiB)** | **%d (%.1f KiB)** |" % (
         tot["code"], tot["code"] / 1024, tot["ram"], tot["ram"] / 1024))
-    st = collections.Counter()
-    for c in sodium.values():
-        st.update(c)
-    print("| libsodium (HMAC-SHA-256), apart | %d (%.1f KiB) | %d |" % (st["code"], st["code"] / 1024, st["ram"]))
     print()
     for g in ("veer", "nanopb runtime", "generated messages (nanopb)"):
         print("- %s: %d B code, %d B static RAM" % (g, by[g]["code"], by[g]["ram"]))
     tag = "" if opt == "-O2" else "_" + opt.lstrip("-")
-    print("\nsummary code_bytes%s %d ram_bytes%s %d sodium_code_bytes%s %d" % (tag, tot["code"], tag, tot["ram"], tag,
-                                                                         st["code"]))
+    print("\nsummary code_bytes%s %d ram_bytes%s %d" % (tag, tot["code"], tag, tot["ram"]))
 
 
 if __name__ == "__main__":

@@ -5,8 +5,8 @@
  * makes sure a cart takes only a whole, authentic, current plan:
  *
  *   - the ground station seals the Plan bytes (wire.h) with a plan tag,
- *     HMAC-SHA-256 under the cart's pre-shared key (RFC 2104, FIPS 180-4;
- *     libsodium), over the cart number, the plan counter and the bytes;
+ *     HMAC-SHA-256 under the cart's pre-shared key (RFC 2104 over FIPS 180-4
+ *     SHA-256, veer's own), over the cart number, the plan counter and the bytes;
  *   - cuts the sealed plan into chunks, one per frame, each frame at most
  *     the link's frame size (default 255 bytes: one radio payload) with a
  *     CRC-32 (IEEE 802.3) at its end;
@@ -121,8 +121,8 @@ VEER_API VEER_NODISCARD veer_status veer_link_def_check(const veer_link_def *def
  * final XOR 0xFFFFFFFF), continued from crc (0 to begin). */
 VEER_API uint32_t veer_link_crc32(uint32_t crc, const void *data, size_t size);
 
-/* HMAC-SHA-256 (RFC 2104 over FIPS 180-4 SHA-256, libsodium) of data under a
- * key of any length. */
+/* HMAC-SHA-256 (RFC 2104 over FIPS 180-4 SHA-256, veer's own code) of data
+ * under a key of any length. Key and data may be NULL when their size is 0. */
 VEER_API VEER_NODISCARD veer_status veer_link_hmac_sha256(const uint8_t *key, size_t key_size, const void *data,
                                                           size_t size, uint8_t out[32]);
 

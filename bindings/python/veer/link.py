@@ -129,7 +129,7 @@ def crc32(data, crc=0):
 
 
 def hmac_sha256(key, data):
-    """HMAC-SHA-256 as libveer computes it (libsodium)."""
+    """HMAC-SHA-256 as libveer computes it (its own RFC 2104 code)."""
     key, data = bytes(key), bytes(data)
     out = ctypes.create_string_buffer(32)
     st = _c().veer_link_hmac_sha256(key, len(key), data, len(data), out)
