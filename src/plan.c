@@ -200,6 +200,20 @@ static int has_motor_curve(const veer_plan *plan) {
     return 0;
 }
 
+/* Room in the row pool for `need` rows (keeping the first `used`); when it
+ * grows, it grows to `want`, the worst case of the rest of the segment. */
+static int rows_room(veer_workspace *ws, size_t used, size_t need, size_t want) {
+    if (need <= ws->rows_cap) return 1;
+    if (want < need) want = need;
+    veer_row *pool = veer__alloc(want * sizeof *pool);
+    if (!pool) return 0;
+    if (used) memcpy(pool, ws->rows, used * sizeof *pool);
+    veer__free(ws->rows, ws->rows_cap * sizeof *ws->rows);
+    ws->rows = pool;
+    ws->rows_cap = want;
+    return 1;
+}
+
 /* Rows, solve and times of segment j with the limits behind ctx, starting at
  * sdot^2 = x_start. With a motor curve the solve repeats twice more with the
  * curve linearized at the previous profile: every row stays conservative
@@ -282,19 +296,23 @@ veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx,
     int n = sg->k1 - sg->k0 + 1, m = ctx->m;
     double *s = plan->s + sg->k0, *x = plan->x + sg->k0;
     int passes = has_motor_curve(plan) ? 3 : 1;
-    veer_topp_problem p = {n, s, ws->xmax, ws->xmax_id, ws->rows, ws->row_count, m, NULL, NULL, NULL};
+    veer_topp_problem p = {n, s, ws->xmax, ws->xmax_id, NULL, ws->row_at, NULL, NULL, NULL};
     const veer_point_kin *kin = ws->kin ? ws->kin + sg->k0 : NULL;
     for (int pass = 0; pass < passes; pass++) {
         ws->extra_used = 0;
         memset(ws->extra_n, 0, (size_t)n * sizeof *ws->extra_n);
         p.extra = NULL;
+        size_t at = 0; /* rows so far, packed */
         for (int k = 0; k < n; k++) {
+            if (!rows_room(ws, at, at + (size_t)m, at + (size_t)(n - k) * (size_t)m))
+                return veer__fail(diag, VEER_ERR_NO_MEMORY, ps->leg, -1, -1, -1.0, veer__limit(VEER_LIMIT_NONE, -1),
+                                  "out of memory");
             veer_point_kin own;
             const veer_point_kin *pk = kin ? &kin[k] : &own;
             if (!kin) veer__point_kin(&plan->path, j, s[k], &own);
             memcpy(ws->xi + 3 * k, pk->xi, sizeof pk->xi);
             memcpy(ws->dxi + 3 * k, pk->dxi, sizeof pk->dxi);
-            int c = veer__point_rows(ctx, pk, pass ? x[k] : 0.0, ws->rows + (size_t)k * (size_t)m, &ws->xmax[k],
+            int c = veer__point_rows(ctx, pk, pass ? x[k] : 0.0, ws->rows + at, &ws->xmax[k],
                                      &ws->xmax_id[k]);
             if (c < 0 && ws->xmax_id[k].kind == VEER_LIMIT_MODULE_OUT)
                 return veer__fail(diag, VEER_ERR_INFEASIBLE, ps->leg, ps->waypoint, sg->k0 + k, s[k], ws->xmax_id[k],
@@ -306,8 +324,11 @@ veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx,
                                   "leg %d: a differential drive cannot move sideways (at s = %.3f); use heading "
                                   "tangent or a spin leg",
                                   ps->leg, s[k]);
-            ws->row_count[k] = c;
+            ws->row_at[k] = (int)at;
+            at += (size_t)c;
         }
+        ws->row_at[n] = (int)at;
+        p.rows = ws->rows;
         if (plan->cap.cap) apply_speed_caps(plan, j, n, s, ws);
         if (plan->steered) steer_rate_bounds(plan, ctx, j, n, s, ws);
         int bad = 0;
@@ -624,21 +645,25 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
 
     veer_workspace ws;
     int m = plan->rows.m;
-    ws.bytes = (size_t)longest * ((size_t)m * sizeof(veer_row) + 8 * sizeof(double) + sizeof(veer_limit_id) + 3 * sizeof(int) + 1);
-    char *w = veer__alloc(ws.bytes);
+    /* the row pool starts with room for half the most rows a point can have
+     * (polygon faces that cannot bind are left out) and grows if need be */
+    ws.rows_cap = (size_t)longest * (size_t)((m + 1) / 2) + (size_t)m;
+    ws.rows = veer__alloc(ws.rows_cap * sizeof *ws.rows);
+    ws.bytes = (size_t)longest * (8 * sizeof(double) + sizeof(veer_limit_id) + 3 * sizeof(int) + 1) + sizeof(int);
+    char *w = ws.rows ? veer__alloc(ws.bytes) : NULL;
     if (!w) {
+        veer__free(ws.rows, ws.rows_cap * sizeof *ws.rows);
         veer__free(kin, kin_room);
         return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
     }
     ws.kin = kin;
-    ws.rows = (veer_row *)w;
-    ws.xmax = (double *)(ws.rows + (size_t)longest * (size_t)m);
+    ws.xmax = (double *)w;
     ws.K = ws.xmax + longest;
     ws.xi = ws.K + longest;
     ws.dxi = ws.xi + 3 * (size_t)longest;
     ws.xmax_id = (veer_limit_id *)(ws.dxi + 3 * (size_t)longest);
-    ws.row_count = (int *)(ws.xmax_id + longest);
-    ws.extra_at = ws.row_count + longest;
+    ws.row_at = (int *)(ws.xmax_id + longest);
+    ws.extra_at = ws.row_at + longest + 1;
     ws.extra_n = ws.extra_at + longest;
     ws.extra_done = (unsigned char *)(ws.extra_n + longest);
     ws.extra = NULL;
@@ -656,6 +681,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     if (st == VEER_OK) st = veer__meet_arrivals(plan, &ws, diag);
     veer__free(ws.extra, (size_t)ws.extra_cap * sizeof *ws.extra);
     veer__free(w, ws.bytes);
+    veer__free(ws.rows, ws.rows_cap * sizeof *ws.rows);
     veer__free(kin, kin_room);
     if (st != VEER_OK) return st;
 

@@ -80,9 +80,8 @@ typedef struct {
     const double *s;        /* [n] path positions, increasing */
     const double *xmax;     /* [n] x-only bound at each point (may be +inf) */
     const veer_limit_id *xmax_id; /* [n] the limit behind each xmax */
-    const veer_row *rows;   /* [n * m] u-rows per point, m per point */
-    const int *row_count;   /* [n] rows used at each point (<= m) */
-    int m;
+    const veer_row *rows;   /* u-rows of point k: rows[row_at[k] .. row_at[k + 1]) */
+    const int *row_at;      /* [n + 1] */
     /* Extra rows of stage k, already in the stage's variables (u, x_k):
      * extra[extra_at[k] .. extra_at[k] + extra_n[k]). NULL: none. */
     const veer_row *extra;
@@ -164,8 +163,9 @@ struct veer_plan {
 
 /* Work buffers for one segment's solve, sized for the longest segment. */
 typedef struct {
-    veer_row *rows;
-    int *row_count;
+    veer_row *rows;         /* u-rows of the points, packed: point k's at row_at[k] .. row_at[k + 1] */
+    int *row_at;            /* [longest + 1] */
+    size_t rows_cap;        /* rows the pool has room for */
     double *xmax, *K, *xi, *dxi; /* xi, dxi: body twist per unit sdot and its s-derivative, 3 per point */
     veer_limit_id *xmax_id;
     const veer_point_kin *kin; /* [plan->n] path kinematics at every grid point, NULL: computed when needed */

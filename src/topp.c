@@ -48,15 +48,15 @@ static inline void stage_add(stage *st, double a, double b, double c) {
 /* Stage k's bounds on u: rows of point k at (u, x), rows of point k+1 at
  * (u, x + 2 ds u), and x + 2 ds u in [0, hi_next]. */
 static void stage_build(const veer_topp_problem *pr, int k, double hi_next, stage *st) {
-    const veer_row *r0 = pr->rows + (size_t)k * (size_t)pr->m;
-    const veer_row *r1 = pr->rows + (size_t)(k + 1) * (size_t)pr->m;
+    const veer_row *r0 = pr->rows + pr->row_at[k], *r1 = pr->rows + pr->row_at[k + 1];
+    int n0 = pr->row_at[k + 1] - pr->row_at[k], n1 = pr->row_at[k + 2] - pr->row_at[k + 1];
     double d2 = 2.0 * (pr->s[k + 1] - pr->s[k]);
     st->nup = st->nlo = 0;
     st->cap = pr->xmax[k];
     st->up[st->nup++] = (bound){hi_next / d2, -1.0 / d2};
     st->lo[st->nlo++] = (bound){0.0, -1.0 / d2};
-    for (int j = 0; j < pr->row_count[k]; j++) stage_add(st, r0[j].a, r0[j].b, r0[j].c);
-    for (int j = 0; j < pr->row_count[k + 1]; j++) stage_add(st, r1[j].a + d2 * r1[j].b, r1[j].b, r1[j].c);
+    for (int j = 0; j < n0; j++) stage_add(st, r0[j].a, r0[j].b, r0[j].c);
+    for (int j = 0; j < n1; j++) stage_add(st, r1[j].a + d2 * r1[j].b, r1[j].b, r1[j].c);
     if (pr->extra)
         for (int j = 0; j < pr->extra_n[k]; j++) {
             const veer_row *e = &pr->extra[pr->extra_at[k] + j];
@@ -75,12 +75,12 @@ static inline void upper_row(double a, double b, double c, double x, double *U) 
 }
 
 static double stage_upper(const veer_topp_problem *pr, int k, double hi_next, double x) {
-    const veer_row *r0 = pr->rows + (size_t)k * (size_t)pr->m;
-    const veer_row *r1 = pr->rows + (size_t)(k + 1) * (size_t)pr->m;
+    const veer_row *r0 = pr->rows + pr->row_at[k], *r1 = pr->rows + pr->row_at[k + 1];
+    int n0 = pr->row_at[k + 1] - pr->row_at[k], n1 = pr->row_at[k + 2] - pr->row_at[k + 1];
     double d2 = 2.0 * (pr->s[k + 1] - pr->s[k]);
     double U = hi_next / d2 + (-1.0 / d2) * x;
-    for (int j = 0; j < pr->row_count[k]; j++) upper_row(r0[j].a, r0[j].b, r0[j].c, x, &U);
-    for (int j = 0; j < pr->row_count[k + 1]; j++) upper_row(r1[j].a + d2 * r1[j].b, r1[j].b, r1[j].c, x, &U);
+    for (int j = 0; j < n0; j++) upper_row(r0[j].a, r0[j].b, r0[j].c, x, &U);
+    for (int j = 0; j < n1; j++) upper_row(r1[j].a + d2 * r1[j].b, r1[j].b, r1[j].c, x, &U);
     if (pr->extra)
         for (int j = 0; j < pr->extra_n[k]; j++) {
             const veer_row *e = &pr->extra[pr->extra_at[k] + j];
@@ -182,16 +182,15 @@ veer_limit_id veer__topp_binding(const veer_topp_problem *p, const double *x, in
     veer_limit_id best = veer__limit(VEER_LIMIT_NONE, -1);
     if (k >= p->n - 1) return best;
     if (x[k] >= p->xmax[k] * (1.0 - 2e-3) && p->xmax_id) return p->xmax_id[k];
-    const veer_row *r0 = p->rows + (size_t)k * (size_t)p->m;
-    const veer_row *r1 = p->rows + (size_t)(k + 1) * (size_t)p->m;
+    const veer_row *r0 = p->rows + p->row_at[k], *r1 = p->rows + p->row_at[k + 1];
+    int n0 = p->row_at[k + 1] - p->row_at[k], n1 = p->row_at[k + 2] - p->row_at[k + 1];
     double d2 = 2.0 * (p->s[k + 1] - p->s[k]);
     double u = (x[k + 1] - x[k]) / d2;
     double tight = 2e-3;
     int ne = p->extra ? p->extra_n[k] : 0;
-    for (int j = 0; j < p->row_count[k] + p->row_count[k + 1] + ne; j++) {
-        int first = j < p->row_count[k], second = !first && j < p->row_count[k] + p->row_count[k + 1];
-        const veer_row *r = first ? &r0[j] : second ? &r1[j - p->row_count[k]]
-                                                    : &p->extra[p->extra_at[k] + j - p->row_count[k] - p->row_count[k + 1]];
+    for (int j = 0; j < n0 + n1 + ne; j++) {
+        int first = j < n0, second = !first && j < n0 + n1;
+        const veer_row *r = first ? &r0[j] : second ? &r1[j - n0] : &p->extra[p->extra_at[k] + j - n0 - n1];
         double a = first || !second ? r->a : r->a + d2 * r->b;
         if (!(r->c > 0.0)) continue;
         double slack = (r->c - a * u - r->b * x[k]) / r->c;
