@@ -175,11 +175,14 @@ static void corner_coefficients(veer_path_piece *pc, double px, double py, const
 
 /* Value and first three sigma-derivatives of a degree-7 polynomial in t. */
 static void poly7(const double a[8], double t, double invL, double out[4]) {
-    double p = a[7], p1 = 7.0 * a[7], p2 = 42.0 * a[7], p3 = 210.0 * a[7];
-    for (int i = 6; i >= 0; i--) p = p * t + a[i];
-    for (int i = 6; i >= 1; i--) p1 = p1 * t + i * a[i];
-    for (int i = 6; i >= 2; i--) p2 = p2 * t + i * (i - 1) * a[i];
-    for (int i = 6; i >= 3; i--) p3 = p3 * t + i * (i - 1) * (i - 2) * a[i];
+    /* Horner, written out (the loops with their integer factors cost three
+     * times as much; every product and sum is the same) */
+    double p = ((((((a[7] * t + a[6]) * t + a[5]) * t + a[4]) * t + a[3]) * t + a[2]) * t + a[1]) * t + a[0];
+    double p1 = (((((7.0 * a[7] * t + 6.0 * a[6]) * t + 5.0 * a[5]) * t + 4.0 * a[4]) * t + 3.0 * a[3]) * t +
+                 2.0 * a[2]) * t + a[1];
+    double p2 = ((((42.0 * a[7] * t + 30.0 * a[6]) * t + 20.0 * a[5]) * t + 12.0 * a[4]) * t + 6.0 * a[3]) * t +
+                2.0 * a[2];
+    double p3 = (((210.0 * a[7] * t + 120.0 * a[6]) * t + 60.0 * a[5]) * t + 24.0 * a[4]) * t + 6.0 * a[3];
     out[0] = p;
     out[1] = p1 * invL;
     out[2] = p2 * invL * invL;
