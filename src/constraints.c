@@ -80,9 +80,12 @@ static void tighten(double *xmax, veer_limit_id *id, double bound, veer_limit_id
 }
 
 /* |f| sdot <= L  ->  x <= L^2 / f^2 */
-static void speed_row(double f, double limit, double *xmax, veer_limit_id *id, veer_limit_id which) {
-    double f2 = f * f;
+static void speed_row2(double f2, double limit, double *xmax, veer_limit_id *id, veer_limit_id which) {
     if (set(limit) && f2 > 0.0) tighten(xmax, id, limit * limit / f2, which);
+}
+
+static void speed_row(double f, double limit, double *xmax, veer_limit_id *id, veer_limit_id which) {
+    speed_row2(f * f, limit, xmax, id, which);
 }
 
 /* |f u + df x| <= L as two rows */
@@ -102,8 +105,8 @@ static int accel_rows(veer_row *rows, double f, double df, double limit, veer_li
  * speed bound xmax allows. radius scales the polygon (R = pg->radius * scale). */
 static int polygon_rows(const veer_polygon *pg, double scale, const double p1[2], const double p2[2], double xmax,
                         veer_limit_id id, veer_row *rows) {
-    double sp = hypot(p1[0], p1[1]);
-    if (!(sp > 0.0 || hypot(p2[0], p2[1]) > 0.0)) return 0;
+    double sp = sqrt(p1[0] * p1[0] + p1[1] * p1[1]); /* path derivatives: no overflow to guard against */
+    if (!(sp > 0.0 || p2[0] != 0.0 || p2[1] != 0.0)) return 0;
     double tx = 1.0, ty = 0.0;
     if (sp > 0.0) {
         tx = p1[0] / sp;
@@ -177,7 +180,7 @@ int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double x
     const double *dq = pk->dq, *ddq = pk->ddq;
 
     /* Body speed and yaw rate, yaw acceleration. */
-    speed_row(hypot(dq[0], dq[1]), lim->body_speed, xmax, xmax_id, veer__limit(VEER_LIMIT_BODY_SPEED, -1));
+    speed_row2(dq[0] * dq[0] + dq[1] * dq[1], lim->body_speed, xmax, xmax_id, veer__limit(VEER_LIMIT_BODY_SPEED, -1));
     speed_row(dq[2], lim->yaw_rate, xmax, xmax_id, veer__limit(VEER_LIMIT_YAW_RATE, -1));
     m += accel_rows(rows + m, dq[2], ddq[2], lim->yaw_accel, veer__limit(VEER_LIMIT_YAW_ACCEL, -1));
 

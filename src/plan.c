@@ -276,8 +276,12 @@ static int midpoint_rows(const veer_plan *plan, int j, const veer_row_ctx *ctx, 
             int c = veer__point_rows(ctx, &pk, xf, rows, &xmax, &id);
             if (c < 0) break;
             double worst = isfinite(xmax) ? xf / xmax : 0.0;
-            for (int r = 0; r < c; r++)
-                if (rows[r].c > 0.0) worst = fmax(worst, (rows[r].a * u + rows[r].b * xf) / rows[r].c);
+            if (isnan(worst)) worst = -VEER_UNLIMITED; /* as fmax: a NaN start gives way to the first row */
+            for (int r = 0; r < c && !(worst > 1.0 + 3e-3); r++) {
+                if (!(rows[r].c > 0.0)) continue;
+                double v = (rows[r].a * u + rows[r].b * xf) / rows[r].c;
+                if (v > worst) worst = v; /* fmax(worst, v) without the call */
+            }
             if (worst > 1.0 + 3e-3) {
                 if (!add_point_rows(ws, k, ds, f, rows, c, xmax, id)) return -1;
                 done[k] |= (unsigned char)(1u << q);
