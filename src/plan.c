@@ -487,25 +487,42 @@ static veer_status start_state(veer_plan *plan, double *x_start, veer_diag *diag
 /* 2: a module's direction turns more than 15 degrees (steer continuity
  * needs points there); 1: only its steer-rate bound changes more than 10 %
  * while it could bind; 0: neither. */
-static int needs_points(const veer_plan *plan, const veer_point_kin *pa, const veer_point_kin *pb) {
+/* A path position for the grid refinement: its kinematics and each
+ * working module's velocity and steer slope there (steer_slope), worked out
+ * once per point. */
+typedef struct {
+    veer_point_kin pk;
+    double r[VEER_MAX_MODULES], v[VEER_MAX_MODULES][2];
+} grid_probe;
+
+static void probe_at(const veer_plan *plan, int seg, double s, grid_probe *g) {
+    veer__point_kin(&plan->path, seg, s, &g->pk);
+    if (!plan->steered) return;
+    for (int i = 0; i < plan->module_count; i++)
+        if (!plan->drive.modules[i].out) g->r[i] = steer_slope(&plan->drive, i, g->pk.xi, g->pk.dxi, g->v[i]);
+}
+
+static int needs_points(const veer_plan *plan, const grid_probe *ga, const grid_probe *gb) {
     static const double c2 = 0.9330127018922193; /* cos^2(15 degrees) */
     const veer_drive_def *d = &plan->drive;
+    const veer_point_kin *pa = &ga->pk, *pb = &gb->pk;
     int need = 0;
     for (int i = 0; i < plan->module_count; i++) {
         if (d->modules[i].out) continue;
-        double va[2], vb[2];
-        double ra = steer_slope(d, i, pa->xi, pa->dxi, va), rb = steer_slope(d, i, pb->xi, pb->dxi, vb);
+        const double *va = ga->v[i], *vb = gb->v[i];
+        double ra = ga->r[i], rb = gb->r[i];
         double a2 = va[0] * va[0] + va[1] * va[1], b2 = vb[0] * vb[0] + vb[1] * vb[1], dot = va[0] * vb[0] + va[1] * vb[1];
         if (a2 < 1e-18 || b2 < 1e-18) continue;
         if (dot < 0.0 || dot * dot < c2 * a2 * b2) return 2;
         const veer_module_limits *ml = &plan->limits.modules[i];
-        double hi = fmax(ra, rb), lo = fmin(ra, rb);
+        double hi = ra > rb ? ra : rb, lo = ra > rb ? rb : ra; /* both >= 0 */
         if (need || !isfinite(ml->steer_rate) || !(hi > 0.0) || hi * hi <= 1.1 * lo * lo) continue;
         const veer_point_kin *pk = ra > rb ? pa : pb;
         double sp = hypot(pk->dq[0], pk->dq[1]), v = sqrt(ra > rb ? a2 : b2);
         double other = VEER_UNLIMITED;
         if (isfinite(plan->limits.body_speed) && sp > 0.0) other = plan->limits.body_speed / sp;
-        if (isfinite(ml->wheel_rate) && v > 0.0) other = fmin(other, ml->wheel_rate * d->wheel_radius / v);
+        if (isfinite(ml->wheel_rate) && v > 0.0 && ml->wheel_rate * d->wheel_radius / v < other)
+            other = ml->wheel_rate * d->wheel_radius / v;
         if (ml->steer_rate / hi < 1.5 * other) need = 1;
     }
     return need;
@@ -515,17 +532,17 @@ static int needs_points(const veer_plan *plan, const veer_point_kin *pa, const v
  * while needs_points says so, writing the new points in order. budget[0]
  * bounds the points added for steer continuity, budget[1] those for the
  * steer-rate bound. */
-static int refine(const veer_plan *plan, int seg, double sa, const veer_point_kin *pa, double sb,
-                  const veer_point_kin *pb, int depth, int budget[2], double **out, veer_point_kin **kin) {
+static int refine(const veer_plan *plan, int seg, double sa, const grid_probe *pa, double sb, const grid_probe *pb,
+                  int depth, int budget[2], double **out, veer_point_kin **kin) {
     int need = depth < 24 ? needs_points(plan, pa, pb) : 0;
     if (need == 0 || budget[need == 2 ? 0 : 1] <= 0) return 0;
     double sm = 0.5 * (sa + sb);
-    veer_point_kin pm;
-    veer__point_kin(&plan->path, seg, sm, &pm);
+    grid_probe pm;
+    probe_at(plan, seg, sm, &pm);
     budget[need == 2 ? 0 : 1]--;
     int n = refine(plan, seg, sa, pa, sm, &pm, depth + 1, budget, out, kin);
     *(*out)++ = sm;
-    *(*kin)++ = pm;
+    *(*kin)++ = pm.pk;
     return n + 1 + refine(plan, seg, sm, &pm, sb, pb, depth + 1, budget, out, kin);
 }
 
@@ -544,10 +561,10 @@ static int grid_points(const veer_plan *plan, const int *intervals, double *out,
         const veer_path_segment *ps = &path->segments[j];
         if (seg_first) seg_first[j] = n;
         double prev = ps->s_begin;
-        veer_point_kin pprev, pk;
-        veer__point_kin(path, j, prev, &pprev);
+        grid_probe pprev, pk;
+        probe_at(plan, j, prev, &pprev);
         *out++ = prev;
-        *kin++ = pprev;
+        *kin++ = pprev.pk;
         n++;
         for (int p = ps->first_piece; p < ps->first_piece + ps->piece_count; p++) {
             const veer_path_piece *pc = &path->pieces[p];
@@ -555,11 +572,11 @@ static int grid_points(const veer_plan *plan, const int *intervals, double *out,
                 double sn = (p + 1 == ps->first_piece + ps->piece_count && i == intervals[p])
                                 ? ps->s_end
                                 : pc->s0 + pc->len * i / intervals[p];
-                veer__point_kin(path, j, sn, &pk);
+                probe_at(plan, j, sn, &pk);
                 if (plan->steered) n += refine(plan, j, prev, &pprev, sn, &pk, 0, budget, &out, &kin);
                 pprev = pk;
                 *out++ = sn;
-                *kin++ = pk;
+                *kin++ = pk.pk;
                 n++;
                 prev = sn;
             }
