@@ -178,6 +178,17 @@ veer_status veer__topp_solve(const veer_topp_problem *p, double x_start, double 
     return VEER_OK;
 }
 
+/* One row's relative slack at (u, x), kept in *tight / *best when it is the
+ * smallest so far (the first of equals). */
+static inline void binding_row(const veer_row *r, double a, double u, double x, double *tight, veer_limit_id *best) {
+    if (!(r->c > 0.0)) return;
+    double slack = (r->c - a * u - r->b * x) / r->c;
+    if (slack < *tight) {
+        *tight = slack;
+        *best = r->id;
+    }
+}
+
 veer_limit_id veer__topp_binding(const veer_topp_problem *p, const double *x, int k) {
     veer_limit_id best = veer__limit(VEER_LIMIT_NONE, -1);
     if (k >= p->n - 1) return best;
@@ -187,17 +198,13 @@ veer_limit_id veer__topp_binding(const veer_topp_problem *p, const double *x, in
     double d2 = 2.0 * (p->s[k + 1] - p->s[k]);
     double u = (x[k + 1] - x[k]) / d2;
     double tight = 2e-3;
-    int ne = p->extra ? p->extra_n[k] : 0;
-    for (int j = 0; j < n0 + n1 + ne; j++) {
-        int first = j < n0, second = !first && j < n0 + n1;
-        const veer_row *r = first ? &r0[j] : second ? &r1[j - n0] : &p->extra[p->extra_at[k] + j - n0 - n1];
-        double a = first || !second ? r->a : r->a + d2 * r->b;
-        if (!(r->c > 0.0)) continue;
-        double slack = (r->c - a * u - r->b * x[k]) / r->c;
-        if (slack < tight) {
-            tight = slack;
-            best = r->id;
+    /* rows of point k, of point k + 1 in the stage's variables, then the extra rows */
+    for (int j = 0; j < n0; j++) binding_row(&r0[j], r0[j].a, u, x[k], &tight, &best);
+    for (int j = 0; j < n1; j++) binding_row(&r1[j], r1[j].a + d2 * r1[j].b, u, x[k], &tight, &best);
+    if (p->extra)
+        for (int j = 0; j < p->extra_n[k]; j++) {
+            const veer_row *e = &p->extra[p->extra_at[k] + j];
+            binding_row(e, e->a, u, x[k], &tight, &best);
         }
-    }
     return best;
 }
