@@ -19,7 +19,7 @@ double veer__steer_near(double dir, double ref) {
  * module stands (speed below VEER_STILL). */
 static int dir_of(const veer_drive_def *d, int i, const double xi[3], double *dir) {
     double vx = xi[0] - xi[2] * d->modules[i].y, vy = xi[1] + xi[2] * d->modules[i].x;
-    if (hypot(vx, vy) <= VEER_STILL) return 0;
+    if (vx * vx + vy * vy <= VEER_STILL * VEER_STILL) return 0; /* |v| <= VEER_STILL, without hypot's cost */
     *dir = atan2(vy, vx);
     return 1;
 }
