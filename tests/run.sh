@@ -17,6 +17,7 @@
 #   VEER_BENCH=1     run examples/bench_plan after the tests
 #   VEER_HARDEN=0    skip the hardening stages (sanitize, valgrind, fuzz)
 #   VEER_FUZZ_SECONDS  seconds of fuzzing per target (default 20; three targets)
+#   VEER_FUZZ_SEED   libFuzzer's seed (default 1, so runs repeat; 0: a new one each run)
 #   VEER_KEEP_TMP=1  keep the temporary install prefix and print where it is
 #
 # Each stage is one function below; add a stage by writing a function and a
@@ -312,6 +313,7 @@ stage_clang() {
 
 SANITIZE_FLAGS="-fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer"
 VALGRIND_PROPERTY_CASES=100 # of test_property's 2000 cases: memcheck is ~40 times slower
+VALGRIND_GARBAGE_ROUNDS=300 # of test_wire's 3000 rounds of random bytes, for the same reason
 FUZZ_TARGETS=(fuzz_plan_request fuzz_plan_decode fuzz_link_receiver)
 
 stage_sanitize() {
@@ -339,7 +341,7 @@ stage_sanitize() {
 valgrind_suite() {
     local exe=$1 logs=$2 name rc=0
     name=$(basename "$exe")
-    VEER_PROPERTY_CASES=$VALGRIND_PROPERTY_CASES timeout "$CTEST_TIMEOUT" valgrind --error-exitcode=99 \
+    VEER_PROPERTY_CASES=$VALGRIND_PROPERTY_CASES VEER_GARBAGE_ROUNDS=$VALGRIND_GARBAGE_ROUNDS timeout "$CTEST_TIMEOUT" valgrind --error-exitcode=99 \
         --leak-check=full --errors-for-leak-kinds=definite,indirect --show-leak-kinds=definite,indirect \
         --track-origins=yes --trace-children=yes --log-file="$logs/$name.%p.log" "$exe" --jobs 1 \
         >"$logs/$name.out" 2>&1 || rc=$?
@@ -390,6 +392,7 @@ stage_fuzz() {
     [[ ${VEER_HARDEN:-1} == 0 ]] && skip "VEER_HARDEN=0"
     command -v clang >/dev/null 2>&1 || { note "clang is not installed"; return 1; }
     local dir=$BUILD_DIR/fuzz art=$BUILD_DIR/fuzz-artifacts secs=${VEER_FUZZ_SECONDS:-20}
+    local seed=${VEER_FUZZ_SEED:-1} # fixed, so a CI run repeats; 0 lets libFuzzer pick (exploration)
     local t f rc open=() crashed=() stats=""
     fresh_dir "$dir"
     rm -rf "$art" && mkdir -p "$art"
@@ -407,7 +410,7 @@ stage_fuzz() {
         # A bounded run from the committed seeds; new inputs stay in the build tree.
         mkdir -p "$dir/corpus/$t"
         rc=0
-        (cd "$art" && "$dir/tests/fuzz/$t" -max_total_time="$secs" -timeout=10 -rss_limit_mb=2048 \
+        (cd "$art" && "$dir/tests/fuzz/$t" -max_total_time="$secs" -timeout=10 -rss_limit_mb=2048 -seed="$seed" \
             -artifact_prefix="$art/$t-" -print_final_stats=1 "$dir/corpus/$t" "$REPO/tests/fuzz/corpus/$t") \
             >"$art/$t.log" 2>&1 || rc=$?
         grep -E '^#[0-9]+ +DONE|fuzz finding|runtime error|ERROR: ' "$art/$t.log" | head -n 5 || true
