@@ -131,14 +131,21 @@ def main(argv=None):
     held = None
     if a.hold_stopped > 0:
         seen = session.hold(a.hold_stopped, a.heartbeat_period)
-        session.command(vl.START, plan_id)  # a START of the spent plan must change nothing
-        seen += session.hold(1.0, a.heartbeat_period)
-        seen = [report_dict(r) for r in seen]
+        # A START of the spent plan must change nothing. Sent three times, as
+        # an operator would retry: the radio may lose any one frame.
+        after = []
+        for _ in range(3):
+            session.command(vl.START, plan_id)
+            after += session.hold(0.4, a.heartbeat_period)
+        seen = [report_dict(r) for r in seen + after]
         held = {"reports": len(seen), "states": sorted({s["state"] for s in seen}),
                 "stop_reasons": sorted({s["stop_reason"] for s in seen}),
                 "poses": [seen[0]["pose"], seen[-1]["pose"]] if seen else [],
-                "last_rejection": seen[-1]["last_rejection"] if seen else None}
-        log("held %.1f s after the stop: %d reports, states %s" % (a.hold_stopped + 1.0, len(seen),
+                "last_rejection": seen[-1]["last_rejection"] if seen else None,
+                # what the cart refused after the STARTs (a corrupted frame
+                # on the way shows up here too, as TRUNCATED or CRC)
+                "rejections_after_start": sorted({report_dict(r)["last_rejection"] for r in after})}
+        log("held %.1f s after the stop: %d reports, states %s" % (a.hold_stopped + 1.2, len(seen),
                                                                  ", ".join(held["states"])))
     stats = session.stats.as_dict()
     log("frames on the air from the ground: %d (%d bytes); from the cart: %d (%d bytes)" % (

@@ -774,7 +774,12 @@ Test(wire_plan, reply_carries_grid_and_legs) {
         cr_expect_eq(rep->legs[l].start, ls.start);
         cr_expect_eq(rep->legs[l].s_end, ls.s_end);
     }
+    /* The reply's duration is the planner's (as its legs and grid); the
+     * plan it carries states the compact profile's, within 1e-4 of it (0.3
+     * ms on the demo's 14.4 s: the profile's quantization). */
     cr_expect_eq(rep->duration, veer_plan_duration(w->plan));
+    cr_expect(fabs(rep->plan.duration - rep->duration) < 1e-4 * rep->duration, "%.9f vs %.9f", rep->plan.duration,
+              rep->duration);
     free_column(&cs), free_column(&cv), free_column(&ck), free_column(&cm);
     free(rep);
     demo_free(w);

