@@ -4,7 +4,8 @@
 # figures) and the benchmark programs, then prints markdown tables:
 #   planning time against scipy's HiGHS on the identical LP (bench/bench.py lp),
 #   scaling with grid size, route length and module count (bench_cart scaling),
-#   cart side: player step time, stack, memory, code and static RAM size,
+#   cart side: player step time, stack, memory, code and static RAM size
+#   (-O2, -Os, and -Os with VEER_TERSE_DIAG as a firmware might be built),
 #   encoded plan size and airtime against the dense 50 Hz setpoint stream,
 #   the time a user saves against a careful conventional plan.
 #
@@ -33,6 +34,12 @@ cmake -S "$REPO" -B "$BUILD-os" -DCMAKE_BUILD_TYPE=MinSizeRel -DVEER_BUILD_TESTS
     { cat "$BUILD-os.cmake.log"; exit 1; }
 cmake --build "$BUILD-os" -j "$(nproc)" --target veer_static >"$BUILD-os.build.log" 2>&1 ||
     { tail -n 40 "$BUILD-os.build.log"; exit 1; }
+# And at -Os with VEER_TERSE_DIAG (diagnostics without message text), as a cart's firmware may be built.
+cmake -S "$REPO" -B "$BUILD-os-terse" -DCMAKE_BUILD_TYPE=MinSizeRel -DVEER_BUILD_TESTS=OFF -DVEER_BUILD_EXAMPLES=OFF \
+    -DVEER_TERSE_DIAG=ON -DCMAKE_C_FLAGS="-ffunction-sections -fdata-sections" >"$BUILD-os-terse.cmake.log" 2>&1 ||
+    { cat "$BUILD-os-terse.cmake.log"; exit 1; }
+cmake --build "$BUILD-os-terse" -j "$(nproc)" --target veer_static >"$BUILD-os-terse.build.log" 2>&1 ||
+    { tail -n 40 "$BUILD-os-terse.build.log"; exit 1; }
 NANOPB_INC=$(sed -n 's/^VEER_NANOPB_INCLUDE_DIR:PATH=//p' "$BUILD/CMakeCache.txt")
 cc -std=c11 -O2 -Wall -Wextra -Werror -I"$REPO/include" -I"$REPO/src" -I"$REPO/examples" -I"$BUILD/pb" \
     -I"$NANOPB_INC" "$REPO/bench/bench_cart.c" "$BUILD/libveer.a" -lm -lpthread -o "$BUILD/bench_cart"
@@ -45,6 +52,7 @@ trap 'rm -rf "$OUT"' EXIT
 "$BUILD/bench_cart" player >"$OUT/player.md"
 "$PYTHON" "$REPO/bench/size.py" "$BUILD" >"$OUT/size.md"
 "$PYTHON" "$REPO/bench/size.py" "$BUILD-os" cc -Os >"$OUT/size_os.md"
+"$PYTHON" "$REPO/bench/size.py" "$BUILD-os-terse" cc -Os >"$OUT/size_os_terse.md"
 "$BUILD/bench_cart" stack >"$OUT/stack.txt"
 "$BUILD/bench_cart" wire "$RATE" >"$OUT/wire.md"
 "$PYTHON" "$REPO/bench/bench.py" conventional "$BUILD" >"$OUT/conventional.md"
@@ -57,7 +65,7 @@ verdict() { # verdict OK?: met / missed
 }
 ratio=$(fig lp_ratio_1000) diff=$(fig lp_diff_1000) scale=$(fig scale_16000_over_1000) step=$(fig step_mean_us)
 p99=$(fig step_p99_us) code=$(fig code_bytes) ram=$(fig ram_bytes)
-code_os=$(fig code_bytes_Os)
+code_os=$(fig code_bytes_Os) code_terse=$(fig code_bytes_Os_terse)
 stack=$(fig stack_high_water_bytes) mem=$(fig player_size_bytes)
 ok() { awk "BEGIN {print ($1) ? 1 : 0}"; }
 
@@ -77,10 +85,10 @@ ok() { awk "BEGIN {print ($1) ? 1 : 0}"; }
     echo "| ... with the duration within 0.2 % of the LP optimum | ${diff} % | $(verdict "$(ok "$diff <= 0.2 && $diff >= -0.2")") |"
     echo "| time linear in N: 16000 grid points cost at most 20 times 1000 | $scale times | $(verdict "$(ok "$scale <= 20")") |"
     echo "| player step under 1 us for a 4-module cart | mean $step us, 99th percentile $p99 us | $(verdict "$(ok "$step < 1")") |"
-    echo "| receiver + player + decoder under 48 KiB of code | -O2: $code B ($(awk "BEGIN {printf \"%.1f\", $code / 1024}") KiB); -Os: $code_os B ($(awk "BEGIN {printf \"%.1f\", $code_os / 1024}") KiB) (HMAC-SHA-256 included) | $(verdict "$(ok "$code_os < 49152")") |"
+    echo "| receiver + player + decoder under 48 KiB of code | -O2: $code B ($(awk "BEGIN {printf \"%.1f\", $code / 1024}") KiB); -Os: $code_os B ($(awk "BEGIN {printf \"%.1f\", $code_os / 1024}") KiB); -Os with VEER_TERSE_DIAG: $code_terse B ($(awk "BEGIN {printf \"%.1f\", $code_terse / 1024}") KiB); HMAC-SHA-256 included | $(verdict "$(ok "$code_os < 49152")") |"
     echo "| ... and under 16 KiB of RAM | static $ram B; stack high-water $stack B; player memory (caller's) $mem B | $(verdict "$(ok "$ram + $stack + $mem < 16384")") (static RAM alone: $(verdict "$(ok "$ram < 16384")")) |"
     echo
-    for part in lp scaling player size size_os; do
+    for part in lp scaling player size size_os size_os_terse; do
         sed '/^summary /d' "$OUT/$part.md"
         echo
     done

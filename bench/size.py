@@ -5,6 +5,9 @@ archive member they came from.
 
   /usr/bin/python3 bench/size.py BUILD_DIR [CC [OPT]]
 
+A library configured with -DVEER_TERSE_DIAG=ON (diagnostics without their
+message text) is named so in the heading and its summary keys end in _terse.
+
 Code is .text* and .rodata* (what goes to flash), static RAM .data* and
 .bss*. libc and libm are linked dynamically here and not counted (the
 link's HMAC-SHA-256 is veer's own, counted with it). The library must be built
@@ -94,8 +97,14 @@ def main():
             return "generated messages (nanopb)"
         return "veer"
 
+    terse = False
+    cache = os.path.join(build, "CMakeCache.txt")
+    if os.path.exists(cache):
+        with open(cache) as f:
+            terse = any(line.strip() == "VEER_TERSE_DIAG:BOOL=ON" for line in f)
     print("### Cart-side code and static RAM (bench/cart_min.c linked with --gc-sections; %s, library and "
-          "program at %s)\n" % (cc, opt))
+          "program at %s%s)\n" % (cc, opt, "; library with VEER_TERSE_DIAG: messages are the status text" if terse
+                                   else ""))
     print("| object | code (text + rodata) B | static RAM (data + bss) B |\n|---|---|---|")
     tot = collections.Counter()
     for (a, mbr), c in sorted(veer.items(), key=lambda kv: -kv[1]["code"]):
@@ -109,7 +118,7 @@ def main():
     print()
     for g in ("veer", "nanopb runtime", "generated messages (nanopb)"):
         print("- %s: %d B code, %d B static RAM" % (g, by[g]["code"], by[g]["ram"]))
-    tag = "" if opt == "-O2" else "_" + opt.lstrip("-")
+    tag = ("" if opt == "-O2" else "_" + opt.lstrip("-")) + ("_terse" if terse else "")
     print("\nsummary code_bytes%s %d ram_bytes%s %d" % (tag, tot["code"], tag, tot["ram"]))
 
 

@@ -22,6 +22,24 @@ veer_status veer__fail(veer_diag *diag, veer_status status, int leg, int waypoin
     __attribute__((format(printf, 8, 9)))
 #endif
     ;
+/* Cart firmware may be built with VEER_TERSE_DIAG (the CMake option of that
+ * name): veer__fail then keeps the status, indices, path position and limit
+ * but writes the status's own text as the message, so that no message
+ * format is linked in. The compiler still checks each format and its
+ * arguments (in a call that `0 &&` never makes, removed as dead code when
+ * optimizing). Off by default: the tests read the full messages. */
+#ifdef VEER_TERSE_DIAG
+veer_status veer__fail_terse(veer_diag *diag, veer_status status, int leg, int waypoint, int grid_index, double s,
+                             veer_limit_id limit);
+int veer__fail_format(const char *fmt, ...) /* never called; returns 0 */
+#if defined(__GNUC__)
+    __attribute__((format(printf, 1, 2)))
+#endif
+    ;
+#define veer__fail(diag, status, leg, waypoint, grid_index, s, limit, ...)    \
+    ((void)(0 && veer__fail_format(__VA_ARGS__)),                               \
+     veer__fail_terse((diag), (status), (leg), (waypoint), (grid_index), (s), (limit)))
+#endif
 /* Resets diag to success (no-op on NULL). */
 void veer__diag_ok(veer_diag *diag);
 /* A limit id; module -1 for body limits. */

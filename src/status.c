@@ -62,6 +62,18 @@ void veer__diag_ok(veer_diag *diag) {
     diag->limit = veer__limit(VEER_LIMIT_NONE, -1);
 }
 
+#ifdef VEER_TERSE_DIAG
+#undef veer__fail
+int veer__fail_format(const char *fmt, ...) {
+    (void)fmt;
+    return 0;
+}
+veer_status veer__fail_terse(veer_diag *diag, veer_status status, int leg, int waypoint, int grid_index, double s,
+                             veer_limit_id limit) {
+    return veer__fail(diag, status, leg, waypoint, grid_index, s, limit, "%s", veer_status_str(status));
+}
+#endif
+
 veer_status veer__fail(veer_diag *diag, veer_status status, int leg, int waypoint, int grid_index, double s,
                        veer_limit_id limit, const char *fmt, ...) {
     if (!diag) return status;

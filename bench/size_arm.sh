@@ -1,0 +1,57 @@
+#!/usr/bin/env bash
+# Cart-side code size on a Cortex-M7 (Thumb-2, double-precision FPU), the kind
+# of controller a cart might carry: compiles src/*.c and the generated nanopb
+# messages with arm-none-eabi-gcc at -Os, links bench/cart_min.c against them
+# with --gc-sections (newlib-nano) and sums, from the map, what veer kept
+# (bench/size.py's parser). nanopb's runtime (pb_decode, pb_encode,
+# pb_common) is NOT counted: Debian ships it built for the host only, so its
+# symbols are left unresolved here; add its size on the target by hand.
+#
+#   bench/size_arm.sh [BUILD_DIR]    a configured build tree (for the generated
+#                                    messages); default /tmp/veer-bench-os
+#   VEER_TERSE_DIAG=1 bench/size_arm.sh   the same with VEER_TERSE_DIAG
+#
+# Needs Debian's gcc-arm-none-eabi and libnewlib-arm-none-eabi (not in the
+# test command's package list: this is an optional measurement).
+set -euo pipefail
+
+REPO=$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)
+BUILD=${1:-/tmp/veer-bench-os}
+PYTHON=/usr/bin/python3
+command -v arm-none-eabi-gcc >/dev/null || {
+    echo "size_arm.sh: arm-none-eabi-gcc not found (apt-get install gcc-arm-none-eabi libnewlib-arm-none-eabi)" >&2
+    exit 1
+}
+[[ -f $BUILD/pb/veer/v1/plan.pb.c ]] || {
+    echo "size_arm.sh: $BUILD has no generated messages: run bench/run.sh or configure and build it first" >&2
+    exit 1
+}
+NANOPB_INC=$(sed -n 's/^VEER_NANOPB_INCLUDE_DIR:PATH=//p' "$BUILD/CMakeCache.txt")
+OUT=$(mktemp -d)
+trap 'rm -rf "$OUT"' EXIT
+mkdir "$OUT/inc"
+cp "$NANOPB_INC"/pb.h "$NANOPB_INC"/pb_common.h "$NANOPB_INC"/pb_decode.h "$NANOPB_INC"/pb_encode.h "$OUT/inc/"
+FLAGS=(-std=c11 -Os -mthumb -mcpu=cortex-m7 -mfpu=fpv5-d16 -mfloat-abi=hard -ffunction-sections -fdata-sections
+    -DNDEBUG -I"$REPO/include" -I"$REPO/src" -I"$BUILD/pb" -I"$OUT/inc")
+[[ ${VEER_TERSE_DIAG:-0} == 1 ]] && FLAGS+=(-DVEER_TERSE_DIAG)
+for f in "$REPO"/src/*.c "$BUILD"/pb/veer/v1/*.pb.c; do
+    arm-none-eabi-gcc "${FLAGS[@]}" -c "$f" -o "$OUT/$(basename "$f").o"
+done
+arm-none-eabi-ar rcs "$OUT/libveer.a" "$OUT"/*.o
+arm-none-eabi-gcc "${FLAGS[@]}" "$REPO/bench/cart_min.c" "$OUT/libveer.a" --specs=nano.specs --specs=nosys.specs \
+    -Wl,--gc-sections -Wl,-Map="$OUT/cart.map" -Wl,--unresolved-symbols=ignore-all -lm -o "$OUT/cart.elf"
+"$PYTHON" - "$OUT/cart.map" "${VEER_TERSE_DIAG:-0}" "$REPO/bench" <<'EOF'
+import collections, sys
+sys.path.insert(0, sys.argv[3])
+import size
+sizes = {k: v for k, v in size.parse(sys.argv[1]).items() if k[0] == "libveer.a"}
+print("### Cart-side code on a Cortex-M7 (arm-none-eabi-gcc -Os -mthumb%s; nanopb runtime not counted)\n"
+      % (", VEER_TERSE_DIAG" if sys.argv[2] == "1" else ""))
+print("| object | code (text + rodata) B | static RAM (data + bss) B |\n|---|---|---|")
+tot = collections.Counter()
+for (a, m), c in sorted(sizes.items(), key=lambda kv: -kv[1]["code"]):
+    print("| %s | %d | %d |" % (m.replace(".c.o", ".c"), c["code"], c["ram"]))
+    tot.update(c)
+print("| **veer + generated messages, total** | **%d (%.1f KiB)** | **%d** |" % (tot["code"], tot["code"] / 1024,
+                                                                             tot["ram"]))
+EOF
