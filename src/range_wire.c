@@ -252,27 +252,14 @@ static veer_status run_plan(plan_work *w, const uint8_t *request, size_t request
     const veer_v1_PlanRequest *r = &w->req.request;
     if (!w->req.has_request)
         return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "range plan request: the request is missing");
-    if ((st = version_ok(r->schema_version, "range plan request", diag))) return st;
-    if (!r->has_drive || !r->has_route)
-        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "range plan request: the %s is missing",
-                          !r->has_drive ? "drive" : "route");
-    if (!veer__wire_utf8_ok(r->cart_id))
-        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "request.cart_id is not valid UTF-8");
+    veer_wire_inputs in;
+    if ((st = veer__wire_request_inputs(r, "range plan request", &in, diag))) return st;
     if ((st = range_from_pb(w->req.has_range, &w->req.range, &w->range, diag))) return st;
     if ((st = footprint_from_pb(w->req.has_footprint, &w->req.footprint, &w->fp, "range plan request", diag)))
         return st;
-    veer_drive_def drive;
-    veer_limits limits = veer_default_limits();
-    veer_route route;
-    veer_plan_options opt = veer_default_plan_options();
-    if ((st = veer__wire_drive_from_pb(&r->drive, &drive, diag))) return st;
-    if ((st = veer_drive_check(&drive, diag))) return st;
-    int M = veer_drive_module_count(&drive);
-    if (r->has_limits && (st = veer__wire_limits_from_pb(&r->limits, M, &limits, diag))) return st;
-    if ((st = veer__wire_route_from_pb(&r->route, M, &route, diag))) return st;
-    if (r->has_options && (st = veer__wire_options_from_pb(&r->options, &opt, diag))) return st;
     veer_plan *plan = NULL;
-    if ((st = veer_plan_create_in_range(&drive, &limits, &route, &opt, &w->range, &w->fp, &plan, diag))) return st;
+    if ((st = veer_plan_create_in_range(&in.drive, &in.limits, &in.route, &in.options, &w->range, &w->fp, &plan, diag)))
+        return st;
     st = veer__wire_plan_to_pb(plan, r, &w->plan_msg, diag);
     veer_plan_destroy(plan);
     if (st) return st;

@@ -48,29 +48,34 @@ static void fill_error(veer_v1_PlanReply *rep, const veer_diag *d) {
     veer__wire_diag_to_pb(d, &rep->diagnostic);
 }
 
-static veer_status plan_request(const request_work *w, veer_plan **plan, veer_diag *diag) {
-    const veer_v1_PlanRequest *r = &w->req;
+veer_status veer__wire_request_inputs(const veer_v1_PlanRequest *r, const char *what, veer_wire_inputs *out,
+                                      veer_diag *diag) {
     if (r->schema_version != 0 && r->schema_version != VEER_WIRE_SCHEMA_VERSION)
         return veer__fail(diag, VEER_ERR_VERSION, -1, -1, -1, -1.0, NONE_ID,
-                          "request: schema version %u, this library reads version %d", (unsigned)r->schema_version,
+                          "%s: schema version %u, this library reads version %d", what, (unsigned)r->schema_version,
                           VEER_WIRE_SCHEMA_VERSION);
     if (!r->has_drive || !r->has_route)
-        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "request: the %s is missing",
+        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "%s: the %s is missing", what,
                           !r->has_drive ? "drive" : "route");
     if (!veer__wire_utf8_ok(r->cart_id))
         return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "request.cart_id is not valid UTF-8");
-    veer_drive_def drive;
-    veer_limits limits = veer_default_limits();
-    veer_route route;
-    veer_plan_options opt = veer_default_plan_options();
+    out->limits = veer_default_limits();
+    out->options = veer_default_plan_options();
     veer_status st;
-    if ((st = veer__wire_drive_from_pb(&r->drive, &drive, diag))) return st;
-    if ((st = veer_drive_check(&drive, diag))) return st;
-    int M = veer_drive_module_count(&drive);
-    if (r->has_limits && (st = veer__wire_limits_from_pb(&r->limits, M, &limits, diag))) return st;
-    if ((st = veer__wire_route_from_pb(&r->route, M, &route, diag))) return st;
-    if (r->has_options && (st = veer__wire_options_from_pb(&r->options, &opt, diag))) return st;
-    return veer_plan_create(&drive, &limits, &route, &opt, plan, diag);
+    if ((st = veer__wire_drive_from_pb(&r->drive, &out->drive, diag))) return st;
+    if ((st = veer_drive_check(&out->drive, diag))) return st;
+    int M = veer_drive_module_count(&out->drive);
+    if (r->has_limits && (st = veer__wire_limits_from_pb(&r->limits, M, &out->limits, diag))) return st;
+    if ((st = veer__wire_route_from_pb(&r->route, M, &out->route, diag))) return st;
+    if (r->has_options && (st = veer__wire_options_from_pb(&r->options, &out->options, diag))) return st;
+    return VEER_OK;
+}
+
+static veer_status plan_request(const request_work *w, veer_plan **plan, veer_diag *diag) {
+    veer_wire_inputs in;
+    veer_status st = veer__wire_request_inputs(&w->req, "request", &in, diag);
+    if (st) return st;
+    return veer_plan_create(&in.drive, &in.limits, &in.route, &in.options, plan, diag);
 }
 
 veer_status veer_plan_request_pb(const uint8_t *request, size_t request_size, uint8_t *reply, size_t reply_capacity,

@@ -39,6 +39,18 @@ veer_status veer__wire_drive_from_pb(const veer_v1_DriveDef *m, veer_drive_def *
 veer_status veer__wire_limits_from_pb(const veer_v1_Limits *m, int module_count, veer_limits *out, veer_diag *diag);
 veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, veer_route *out, veer_diag *diag);
 veer_status veer__wire_options_from_pb(const veer_v1_PlanOptions *m, veer_plan_options *out, veer_diag *diag);
+/* What the planner takes from a PlanRequest (wire_api.c). */
+typedef struct {
+    veer_drive_def drive;
+    veer_limits limits;
+    veer_route route;
+    veer_plan_options options;
+} veer_wire_inputs;
+/* Checks the request's schema version, that drive and route are there and
+ * cart_id is UTF-8, and converts drive (checked), limits, route and options;
+ * messages start with what ("request", ...). */
+veer_status veer__wire_request_inputs(const veer_v1_PlanRequest *r, const char *what, veer_wire_inputs *out,
+                                      veer_diag *diag);
 
 /* Each *_to_pb writes the canonical message of a checked struct: fields that
  * apply to its kind, unset limits left out, identical module limits once. */
