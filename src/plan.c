@@ -200,10 +200,13 @@ static int has_motor_curve(const veer_plan *plan) {
     return 0;
 }
 
-/* Room in the row pool for `need` rows (keeping the first `used`); when it
- * grows, it grows to `want`, the worst case of the rest of the segment. */
-static int rows_room(veer_workspace *ws, size_t used, size_t need, size_t want) {
+/* Room in the row pool for `need` rows (keeping the first `used`); it
+ * doubles when it grows, and never beyond `most` (the worst case of the
+ * rest of the segment). */
+static int rows_room(veer_workspace *ws, size_t used, size_t need, size_t most) {
     if (need <= ws->rows_cap) return 1;
+    size_t want = 2 * ws->rows_cap;
+    if (want > most) want = most;
     if (want < need) want = need;
     veer_row *pool = veer__alloc(want * sizeof *pool);
     if (!pool) return 0;
@@ -532,40 +535,64 @@ static int needs_points(const veer_plan *plan, const grid_probe *ga, const grid_
  * while needs_points says so, writing the new points in order. budget[0]
  * bounds the points added for steer continuity, budget[1] those for the
  * steer-rate bound. */
-static int refine(const veer_plan *plan, int seg, double sa, const grid_probe *pa, double sb, const grid_probe *pb,
-                  int depth, int budget[2], double **out, veer_point_kin **kin) {
+/* The grid as it is written: positions (room for the worst case) and the
+ * path kinematics there, in a buffer that starts at the pieces' points and
+ * doubles when refinement needs more (a worst-case buffer would be five
+ * times the usual one). */
+typedef struct {
+    double *s;
+    veer_point_kin *kin;
+    int n, cap; /* points written, room in kin */
+    int oom;    /* 1: kin could not grow */
+} grid_out;
+
+static void grid_push(grid_out *g, double s, const veer_point_kin *pk) {
+    if (g->oom) return;
+    if (g->n == g->cap) {
+        int cap = 2 * g->cap;
+        veer_point_kin *k = veer__alloc((size_t)cap * sizeof *k);
+        if (!k) {
+            g->oom = 1;
+            return;
+        }
+        memcpy(k, g->kin, (size_t)g->n * sizeof *k);
+        veer__free(g->kin, (size_t)g->cap * sizeof *g->kin);
+        g->kin = k;
+        g->cap = cap;
+    }
+    g->s[g->n] = s;
+    g->kin[g->n++] = *pk;
+}
+
+static void refine(const veer_plan *plan, int seg, double sa, const grid_probe *pa, double sb, const grid_probe *pb,
+                   int depth, int budget[2], grid_out *g) {
     int need = depth < 24 ? needs_points(plan, pa, pb) : 0;
-    if (need == 0 || budget[need == 2 ? 0 : 1] <= 0) return 0;
+    if (need == 0 || budget[need == 2 ? 0 : 1] <= 0) return;
     double sm = 0.5 * (sa + sb);
     grid_probe pm;
     probe_at(plan, seg, sm, &pm);
     budget[need == 2 ? 0 : 1]--;
-    int n = refine(plan, seg, sa, pa, sm, &pm, depth + 1, budget, out, kin);
-    *(*out)++ = sm;
-    *(*kin)++ = pm.pk;
-    return n + 1 + refine(plan, seg, sm, &pm, sb, pb, depth + 1, budget, out, kin);
+    refine(plan, seg, sa, pa, sm, &pm, depth + 1, budget, g);
+    grid_push(g, sm, &pm.pk);
+    refine(plan, seg, sm, &pm, sb, pb, depth + 1, budget, g);
 }
 
 /* The grid: the pieces' points (grid_layout), plus, for steered drives,
  * points where a module's direction or its steer-rate bound changes fast
  * (an ICR passing close to it), so steer angles, their rates and the
- * steer-rate bound are resolved there. out and kin (the path kinematics at
- * each point, for the solves) have room for the pieces' points plus 4.25
- * grid_points more; returns the number of points written. */
-static int grid_points(const veer_plan *plan, const int *intervals, double *out, veer_point_kin *kin,
-                       int *seg_first) {
+ * steer-rate bound are resolved there. g->s has room for the pieces' points
+ * plus 4.25 grid_points more. */
+static void grid_points(const veer_plan *plan, const int *intervals, grid_out *g, int *seg_first) {
     const veer_path *path = &plan->path;
     /* at most 4 grid_points more for steer continuity, a quarter for the steer-rate bound */
-    int n = 0, budget[2] = {4 * plan->options.grid_points, plan->options.grid_points / 4};
+    int budget[2] = {4 * plan->options.grid_points, plan->options.grid_points / 4};
     for (int j = 0; j < path->segment_count; j++) {
         const veer_path_segment *ps = &path->segments[j];
-        if (seg_first) seg_first[j] = n;
+        if (seg_first) seg_first[j] = g->n;
         double prev = ps->s_begin;
         grid_probe pprev, pk;
         probe_at(plan, j, prev, &pprev);
-        *out++ = prev;
-        *kin++ = pprev.pk;
-        n++;
+        grid_push(g, prev, &pprev.pk);
         for (int p = ps->first_piece; p < ps->first_piece + ps->piece_count; p++) {
             const veer_path_piece *pc = &path->pieces[p];
             for (int i = 1; i <= intervals[p]; i++) {
@@ -573,16 +600,13 @@ static int grid_points(const veer_plan *plan, const int *intervals, double *out,
                                 ? ps->s_end
                                 : pc->s0 + pc->len * i / intervals[p];
                 probe_at(plan, j, sn, &pk);
-                if (plan->steered) n += refine(plan, j, prev, &pprev, sn, &pk, 0, budget, &out, &kin);
+                if (plan->steered) refine(plan, j, prev, &pprev, sn, &pk, 0, budget, g);
                 pprev = pk;
-                *out++ = sn;
-                *kin++ = pk.pk;
-                n++;
+                grid_push(g, sn, &pk.pk);
                 prev = sn;
             }
         }
     }
-    return n;
 }
 
 void veer__plan_timeline(veer_plan *plan) {
@@ -621,15 +645,19 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     grid_layout(path, plan->options.grid_points, intervals);
     int base = path->segment_count;
     for (int p = 0; p < path->piece_count; p++) base += intervals[p];
-    size_t room = (size_t)(base + 4 * plan->options.grid_points + plan->options.grid_points / 4 + 1);
-    size_t grid_room = room * sizeof(double), kin_room = room * sizeof(veer_point_kin);
-    double *grid = veer__alloc(grid_room);
-    veer_point_kin *kin = grid ? veer__alloc(kin_room) : NULL;
-    if (!kin) {
+    size_t grid_room = (size_t)(base + 4 * plan->options.grid_points + plan->options.grid_points / 4 + 1) * sizeof(double);
+    grid_out go = {veer__alloc(grid_room), NULL, 0, base, 0};
+    go.kin = go.s ? veer__alloc((size_t)go.cap * sizeof *go.kin) : NULL;
+    if (go.kin) grid_points(plan, intervals, &go, first);
+    double *grid = go.s;
+    veer_point_kin *kin = go.kin;
+    size_t kin_room = (size_t)go.cap * sizeof *go.kin;
+    if (!kin || go.oom) {
         veer__free(grid, grid_room);
+        veer__free(kin, kin_room);
         return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
     }
-    int n = grid_points(plan, intervals, grid, kin, first);
+    int n = go.n;
     int M = plan->module_count;
     size_t grid_bytes = (size_t)n * (3 * sizeof(double) + sizeof(veer_limit_id)) + (size_t)n * (size_t)M * sizeof(double);
     char *g = veer__alloc(grid_bytes);
@@ -668,7 +696,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     int m = plan->rows.m;
     /* the row pool starts with room for half the most rows a point can have
      * (polygon faces that cannot bind are left out) and grows if need be */
-    ws.rows_cap = (size_t)longest * (size_t)((m + 1) / 2) + (size_t)m;
+    ws.rows_cap = (size_t)longest * (size_t)((m + 3) / 4 + 8) + (size_t)m;
     ws.rows = veer__alloc(ws.rows_cap * sizeof *ws.rows);
     ws.bytes = (size_t)longest * (8 * sizeof(double) + sizeof(veer_limit_id) + 3 * sizeof(int) + 1) + sizeof(int);
     char *w = ws.rows ? veer__alloc(ws.bytes) : NULL;
