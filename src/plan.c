@@ -258,16 +258,21 @@ static int add_point_rows(veer_workspace *ws, int k, double ds, double f, const 
  * checked against every limit at the profile's (u, x there), and its
  * quarter points too where the midpoint comes within 5 % of a limit; where
  * one is exceeded by more than 0.3 %, that point's rows join the stage for
- * the next solve. Returns the number of points added, or -1 when out of
- * memory. */
+ * the next solve. x_old: the profile at the last check (NULL: none), where
+ * an interval whose ends kept their x and that got no point then would
+ * give the same answer again, so it is skipped (VEER_TOPP_CHANGED in done:
+ * a point was added at the last check; bits 0-2: which points were ever
+ * added). Returns the number of points added, or -1 when out of memory. */
 static int midpoint_rows(const veer_plan *plan, int j, const veer_row_ctx *ctx, int n, const double *s,
-                         const double *x, veer_workspace *ws, unsigned char *done) {
+                         const double *x, const double *x_old, veer_workspace *ws, unsigned char *done) {
     veer_row rows[VEER_MAX_POINT_ROWS];
     static const double frac[3] = {0.5, 0.25, 0.75};
     int added = 0;
     for (int k = 0; k + 1 < n; k++) {
         double ds = s[k + 1] - s[k];
         if (!(ds > 0.0)) continue;
+        if (x_old && !(done[k] & VEER_TOPP_CHANGED) && x[k] == x_old[k] && x[k + 1] == x_old[k + 1]) continue;
+        done[k] &= (unsigned char)~VEER_TOPP_CHANGED;
         double u = (x[k + 1] - x[k]) / (2.0 * ds);
         for (int q = 0; q < 3; q++) {
             if (done[k] & (1u << q)) continue;
@@ -287,7 +292,7 @@ static int midpoint_rows(const veer_plan *plan, int j, const veer_row_ctx *ctx, 
             }
             if (worst > 1.0 + 3e-3) {
                 if (!add_point_rows(ws, k, ds, f, rows, c, xmax, id)) return -1;
-                done[k] |= (unsigned char)(1u << q);
+                done[k] |= (unsigned char)(1u << q | VEER_TOPP_CHANGED);
                 added++;
             }
             if (q == 0) break;
@@ -345,7 +350,7 @@ veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx,
          * only gets slower and stays within every earlier row). */
         memset(ws->extra_done, 0, (size_t)n);
         for (int round = 0; round < 4 && st == VEER_OK; round++) {
-            int added = midpoint_rows(plan, j, ctx, n, s, x, ws, ws->extra_done);
+            int added = midpoint_rows(plan, j, ctx, n, s, x, round ? ws->x_prev : NULL, ws, ws->extra_done);
             if (added < 0)
                 return veer__fail(diag, VEER_ERR_NO_MEMORY, ps->leg, -1, -1, -1.0, veer__limit(VEER_LIMIT_NONE, -1),
                                   "out of memory");
@@ -353,7 +358,8 @@ veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx,
             p.extra = ws->extra;
             p.extra_at = ws->extra_at;
             p.extra_n = ws->extra_n;
-            st = veer__topp_solve(&p, x_start, x, ws->K, &bad);
+            memcpy(ws->x_prev, x, (size_t)n * sizeof *x);
+            st = veer__topp_resolve(&p, x_start, x, ws->K, ws->extra_done, &bad);
         }
         if (st != VEER_OK && bad == 0 && x_start > 0.0)
             return veer__fail(diag, st, ps->leg, ps->waypoint, sg->k0, s[0], veer__limit(VEER_LIMIT_START_STATE, -1),
@@ -698,7 +704,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
      * (polygon faces that cannot bind are left out) and grows if need be */
     ws.rows_cap = (size_t)longest * (size_t)((m + 3) / 4 + 8) + (size_t)m;
     ws.rows = veer__alloc(ws.rows_cap * sizeof *ws.rows);
-    ws.bytes = (size_t)longest * (8 * sizeof(double) + sizeof(veer_limit_id) + 3 * sizeof(int) + 1) + sizeof(int);
+    ws.bytes = (size_t)longest * (9 * sizeof(double) + sizeof(veer_limit_id) + 3 * sizeof(int) + 1) + sizeof(int);
     char *w = ws.rows ? veer__alloc(ws.bytes) : NULL;
     if (!w) {
         veer__free(ws.rows, ws.rows_cap * sizeof *ws.rows);
@@ -710,7 +716,8 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     ws.K = ws.xmax + longest;
     ws.xi = ws.K + longest;
     ws.dxi = ws.xi + 3 * (size_t)longest;
-    ws.xmax_id = (veer_limit_id *)(ws.dxi + 3 * (size_t)longest);
+    ws.x_prev = ws.dxi + 3 * (size_t)longest;
+    ws.xmax_id = (veer_limit_id *)(ws.x_prev + longest);
     ws.row_at = (int *)(ws.xmax_id + longest);
     ws.extra_at = ws.row_at + longest + 1;
     ws.extra_n = ws.extra_at + longest;

@@ -97,6 +97,15 @@ typedef struct {
  * (0 for a moving start without room to stop). */
 veer_status veer__topp_solve(const veer_topp_problem *p, double x_start, double *x, double *work, int *bad_index);
 
+/* veer__topp_solve again after rows were added to the stages k with
+ * marks[k] & VEER_TOPP_CHANGED (marks: n bytes; the bit VEER_TOPP_K_CHANGED
+ * is the solver's own), x and K (work) holding the solution before: the
+ * same result, with work only where the added rows change it. */
+#define VEER_TOPP_CHANGED 0x80u
+#define VEER_TOPP_K_CHANGED 0x40u
+veer_status veer__topp_resolve(const veer_topp_problem *p, double x_start, double *x, double *work,
+                               unsigned char *marks, int *bad_index);
+
 /* The limit binding at point k of a solved profile (kind NONE if none within
  * a relative slack of 2e-3). */
 veer_limit_id veer__topp_binding(const veer_topp_problem *p, const double *x, int k);
@@ -167,6 +176,7 @@ typedef struct {
     int *row_at;            /* [longest + 1] */
     size_t rows_cap;        /* rows the pool has room for */
     double *xmax, *K, *xi, *dxi; /* xi, dxi: body twist per unit sdot and its s-derivative, 3 per point */
+    double *x_prev;         /* [longest] the profile at the last between-grid-point check */
     veer_limit_id *xmax_id;
     const veer_point_kin *kin; /* [plan->n] path kinematics at every grid point, NULL: computed when needed */
     size_t bytes;

@@ -141,14 +141,34 @@ static double stage_max_x(const stage *st) {
     return lo;
 }
 
-veer_status veer__topp_solve(const veer_topp_problem *p, double x_start, double *x, double *K, int *bad_index) {
+/* The solve. With marks (a re-solve): x and K hold the solution of the
+ * same problem before rows were added to the stages k with
+ * marks[k] & VEER_TOPP_CHANGED, and only what those stages can change is
+ * worked out again: K[k] depends on stage k and K[k + 1] alone, x[k + 1] on
+ * x[k], stage k and K[k + 1], so a value is recomputed only where one of
+ * these changed (VEER_TOPP_K_CHANGED marks the K that did). The result is
+ * the full solve's, bit for bit. */
+static veer_status solve(const veer_topp_problem *p, double x_start, double *x, double *K, unsigned char *marks,
+                         int *bad_index) {
     int n = p->n;
     stage st;
     /* Backward pass: controllable sets K_k = [0, K[k]], rest at the end. */
     K[n - 1] = 0.0;
+    if (marks) marks[n - 1] &= (unsigned char)~VEER_TOPP_K_CHANGED;
+    int dirty = 1; /* K[k + 1] changed */
+    if (marks) dirty = 0;
     for (int k = n - 2; k >= 0; k--) {
+        if (marks) {
+            marks[k] &= (unsigned char)~VEER_TOPP_K_CHANGED;
+            if (!dirty && !(marks[k] & VEER_TOPP_CHANGED)) continue;
+        }
         stage_build(p, k, K[k + 1], &st);
-        K[k] = stage_max_x(&st);
+        double v = stage_max_x(&st);
+        if (marks) {
+            dirty = !(v == K[k]);
+            if (dirty) marks[k] |= VEER_TOPP_K_CHANGED;
+        }
+        K[k] = v;
     }
     /* A moving start must lie in the first controllable set: room to stop. */
     if (x_start > K[0] * (1.0 + 1e-9) + 1e-12) {
@@ -156,12 +176,16 @@ veer_status veer__topp_solve(const veer_topp_problem *p, double x_start, double 
         return VEER_ERR_INFEASIBLE;
     }
     /* Forward pass: the greatest acceleration that stays controllable. */
+    dirty = !marks || !(x[0] == x_start); /* x[k] changed */
     x[0] = x_start;
     for (int k = 0; k < n - 1; k++) {
+        if (!dirty && !(marks[k] & VEER_TOPP_CHANGED) && !(marks[k + 1] & VEER_TOPP_K_CHANGED)) continue;
         double U = stage_upper(p, k, K[k + 1], x[k]);
         double next = x[k] + 2.0 * (p->s[k + 1] - p->s[k]) * U;
         if (next > K[k + 1]) next = K[k + 1];
-        x[k + 1] = next > 0.0 ? next : 0.0;
+        if (!(next > 0.0)) next = 0.0;
+        dirty = !marks || !(next == x[k + 1]);
+        x[k + 1] = next;
     }
     x[n - 1] = 0.0;
     /* Interior points where nothing can move make the duration infinite. */
@@ -176,6 +200,15 @@ veer_status veer__topp_solve(const veer_topp_problem *p, double x_start, double 
         return VEER_ERR_INFEASIBLE;
     }
     return VEER_OK;
+}
+
+veer_status veer__topp_solve(const veer_topp_problem *p, double x_start, double *x, double *K, int *bad_index) {
+    return solve(p, x_start, x, K, NULL, bad_index);
+}
+
+veer_status veer__topp_resolve(const veer_topp_problem *p, double x_start, double *x, double *K, unsigned char *marks,
+                               int *bad_index) {
+    return solve(p, x_start, x, K, marks, bad_index);
 }
 
 /* One row's relative slack at (u, x), kept in *tight / *best when it is the
