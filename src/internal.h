@@ -22,6 +22,13 @@ veer_status veer__fail(veer_diag *diag, veer_status status, int leg, int waypoin
     __attribute__((format(printf, 8, 9)))
 #endif
     ;
+/* veer__fail with no leg, waypoint, grid point, path position or limit (the
+ * common case; a shorter call than veer__fail with five "none" arguments). */
+veer_status veer__fail_plain(veer_diag *diag, veer_status status, const char *fmt, ...)
+#if defined(__GNUC__)
+    __attribute__((format(printf, 3, 4)))
+#endif
+    ;
 /* Cart firmware may be built with VEER_TERSE_DIAG (the CMake option of that
  * name): veer__fail then keeps the status, indices, path position and limit
  * but writes the status's own text as the message, so that no message
@@ -36,9 +43,12 @@ int veer__fail_format(const char *fmt, ...) /* never called; returns 0 */
     __attribute__((format(printf, 1, 2)))
 #endif
     ;
+veer_status veer__fail_plain_terse(veer_diag *diag, veer_status status);
 #define veer__fail(diag, status, leg, waypoint, grid_index, s, limit, ...)    \
     ((void)(0 && veer__fail_format(__VA_ARGS__)),                               \
      veer__fail_terse((diag), (status), (leg), (waypoint), (grid_index), (s), (limit)))
+#define veer__fail_plain(diag, status, ...) \
+    ((void)(0 && veer__fail_format(__VA_ARGS__)), veer__fail_plain_terse((diag), (status)))
 #endif
 /* Resets diag to success (no-op on NULL). */
 void veer__diag_ok(veer_diag *diag);
@@ -74,8 +84,7 @@ int veer__drive_driven(const veer_drive_def *drive, const double twist[3]);
 void veer__module_position(const veer_drive_def *drive, int i, double r[2]);
 
 /* Fails a drive call: no leg, waypoint, grid point, path position or limit. */
-#define VEER__DRIVE_FAIL(diag, status, ...) \
-    veer__fail((diag), (status), -1, -1, -1, -1.0, veer__limit(VEER_LIMIT_NONE, -1), __VA_ARGS__)
+#define VEER__DRIVE_FAIL(diag, status, ...) veer__fail_plain((diag), (status), __VA_ARGS__)
 /* Solves the symmetric positive definite 3x3 system N x = b by Cholesky
  * (drive.c). Returns 0, or -1 (x untouched) if N is not positive definite. */
 int veer__drive_solve3(const double N[3][3], const double b[3], double x[3]);

@@ -8,8 +8,7 @@
 #include <pb_encode.h>
 #include "link_internal.h"
 
-#define NONE_ID veer__limit(VEER_LIMIT_NONE, -1)
-#define LINK_FAIL(diag, status, ...) veer__fail((diag), (status), -1, -1, -1, -1.0, NONE_ID, __VA_ARGS__)
+#define LINK_FAIL(diag, status, ...) veer__fail_plain((diag), (status), __VA_ARGS__)
 
 /* The largest report frame (length prefix, cart, report, tag, CRC) fits
  * the smallest frame size; gap reports shrink their bitmap to fit. */

@@ -10,8 +10,7 @@
 #include "link_internal.h"
 #include "veer/v1/plan.pb.h"
 
-#define NONE_ID veer__limit(VEER_LIMIT_NONE, -1)
-#define LINK_FAIL(diag, status, ...) veer__fail((diag), (status), -1, -1, -1, -1.0, NONE_ID, __VA_ARGS__)
+#define LINK_FAIL(diag, status, ...) veer__fail_plain((diag), (status), __VA_ARGS__)
 
 /* Every plan the link can carry fits: a Plan message at its generated
  * maximum and its tag. */

@@ -15,8 +15,7 @@
 #include "link_internal.h"
 #include "wire_internal.h"
 
-#define NONE_ID veer__limit(VEER_LIMIT_NONE, -1)
-#define PLAYER_FAIL(diag, status, ...) veer__fail((diag), (status), -1, -1, -1, -1.0, NONE_ID, __VA_ARGS__)
+#define PLAYER_FAIL(diag, status, ...) veer__fail_plain((diag), (status), __VA_ARGS__)
 
 #define STOP_ADVANCE_MAX 0.1 /* s of braking one call advances at most (bounded work) */
 #define ALIGN16(n) (((size_t)(n) + 15u) & ~(size_t)15u)

@@ -64,6 +64,7 @@ void veer__diag_ok(veer_diag *diag) {
 
 #ifdef VEER_TERSE_DIAG
 #undef veer__fail
+#undef veer__fail_plain
 int veer__fail_format(const char *fmt, ...) {
     (void)fmt;
     return 0;
@@ -71,6 +72,9 @@ int veer__fail_format(const char *fmt, ...) {
 veer_status veer__fail_terse(veer_diag *diag, veer_status status, int leg, int waypoint, int grid_index, double s,
                              veer_limit_id limit) {
     return veer__fail(diag, status, leg, waypoint, grid_index, s, limit, "%s", veer_status_str(status));
+}
+veer_status veer__fail_plain_terse(veer_diag *diag, veer_status status) {
+    return veer__fail_plain(diag, status, "%s", veer_status_str(status));
 }
 #endif
 
@@ -84,6 +88,17 @@ veer_status veer__fail(veer_diag *diag, veer_status status, int leg, int waypoin
     diag->grid_index = grid_index;
     diag->s = isfinite(s) ? s : -1.0;
     diag->limit = limit;
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(diag->message, sizeof diag->message, fmt, ap);
+    va_end(ap);
+    return status;
+}
+
+veer_status veer__fail_plain(veer_diag *diag, veer_status status, const char *fmt, ...) {
+    if (!diag) return status;
+    veer__diag_ok(diag);
+    diag->status = status;
     va_list ap;
     va_start(ap, fmt);
     vsnprintf(diag->message, sizeof diag->message, fmt, ap);

@@ -3,7 +3,6 @@
 #include <string.h>
 #include "wire_internal.h"
 
-#define NONE_ID veer__limit(VEER_LIMIT_NONE, -1)
 
 unsigned veer_wire_schema_version(void) { return VEER_WIRE_SCHEMA_VERSION; }
 
@@ -51,14 +50,13 @@ static void fill_error(veer_v1_PlanReply *rep, const veer_diag *d) {
 veer_status veer__wire_request_inputs(const veer_v1_PlanRequest *r, const char *what, veer_wire_inputs *out,
                                       veer_diag *diag) {
     if (r->schema_version != 0 && r->schema_version != VEER_WIRE_SCHEMA_VERSION)
-        return veer__fail(diag, VEER_ERR_VERSION, -1, -1, -1, -1.0, NONE_ID,
-                          "%s: schema version %u, this library reads version %d", what, (unsigned)r->schema_version,
-                          VEER_WIRE_SCHEMA_VERSION);
+        return veer__fail_plain(diag, VEER_ERR_VERSION, "%s: schema version %u, this library reads version %d", what,
+                                (unsigned)r->schema_version, VEER_WIRE_SCHEMA_VERSION);
     if (!r->has_drive || !r->has_route)
-        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "%s: the %s is missing", what,
-                          !r->has_drive ? "drive" : "route");
+        return veer__fail_plain(diag, VEER_ERR_VALUE, "%s: the %s is missing", what,
+                                !r->has_drive ? "drive" : "route");
     if (!veer__wire_utf8_ok(r->cart_id))
-        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "request.cart_id is not valid UTF-8");
+        return veer__fail_plain(diag, VEER_ERR_VALUE, "request.cart_id is not valid UTF-8");
     out->limits = veer_default_limits();
     out->options = veer_default_plan_options();
     veer_status st;
@@ -139,9 +137,9 @@ size_t veer_plan_reply_size_bound(int grid_points) {
 static veer_status load_pb(const uint8_t *bytes, size_t size, void *work, size_t work_size, veer_plan **out,
                            veer_diag *diag) {
     if (!work || work_size < VEER__WIRE_WORK_BYTES || ((uintptr_t)work % sizeof(double)) != 0)
-        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
-                          "plan workspace: needs %zu bytes aligned for double (veer_plan_workspace_size())",
-                          (size_t)VEER__WIRE_WORK_BYTES);
+        return veer__fail_plain(diag, VEER_ERR_VALUE,
+                                "plan workspace: needs %zu bytes aligned for double (veer_plan_workspace_size())",
+                                (size_t)VEER__WIRE_WORK_BYTES);
     veer_v1_Plan *m = (veer_v1_Plan *)((char *)work + VEER__WIRE_PLAN_WORK_BYTES);
     veer_status st = veer__wire_decode(veer_v1_Plan_fields, m, bytes, size, "plan", diag);
     if (st != VEER_OK) return st;
@@ -151,7 +149,7 @@ static veer_status load_pb(const uint8_t *bytes, size_t size, void *work, size_t
 veer_status veer_plan_load_pb(const uint8_t *plan, size_t plan_size, void *work, size_t work_size,
                               const veer_plan **out, veer_diag *diag) {
     veer__diag_ok(diag);
-    if (!out) return veer__fail(diag, VEER_ERR_NULL, -1, -1, -1, -1.0, NONE_ID, "out is NULL");
+    if (!out) return veer__fail_plain(diag, VEER_ERR_NULL, "out is NULL");
     *out = NULL;
     veer_plan *p = NULL;
     veer_status st = load_pb(plan, plan_size, work, work_size, &p, diag);
@@ -175,11 +173,11 @@ veer_status veer_plan_sample_pb(const uint8_t *plan, size_t plan_size, double t,
 
 veer_status veer_plan_decode_pb(const uint8_t *plan, size_t plan_size, veer_plan **out, veer_diag *diag) {
     veer__diag_ok(diag);
-    if (!out) return veer__fail(diag, VEER_ERR_NULL, -1, -1, -1, -1.0, NONE_ID, "out is NULL");
+    if (!out) return veer__fail_plain(diag, VEER_ERR_NULL, "out is NULL");
     *out = NULL;
     size_t mb = sizeof(veer_v1_Plan);
     veer_v1_Plan *m = veer__alloc(mb);
-    if (!m) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, NONE_ID, "out of memory");
+    if (!m) return veer__fail_plain(diag, VEER_ERR_NO_MEMORY, "out of memory");
     veer_status st = veer__wire_decode(veer_v1_Plan_fields, m, plan, plan_size, "plan", diag);
     if (st == VEER_OK) st = veer__wire_plan_decode_heap(m, out, diag);
     veer__free(m, mb);
@@ -190,10 +188,10 @@ veer_status veer_plan_encode_pb(const veer_plan *plan, uint8_t *out, size_t capa
                                 veer_diag *diag) {
     veer__diag_ok(diag);
     if (!plan || !size)
-        return veer__fail(diag, VEER_ERR_NULL, -1, -1, -1, -1.0, NONE_ID, "%s is NULL", !plan ? "plan" : "size");
+        return veer__fail_plain(diag, VEER_ERR_NULL, "%s is NULL", !plan ? "plan" : "size");
     size_t mb = sizeof(veer_v1_Plan);
     veer_v1_Plan *m = veer__alloc(mb);
-    if (!m) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, NONE_ID, "out of memory");
+    if (!m) return veer__fail_plain(diag, VEER_ERR_NO_MEMORY, "out of memory");
     veer_status st = veer__wire_plan_to_pb(plan, NULL, m, diag);
     if (st == VEER_OK) st = veer__wire_encode(veer_v1_Plan_fields, m, out, capacity, size, diag);
     veer__free(m, mb);

@@ -164,9 +164,9 @@ static veer_status parse_profile(const veer_v1_Profile *pr, const veer_path *pat
         !(pr->sddot_step >= 1e-12 && pr->sddot_step <= 1e3) ||
         !(pr->sddot_split >= pr->sddot_step && pr->sddot_split <= 1e6) ||
         !(pr->start_sdot >= 0.0 && pr->start_sdot <= 1e4))
-        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
-                          "plan.profile: steps s %g, sdot %g, sddot %g, split %g are out of range", pr->s_step,
-                          pr->sdot_step, pr->sddot_step, pr->sddot_split);
+        return veer__fail_plain(diag, VEER_ERR_VALUE,
+                                "plan.profile: steps s %g, sdot %g, sddot %g, split %g are out of range", pr->s_step,
+                                pr->sdot_step, pr->sddot_step, pr->sddot_split);
     rbuf b = {pr->knots.bytes, pr->knots.size, 0};
     int k = 0;
     for (int j = 0; j < path->segment_count; j++) {
@@ -228,11 +228,11 @@ static veer_status parse_profile(const veer_v1_Profile *pr, const veer_path *pat
         if (segs) segs[j].k1 = k - 1;
     }
     if (b.pos != b.n)
-        return veer__fail(diag, VEER_ERR_DECODE, -1, -1, -1, -1.0, NONE_ID,
-                          "plan.profile: %zu bytes left after the last segment's knots", b.n - b.pos);
+        return veer__fail_plain(diag, VEER_ERR_DECODE,
+                                "plan.profile: %zu bytes left after the last segment's knots", b.n - b.pos);
     if (pr->knot_count != (uint32_t)k)
-        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
-                          "plan.profile: knot_count says %u, the knots give %d", (unsigned)pr->knot_count, k);
+        return veer__fail_plain(diag, VEER_ERR_VALUE,
+                                "plan.profile: knot_count says %u, the knots give %d", (unsigned)pr->knot_count, k);
     *count = k;
     return VEER_OK;
 }
@@ -274,14 +274,14 @@ static veer_status timeline(veer_plan *plan, double *xi, veer_diag *diag) {
 static veer_status jerk_windows(const veer_v1_Profile *pr, veer_plan *plan, veer_diag *diag) {
     if (pr->jerk_window_count == 0) return VEER_OK;
     if ((int)pr->jerk_window_count != plan->segment_count)
-        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
-                          "plan.profile: %d jerk windows for %d path segments", (int)pr->jerk_window_count,
-                          plan->segment_count);
+        return veer__fail_plain(diag, VEER_ERR_VALUE,
+                                "plan.profile: %d jerk windows for %d path segments", (int)pr->jerk_window_count,
+                                plan->segment_count);
     for (int j = 0; j < plan->segment_count; j++) {
         double tau = pr->jerk_window[j];
         if (!(tau >= 0.0 && tau <= 3600.0))
-            return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
-                              "plan.profile: jerk window %d is %g s", j, tau);
+            return veer__fail_plain(diag, VEER_ERR_VALUE,
+                                    "plan.profile: jerk window %d is %g s", j, tau);
         plan->segs[j].tau = tau;
     }
     return VEER_OK;
@@ -290,16 +290,17 @@ static veer_status jerk_windows(const veer_v1_Profile *pr, veer_plan *plan, veer
 /* Everything but the profile: versions, drive, limits, route, path. */
 static veer_status load_head(const veer_v1_Plan *m, veer_plan *plan, veer_diag *diag) {
     if (m->schema_version != VEER_WIRE_SCHEMA_VERSION)
-        return veer__fail(diag, VEER_ERR_VERSION, -1, -1, -1, -1.0, NONE_ID,
-                          "plan: schema version %u, this library reads version %d", (unsigned)m->schema_version,
-                          VEER_WIRE_SCHEMA_VERSION);
+        return veer__fail_plain(diag, VEER_ERR_VERSION,
+                                "plan: schema version %u, this library reads version %d", (unsigned)m->schema_version,
+                                VEER_WIRE_SCHEMA_VERSION);
     if (m->path_model != VEER_WIRE_PATH_MODEL)
-        return veer__fail(diag, VEER_ERR_VERSION, -1, -1, -1, -1.0, NONE_ID,
-                          "plan: made with path model %u, this library builds paths with model %d",
-                          (unsigned)m->path_model, VEER_WIRE_PATH_MODEL);
+        return veer__fail_plain(diag, VEER_ERR_VERSION,
+                                "plan: made with path model %u, this library builds paths with model %d",
+                                (unsigned)m->path_model, VEER_WIRE_PATH_MODEL);
     if (!m->has_drive || !m->has_limits || !m->has_route || !m->has_profile)
-        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "plan: the %s is missing",
-                          !m->has_drive ? "drive" : !m->has_limits ? "limits" : !m->has_route ? "route" : "profile");
+        return veer__fail_plain(
+            diag, VEER_ERR_VALUE, "plan: the %s is missing",
+            !m->has_drive ? "drive" : !m->has_limits ? "limits" : !m->has_route ? "route" : "profile");
     memset(plan, 0, sizeof *plan);
     veer_status st;
     if ((st = veer__wire_drive_from_pb(&m->drive, &plan->drive, diag))) return st;
@@ -337,23 +338,23 @@ static veer_status check_tail(veer_v1_Plan *m, const veer_plan *plan, int check_
     if (!check_hash) return VEER_OK;
     double d = plan->duration;
     if (!(fabs(m->duration - d) <= 1e-6 * (1.0 + d)))
-        return veer__fail(diag, VEER_ERR_DECODE, -1, -1, -1, -1.0, NONE_ID,
-                          "plan: it says it lasts %.6f s, but rebuilds to %.6f s (altered, or made by a library "
-                          "that builds paths differently)",
-                          m->duration, d);
+        return veer__fail_plain(diag, VEER_ERR_DECODE,
+                                "plan: it says it lasts %.6f s, but rebuilds to %.6f s (altered, or made by a library "
+                                "that builds paths differently)",
+                                m->duration, d);
     uint8_t h[32];
     if (m->content_hash.size != 32 || veer__wire_plan_hash(m, h) != VEER_OK ||
         memcmp(h, m->content_hash.bytes, 32) != 0)
-        return veer__fail(diag, VEER_ERR_DECODE, -1, -1, -1, -1.0, NONE_ID,
-                          "plan: the content hash does not match its contents (altered or damaged)");
+        return veer__fail_plain(diag, VEER_ERR_DECODE,
+                                "plan: the content hash does not match its contents (altered or damaged)");
     return VEER_OK;
 }
 
 static veer_status load(veer_v1_Plan *m, void *work, size_t work_size, veer_plan **out, int check_hash,
                         veer_diag *diag) {
     if (!work || work_size < VEER__WIRE_PLAN_WORK_BYTES || ((uintptr_t)work % sizeof(double)) != 0)
-        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
-                          "plan workspace: needs %zu bytes aligned for double", (size_t)VEER__WIRE_PLAN_WORK_BYTES);
+        return veer__fail_plain(diag, VEER_ERR_VALUE, "plan workspace: needs %zu bytes aligned for double",
+                                (size_t)VEER__WIRE_PLAN_WORK_BYTES);
     veer_plan *plan = (veer_plan *)work;
     char *grid = (char *)work + VEER__WIRE_ALIGN(sizeof(veer_plan));
     veer_status st = load_head(m, plan, diag);
@@ -383,7 +384,7 @@ veer_status veer__wire_plan_load(veer_v1_Plan *m, void *work, size_t work_size, 
 veer_status veer__wire_plan_decode_heap(veer_v1_Plan *m, veer_plan **out, veer_diag *diag) {
     *out = NULL;
     veer_plan *plan = veer__calloc(1, sizeof *plan);
-    if (!plan) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, NONE_ID, "out of memory");
+    if (!plan) return veer__fail_plain(diag, VEER_ERR_NO_MEMORY, "out of memory");
     veer_status st = load_head(m, plan, diag);
     plan->alloc_size = sizeof *plan;
     int n = 0;
@@ -399,7 +400,7 @@ veer_status veer__wire_plan_decode_heap(veer_v1_Plan *m, veer_plan **out, veer_d
         veer__free(grid, gb);
         veer__free(xi, xb);
         veer__free(plan, sizeof *plan);
-        return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, NONE_ID, "out of memory");
+        return veer__fail_plain(diag, VEER_ERR_NO_MEMORY, "out of memory");
     }
     lay_out(plan, n, grid);
     st = parse_profile(&m->profile, &plan->path, plan->s, plan->x, plan->segs, &n, diag);
@@ -683,10 +684,10 @@ static veer_status write_profile(const veer_plan *plan, double level, qknot *tmp
         total += 1; /* grid points the decoder will make: the start, then each interval's pieces */
         for (int i = 0; i <= n && n > 0; i++) total += i < n ? tmp[i].r : last.r;
         if (n < 0 || total > VEER_WIRE_MAX_KNOTS)
-            return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, -1.0, NONE_ID,
-                              "plan: the profile needs more than the %d grid points a decoded plan holds; plan "
-                              "with fewer grid points",
-                              VEER_WIRE_MAX_KNOTS);
+            return veer__fail_plain(diag, VEER_ERR_CAPACITY,
+                                    "plan: the profile needs more than the %d grid points a decoded plan holds; plan "
+                                    "with fewer grid points",
+                                    VEER_WIRE_MAX_KNOTS);
         put_varint(&b, (uint64_t)n);
         int64_t ps = 0, pv = 0;
         for (int i = 0; i < n; i++) {
@@ -700,9 +701,10 @@ static veer_status write_profile(const veer_plan *plan, double level, qknot *tmp
         if (last.cu != 0) put_varint(&b, (uint64_t)(last.r - 1));
     }
     if (b.overflow)
-        return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, -1.0, NONE_ID,
-                          "plan: the profile needs %zu bytes, a Plan message holds %d; plan with fewer grid points",
-                          b.n, VEER_WIRE_MAX_PROFILE_BYTES);
+        return veer__fail_plain(
+            diag, VEER_ERR_CAPACITY,
+            "plan: the profile needs %zu bytes, a Plan message holds %d; plan with fewer grid points", b.n,
+            VEER_WIRE_MAX_PROFILE_BYTES);
     pr->knots.size = (pb_size_t)b.n;
     pr->knot_count = (uint32_t)total;
     return VEER_OK;
@@ -733,8 +735,8 @@ veer_status veer__wire_plan_to_pb(const veer_plan *plan, const veer_v1_PlanReque
         const char *cart_id = request->cart_id;
         size_t n = strlen(cart_id);
         if (n >= sizeof m->cart_id || !veer__wire_utf8_ok(cart_id))
-            return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
-                              "cart_id must be UTF-8 of at most %zu bytes", sizeof m->cart_id - 1);
+            return veer__fail_plain(diag, VEER_ERR_VALUE,
+                                    "cart_id must be UTF-8 of at most %zu bytes", sizeof m->cart_id - 1);
         memcpy(m->cart_id, cart_id, n + 1);
     } else {
         veer__wire_drive_to_pb(&plan->drive, &m->drive);
@@ -748,7 +750,7 @@ veer_status veer__wire_plan_to_pb(const veer_plan *plan, const veer_v1_PlanReque
     if (!work || !tmp) {
         veer__free(work, wb);
         veer__free(tmp, tb);
-        return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, NONE_ID, "out of memory");
+        return veer__fail_plain(diag, VEER_ERR_NO_MEMORY, "out of memory");
     }
     /* From coarse to fine; level 0 keeps every grid point. */
     static const double levels[] = {6.0, 4.0, 3.0, 2.0, 1.0, 0.5, 0.25, 0.1, 0.0};

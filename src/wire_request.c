@@ -14,33 +14,33 @@ static veer_status bad(veer_diag *diag, veer_status st, const char *fmt, const c
 veer_status veer__wire_decode(const pb_msgdesc_t *fields, void *msg, const uint8_t *buf, size_t size,
                               const char *what, veer_diag *diag) {
     if (!buf && size > 0)
-        return veer__fail(diag, VEER_ERR_NULL, -1, -1, -1, -1.0, NONE_ID, "%s: bytes pointer is NULL", what);
+        return veer__fail_plain(diag, VEER_ERR_NULL, "%s: bytes pointer is NULL", what);
     static const uint8_t empty[1] = {0};
     pb_istream_t in = pb_istream_from_buffer(buf ? buf : empty, buf ? size : 0);
     if (pb_decode(&in, fields, msg)) return VEER_OK;
     const char *err = PB_GET_ERROR(&in);
     int over = strstr(err, "array overflow") || strstr(err, "bytes overflow") || strstr(err, "string overflow");
     if (over)
-        return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, -1.0, NONE_ID,
-                          "%s: a list or string is longer than its capacity (%s)", what, err);
-    return veer__fail(diag, VEER_ERR_DECODE, -1, -1, -1, -1.0, NONE_ID,
-                      "%s: the %zu bytes do not decode (%s at byte %zu)", what, size, err,
-                      size - (size_t)in.bytes_left);
+        return veer__fail_plain(diag, VEER_ERR_CAPACITY,
+                                "%s: a list or string is longer than its capacity (%s)", what, err);
+    return veer__fail_plain(diag, VEER_ERR_DECODE,
+                            "%s: the %zu bytes do not decode (%s at byte %zu)", what, size, err,
+                            size - (size_t)in.bytes_left);
 }
 
 veer_status veer__wire_encode(const pb_msgdesc_t *fields, const void *msg, uint8_t *out, size_t capacity,
                               size_t *size, veer_diag *diag) {
     size_t need = 0;
     if (!pb_get_encoded_size(&need, fields, msg))
-        return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, -1.0, NONE_ID, "the message cannot be encoded");
+        return veer__fail_plain(diag, VEER_ERR_CAPACITY, "the message cannot be encoded");
     *size = need;
     if (!out || capacity < need)
-        return veer__fail(diag, VEER_ERR_BUFFER, -1, -1, -1, -1.0, NONE_ID,
-                          "the output needs %zu bytes, capacity is %zu", need, out ? capacity : 0);
+        return veer__fail_plain(diag, VEER_ERR_BUFFER,
+                                "the output needs %zu bytes, capacity is %zu", need, out ? capacity : 0);
     pb_ostream_t os = pb_ostream_from_buffer(out, need);
     if (!pb_encode(&os, fields, msg) || os.bytes_written != need) /* cannot happen after sizing succeeded */
-        return veer__fail(diag, VEER_ERR_STATE, -1, -1, -1, -1.0, NONE_ID, "encoding changed size (%s)",
-                          PB_GET_ERROR(&os));
+        return veer__fail_plain(diag, VEER_ERR_STATE, "encoding changed size (%s)",
+                                PB_GET_ERROR(&os));
     return VEER_OK;
 }
 
@@ -89,8 +89,8 @@ static veer_status geometry(bool has, double v, int applies, const char *field, 
                             veer_diag *diag) {
     if (!has) return VEER_OK;
     if (!applies)
-        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "drive.%s applies to %s drives only",
-                          field, kinds);
+        return veer__fail_plain(diag, VEER_ERR_VALUE, "drive.%s applies to %s drives only",
+                                field, kinds);
     char name[48];
     snprintf(name, sizeof name, "drive.%s", field);
     veer_status st = finite(v, name, diag);
@@ -101,20 +101,20 @@ static veer_status geometry(bool has, double v, int applies, const char *field, 
 veer_status veer__wire_drive_from_pb(const veer_v1_DriveDef *m, veer_drive_def *out, veer_diag *diag) {
     int kind = (int)m->kind;
     if (kind < VEER_DRIVE_STEERED || kind > VEER_DRIVE_DIFFERENTIAL)
-        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
-                          kind == 0 ? "drive.kind is not set (steered, mecanum, omni or differential)"
+        return veer__fail_plain(diag, VEER_ERR_VALUE,
+                                kind == 0 ? "drive.kind is not set (steered, mecanum, omni or differential)"
                                     : "drive.kind has the unknown value %d",
-                          kind);
+                                kind);
     veer_drive_def d = veer_default_drive_def((veer_drive_kind)kind);
     int listed = kind == VEER_DRIVE_STEERED || kind == VEER_DRIVE_OMNI;
     if (m->modules_count > 0) {
         if (!listed)
-            return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
-                              "drive.modules must be empty for a %s drive (its wheel order is fixed)",
-                              drive_kind_name(kind));
+            return veer__fail_plain(diag, VEER_ERR_VALUE,
+                                    "drive.modules must be empty for a %s drive (its wheel order is fixed)",
+                                    drive_kind_name(kind));
         if (m->modules_count > VEER_MAX_MODULES) /* nanopb enforces this already */
-            return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, -1.0, NONE_ID,
-                              "drive.modules has %d entries, at most %d", (int)m->modules_count, VEER_MAX_MODULES);
+            return veer__fail_plain(diag, VEER_ERR_CAPACITY, "drive.modules has %d entries, at most %d",
+                                    (int)m->modules_count, VEER_MAX_MODULES);
         d.module_count = (int)m->modules_count;
         for (int i = 0; i < d.module_count; i++) {
             char f[48];
@@ -127,8 +127,8 @@ veer_status veer__wire_drive_from_pb(const veer_v1_DriveDef *m, veer_drive_def *
             snprintf(f, sizeof f, "drive.modules[%d].drive_angle", i);
             if ((st = finite(md->drive_angle, f, diag))) return st;
             if (kind == VEER_DRIVE_STEERED && md->drive_angle != 0.0)
-                return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
-                                  "drive.modules[%d].drive_angle applies to omni drives only", i);
+                return veer__fail_plain(diag, VEER_ERR_VALUE,
+                                        "drive.modules[%d].drive_angle applies to omni drives only", i);
             d.modules[i].x = md->x;
             d.modules[i].y = md->y;
             d.modules[i].drive_angle = md->drive_angle;
@@ -138,9 +138,9 @@ veer_status veer__wire_drive_from_pb(const veer_v1_DriveDef *m, veer_drive_def *
     for (int i = 0; i < (int)m->modules_out_count; i++) {
         int n = veer_drive_module_count(&d);
         if (m->modules_out[i] >= (uint32_t)n)
-            return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
-                              "drive.modules_out[%d] is %u; the drive has modules 0..%d", i,
-                              (unsigned)m->modules_out[i], n - 1);
+            return veer__fail_plain(diag, VEER_ERR_VALUE,
+                                    "drive.modules_out[%d] is %u; the drive has modules 0..%d", i,
+                                    (unsigned)m->modules_out[i], n - 1);
         d.modules[m->modules_out[i]].out = 1;
     }
     int mec = kind == VEER_DRIVE_MECANUM, dif = kind == VEER_DRIVE_DIFFERENTIAL;
@@ -227,8 +227,8 @@ static veer_status module_limits(const veer_v1_ModuleLimits *m, const char *wher
     snprintf(f, sizeof f, "%s.wheel_jerk", where);
     if ((st = limit(m->has_wheel_jerk, m->wheel_jerk, VEER_UNLIMITED, f, &out->wheel_jerk, diag))) return st;
     if (out->steer_min > out->steer_max)
-        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "%s: steer_min %g is above steer_max %g",
-                          where, out->steer_min, out->steer_max);
+        return veer__fail_plain(diag, VEER_ERR_VALUE, "%s: steer_min %g is above steer_max %g",
+                                where, out->steer_min, out->steer_max);
     return VEER_OK;
 }
 
@@ -236,9 +236,10 @@ veer_status veer__wire_limits_from_pb(const veer_v1_Limits *m, int module_count,
     veer_limits l = veer_default_limits();
     int n = (int)m->modules_count;
     if (n != 0 && n != 1 && n != module_count)
-        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
-                          "limits.modules has %d entries: give none, one for every module, or one per module (%d)",
-                          n, module_count);
+        return veer__fail_plain(
+            diag, VEER_ERR_VALUE,
+            "limits.modules has %d entries: give none, one for every module, or one per module (%d)", n,
+            module_count);
     veer_status st;
     for (int i = 0; i < n; i++) {
         char where[32];
@@ -311,9 +312,9 @@ veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, v
     veer_route r = veer_default_route(m->start_x, m->start_y, m->start_yaw);
     if (m->start_steer_count > 0) {
         if ((int)m->start_steer_count != module_count)
-            return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID,
-                              "route.start_steer has %d angles; give none or one per module (%d)",
-                              (int)m->start_steer_count, module_count);
+            return veer__fail_plain(diag, VEER_ERR_VALUE,
+                                    "route.start_steer has %d angles; give none or one per module (%d)",
+                                    (int)m->start_steer_count, module_count);
         r.has_start_steer = 1;
         for (int i = 0; i < module_count; i++) {
             if ((st = route_value(m->start_steer[i], "route.start_steer[%d]", i, diag))) return st;
@@ -331,9 +332,9 @@ veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, v
         r.start_twist[2] = m->start_twist.wz;
     }
     if (m->legs_count > VEER_MAX_LEGS || m->waypoints_count > VEER_MAX_WAYPOINTS) /* nanopb enforces these */
-        return veer__fail(diag, VEER_ERR_CAPACITY, -1, -1, -1, -1.0, NONE_ID, "route: too many legs or waypoints");
+        return veer__fail_plain(diag, VEER_ERR_CAPACITY, "route: too many legs or waypoints");
     if (m->legs_count == 0)
-        return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, NONE_ID, "route.legs is empty");
+        return veer__fail_plain(diag, VEER_ERR_VALUE, "route.legs is empty");
     r.leg_count = (int)m->legs_count;
     long used = 0;
     for (int i = 0; i < r.leg_count; i++) {
