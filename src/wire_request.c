@@ -1,6 +1,7 @@
 /* Messages <-> structs: decoding untrusted bytes with nanopb into fixed
  * structs, checking every value, and writing canonical messages back.
  * SPDX-License-Identifier: MIT */
+#include <stddef.h>
 #include <stdio.h>
 #include <string.h>
 #include "wire_internal.h"
@@ -189,47 +190,60 @@ void veer__wire_drive_to_pb(const veer_drive_def *d, veer_v1_DriveDef *m) {
 
 /* ---- limits ------------------------------------------------------------ */
 
-/* An optional limit: unset or +inf is unlimited; NaN and -inf are refused
- * (steer_min takes -inf as unlimited). */
-static veer_status limit(bool has, double v, double unset, const char *field, double *dst, veer_diag *diag) {
-    if (!has) {
-        *dst = unset;
-        return VEER_OK;
+/* The optional limits of a message, one table row each: the field's name,
+ * where the message keeps its presence flag and value, where the struct
+ * keeps the value, and the value when unset. One loop reads them all and
+ * one writes them back. */
+typedef struct {
+    const char *name;
+    size_t has, value, out;
+    double unset;
+} limit_field;
+
+#define MODULE_LIMIT_(f, unset) \
+    {#f, offsetof(veer_v1_ModuleLimits, has_##f), offsetof(veer_v1_ModuleLimits, f), offsetof(veer_module_limits, f), \
+     unset}
+#define BODY_LIMIT_(f) \
+    {#f, offsetof(veer_v1_Limits, has_##f), offsetof(veer_v1_Limits, f), offsetof(veer_limits, f), VEER_UNLIMITED}
+static const limit_field module_limit_fields[] = {
+    MODULE_LIMIT_(wheel_rate, VEER_UNLIMITED),  MODULE_LIMIT_(wheel_accel, VEER_UNLIMITED),
+    MODULE_LIMIT_(steer_rate, VEER_UNLIMITED),  MODULE_LIMIT_(steer_min, -VEER_UNLIMITED),
+    MODULE_LIMIT_(steer_max, VEER_UNLIMITED),   MODULE_LIMIT_(traction_mu, VEER_UNLIMITED),
+    MODULE_LIMIT_(motor_stall_accel, VEER_UNLIMITED), MODULE_LIMIT_(motor_free_rate, VEER_UNLIMITED),
+    MODULE_LIMIT_(wheel_jerk, VEER_UNLIMITED)};
+static const limit_field body_limit_fields[] = {BODY_LIMIT_(body_speed), BODY_LIMIT_(body_accel), BODY_LIMIT_(yaw_rate),
+                                                BODY_LIMIT_(yaw_accel), BODY_LIMIT_(body_jerk)};
+#define COUNT_(a) ((int)(sizeof(a) / sizeof((a)[0])))
+
+/* Reads n optional limits from msg into out: unset or +inf is unlimited;
+ * NaN and -inf are refused (steer_min takes -inf as unlimited). module is
+ * the index in limits.modules, or -1 for the body limits. */
+static veer_status limits_in(const void *msg, const limit_field *f, int n, int module, void *out, veer_diag *diag) {
+    for (int k = 0; k < n; k++, f++) {
+        bool has;
+        double v;
+        memcpy(&has, (const char *)msg + f->has, sizeof has);
+        memcpy(&v, (const char *)msg + f->value, sizeof v);
+        if (!has) {
+            v = f->unset;
+        } else if (isnan(v) || (isinf(v) && v != f->unset)) {
+            if (module < 0) return veer__fail_plain(diag, VEER_ERR_VALUE, "limits.%s is %g", f->name, v);
+            return veer__fail_plain(diag, VEER_ERR_VALUE, "limits.modules[%d].%s is %g", module, f->name, v);
+        }
+        memcpy((char *)out + f->out, &v, sizeof v);
     }
-    if (isnan(v) || (isinf(v) && v != unset)) return bad(diag, VEER_ERR_VALUE, "%s is %g", field, v);
-    *dst = v;
     return VEER_OK;
 }
 
-static veer_status module_limits(const veer_v1_ModuleLimits *m, const char *where, veer_module_limits *out,
-                                 veer_diag *diag) {
-    char f[64];
-    veer_status st;
-    snprintf(f, sizeof f, "%s.wheel_rate", where);
-    if ((st = limit(m->has_wheel_rate, m->wheel_rate, VEER_UNLIMITED, f, &out->wheel_rate, diag))) return st;
-    snprintf(f, sizeof f, "%s.wheel_accel", where);
-    if ((st = limit(m->has_wheel_accel, m->wheel_accel, VEER_UNLIMITED, f, &out->wheel_accel, diag))) return st;
-    snprintf(f, sizeof f, "%s.steer_rate", where);
-    if ((st = limit(m->has_steer_rate, m->steer_rate, VEER_UNLIMITED, f, &out->steer_rate, diag))) return st;
-    snprintf(f, sizeof f, "%s.steer_min", where);
-    if ((st = limit(m->has_steer_min, m->steer_min, -VEER_UNLIMITED, f, &out->steer_min, diag))) return st;
-    snprintf(f, sizeof f, "%s.steer_max", where);
-    if ((st = limit(m->has_steer_max, m->steer_max, VEER_UNLIMITED, f, &out->steer_max, diag))) return st;
-    snprintf(f, sizeof f, "%s.traction_mu", where);
-    if ((st = limit(m->has_traction_mu, m->traction_mu, VEER_UNLIMITED, f, &out->traction_mu, diag))) return st;
-    snprintf(f, sizeof f, "%s.motor_stall_accel", where);
-    if ((st = limit(m->has_motor_stall_accel, m->motor_stall_accel, VEER_UNLIMITED, f, &out->motor_stall_accel,
-                    diag)))
-        return st;
-    snprintf(f, sizeof f, "%s.motor_free_rate", where);
-    if ((st = limit(m->has_motor_free_rate, m->motor_free_rate, VEER_UNLIMITED, f, &out->motor_free_rate, diag)))
-        return st;
-    snprintf(f, sizeof f, "%s.wheel_jerk", where);
-    if ((st = limit(m->has_wheel_jerk, m->wheel_jerk, VEER_UNLIMITED, f, &out->wheel_jerk, diag))) return st;
-    if (out->steer_min > out->steer_max)
-        return veer__fail_plain(diag, VEER_ERR_VALUE, "%s: steer_min %g is above steer_max %g",
-                                where, out->steer_min, out->steer_max);
-    return VEER_OK;
+/* Writes n limits from in into msg: present when finite. */
+static void limits_out(const void *in, const limit_field *f, int n, void *msg) {
+    for (int k = 0; k < n; k++, f++) {
+        double v;
+        memcpy(&v, (const char *)in + f->out, sizeof v);
+        bool has = isfinite(v);
+        memcpy((char *)msg + f->has, &has, sizeof has);
+        if (has) memcpy((char *)msg + f->value, &v, sizeof v);
+    }
 }
 
 veer_status veer__wire_limits_from_pb(const veer_v1_Limits *m, int module_count, veer_limits *out, veer_diag *diag) {
@@ -242,33 +256,23 @@ veer_status veer__wire_limits_from_pb(const veer_v1_Limits *m, int module_count,
             module_count);
     veer_status st;
     for (int i = 0; i < n; i++) {
-        char where[32];
-        snprintf(where, sizeof where, "limits.modules[%d]", i);
-        if ((st = module_limits(&m->modules[i], where, &l.modules[i], diag))) return st;
+        veer_module_limits *ml = &l.modules[i];
+        if ((st = limits_in(&m->modules[i], module_limit_fields, COUNT_(module_limit_fields), i, ml, diag)))
+            return st;
+        if (ml->steer_min > ml->steer_max)
+            return veer__fail_plain(diag, VEER_ERR_VALUE, "limits.modules[%d]: steer_min %g is above steer_max %g", i,
+                                    ml->steer_min, ml->steer_max);
     }
     if (n == 1)
         for (int i = 1; i < module_count; i++) l.modules[i] = l.modules[0];
-    if ((st = limit(m->has_body_speed, m->body_speed, VEER_UNLIMITED, "limits.body_speed", &l.body_speed, diag)) ||
-        (st = limit(m->has_body_accel, m->body_accel, VEER_UNLIMITED, "limits.body_accel", &l.body_accel, diag)) ||
-        (st = limit(m->has_yaw_rate, m->yaw_rate, VEER_UNLIMITED, "limits.yaw_rate", &l.yaw_rate, diag)) ||
-        (st = limit(m->has_yaw_accel, m->yaw_accel, VEER_UNLIMITED, "limits.yaw_accel", &l.yaw_accel, diag)) ||
-        (st = limit(m->has_body_jerk, m->body_jerk, VEER_UNLIMITED, "limits.body_jerk", &l.body_jerk, diag)))
-        return st;
+    if ((st = limits_in(m, body_limit_fields, COUNT_(body_limit_fields), -1, &l, diag))) return st;
     *out = l;
     return VEER_OK;
 }
 
 static void module_limits_to_pb(const veer_module_limits *l, veer_v1_ModuleLimits *m) {
     memset(m, 0, sizeof *m);
-    if ((m->has_wheel_rate = isfinite(l->wheel_rate))) m->wheel_rate = l->wheel_rate;
-    if ((m->has_wheel_accel = isfinite(l->wheel_accel))) m->wheel_accel = l->wheel_accel;
-    if ((m->has_steer_rate = isfinite(l->steer_rate))) m->steer_rate = l->steer_rate;
-    if ((m->has_steer_min = isfinite(l->steer_min))) m->steer_min = l->steer_min;
-    if ((m->has_steer_max = isfinite(l->steer_max))) m->steer_max = l->steer_max;
-    if ((m->has_traction_mu = isfinite(l->traction_mu))) m->traction_mu = l->traction_mu;
-    if ((m->has_motor_stall_accel = isfinite(l->motor_stall_accel))) m->motor_stall_accel = l->motor_stall_accel;
-    if ((m->has_motor_free_rate = isfinite(l->motor_free_rate))) m->motor_free_rate = l->motor_free_rate;
-    if ((m->has_wheel_jerk = isfinite(l->wheel_jerk))) m->wheel_jerk = l->wheel_jerk;
+    limits_out(l, module_limit_fields, COUNT_(module_limit_fields), m);
 }
 
 static int same_module_limits(const veer_module_limits *a, const veer_module_limits *b) {
@@ -288,11 +292,7 @@ void veer__wire_limits_to_pb(const veer_limits *l, int module_count, veer_v1_Lim
         m->modules_count = (pb_size_t)(all_same ? 1 : n);
         for (int i = 0; i < (int)m->modules_count; i++) module_limits_to_pb(&l->modules[i], &m->modules[i]);
     }
-    if ((m->has_body_speed = isfinite(l->body_speed))) m->body_speed = l->body_speed;
-    if ((m->has_body_accel = isfinite(l->body_accel))) m->body_accel = l->body_accel;
-    if ((m->has_yaw_rate = isfinite(l->yaw_rate))) m->yaw_rate = l->yaw_rate;
-    if ((m->has_yaw_accel = isfinite(l->yaw_accel))) m->yaw_accel = l->yaw_accel;
-    if ((m->has_body_jerk = isfinite(l->body_jerk))) m->body_jerk = l->body_jerk;
+    limits_out(l, body_limit_fields, COUNT_(body_limit_fields), m);
 }
 
 /* ---- route ------------------------------------------------------------- */

@@ -468,6 +468,69 @@ Test(wire_roundtrip, status_and_enum_numbers_mirror_the_c_tables) {
 
 /* ---- value checks ----------------------------------------------------------- */
 
+/* Every optional limit of the Limits message is read into its own field and
+ * named in the diagnostic when NaN (message texts as the decoder has always
+ * written them); an empty message gives veer_default_limits(). */
+Test(wire_values, every_limit_field_is_read_and_named) {
+    static const char *const module_names[] = {"wheel_rate",  "wheel_accel",       "steer_rate",
+                                               "steer_min",   "steer_max",         "traction_mu",
+                                               "motor_stall_accel", "motor_free_rate", "wheel_jerk"};
+    static const char *const body_names[] = {"body_speed", "body_accel", "yaw_rate", "yaw_accel", "body_jerk"};
+    veer_diag d;
+    veer_limits lim, def = veer_default_limits();
+    veer_v1_Limits ml;
+    memset(&ml, 0, sizeof ml);
+    cr_assert_eq(veer__wire_limits_from_pb(&ml, 4, &lim, &d), VEER_OK);
+    cr_expect(memcmp(&lim, &def, sizeof lim) == 0, "an empty Limits message is the default limits");
+    for (int k = 0; k < 9; k++) {
+        memset(&ml, 0, sizeof ml);
+        ml.modules_count = 4;
+        veer_v1_ModuleLimits *m = &ml.modules[2];
+        bool *has[] = {&m->has_wheel_rate, &m->has_wheel_accel, &m->has_steer_rate, &m->has_steer_min,
+                       &m->has_steer_max, &m->has_traction_mu, &m->has_motor_stall_accel, &m->has_motor_free_rate,
+                       &m->has_wheel_jerk};
+        double *val[] = {&m->wheel_rate, &m->wheel_accel, &m->steer_rate, &m->steer_min, &m->steer_max,
+                         &m->traction_mu, &m->motor_stall_accel, &m->motor_free_rate, &m->wheel_jerk};
+        double *out[] = {&lim.modules[2].wheel_rate, &lim.modules[2].wheel_accel, &lim.modules[2].steer_rate,
+                         &lim.modules[2].steer_min, &lim.modules[2].steer_max, &lim.modules[2].traction_mu,
+                         &lim.modules[2].motor_stall_accel, &lim.modules[2].motor_free_rate,
+                         &lim.modules[2].wheel_jerk};
+        *has[k] = true;
+        *val[k] = 0.5 + k; /* a value of its own reaches its own field */
+        if (k == 3) *val[k] = -2.0; /* steer_min below the unset steer_max */
+        cr_assert_eq(veer__wire_limits_from_pb(&ml, 4, &lim, &d), VEER_OK, "%s: %s", module_names[k], d.message);
+        cr_expect_eq(*out[k], *val[k], "%s", module_names[k]);
+        *val[k] = (double)NAN;
+        cr_assert_eq(veer__wire_limits_from_pb(&ml, 4, &lim, &d), VEER_ERR_VALUE);
+        char want[64];
+        snprintf(want, sizeof want, "limits.modules[2].%s is nan", module_names[k]);
+        cr_expect_str_eq(d.message, want);
+    }
+    for (int k = 0; k < 5; k++) {
+        memset(&ml, 0, sizeof ml);
+        bool *has[] = {&ml.has_body_speed, &ml.has_body_accel, &ml.has_yaw_rate, &ml.has_yaw_accel, &ml.has_body_jerk};
+        double *val[] = {&ml.body_speed, &ml.body_accel, &ml.yaw_rate, &ml.yaw_accel, &ml.body_jerk};
+        double *out[] = {&lim.body_speed, &lim.body_accel, &lim.yaw_rate, &lim.yaw_accel, &lim.body_jerk};
+        *has[k] = true;
+        *val[k] = 1.5 + k;
+        cr_assert_eq(veer__wire_limits_from_pb(&ml, 4, &lim, &d), VEER_OK, "%s: %s", body_names[k], d.message);
+        cr_expect_eq(*out[k], *val[k], "%s", body_names[k]);
+        *val[k] = -(double)INFINITY;
+        cr_assert_eq(veer__wire_limits_from_pb(&ml, 4, &lim, &d), VEER_ERR_VALUE);
+        char want[64];
+        snprintf(want, sizeof want, "limits.%s is -inf", body_names[k]);
+        cr_expect_str_eq(d.message, want);
+    }
+    /* The steer range the wrong way round names the module. */
+    memset(&ml, 0, sizeof ml);
+    ml.modules_count = 4;
+    ml.modules[1].has_steer_min = ml.modules[1].has_steer_max = true;
+    ml.modules[1].steer_min = 1.0;
+    ml.modules[1].steer_max = -1.0;
+    cr_assert_eq(veer__wire_limits_from_pb(&ml, 4, &lim, &d), VEER_ERR_VALUE);
+    cr_expect_str_eq(d.message, "limits.modules[1]: steer_min 1 is above steer_max -1");
+}
+
 Test(wire_values, bad_values_are_named) {
     veer_diag d;
     veer_drive_def drive;
