@@ -390,39 +390,53 @@ veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx,
     return VEER_OK;
 }
 
-/* All speed-type and acceleration-type limits times g (jerk limits kept). */
-static veer_limits scaled_limits(const veer_limits *in, double g) {
+/* Speed-type limits times gv, acceleration-type limits times ga (jerk
+ * limits kept). With ga = gv^2 the time-optimal law is the one of the
+ * original limits run gv times slower, wherever those limits bind. */
+static veer_limits scaled_limits(const veer_limits *in, double gv, double ga) {
     veer_limits l = *in;
-    l.body_speed *= g;
-    l.body_accel *= g;
-    l.yaw_rate *= g;
-    l.yaw_accel *= g;
+    l.body_speed *= gv;
+    l.body_accel *= ga;
+    l.yaw_rate *= gv;
+    l.yaw_accel *= ga;
     for (int i = 0; i < VEER_MAX_MODULES; i++) {
         veer_module_limits *m = &l.modules[i];
-        m->wheel_rate *= g;
-        m->wheel_accel *= g;
-        m->steer_rate *= g;
-        m->traction_mu *= g;
-        m->motor_stall_accel *= g;
-        m->motor_free_rate *= g;
+        m->wheel_rate *= gv;
+        m->wheel_accel *= ga;
+        m->steer_rate *= gv;
+        m->traction_mu *= ga; /* mu g is an acceleration */
+        m->motor_stall_accel *= ga;
+        m->motor_free_rate *= gv;
     }
     return l;
 }
 
 /* Jerk limits on segment j (solved within lim, steer angles known): fit the
  * averaging window; if averaging takes another limit more than 0.5 % over,
- * re-solve with every limit 3 % lower and fit again. */
+ * re-solve with every limit 3 % lower and fit again. If no window holds
+ * the jerk (it comes from the path's geometry), re-solve slower in time:
+ * speed limits times f, accelerations times f^2, which scales every jerk
+ * of the law, and of its window, by f^3; f is the cube root of the jerk's
+ * excess (at most 0.97, at least 0.5 per round). */
 veer_status veer__shape_segment(veer_plan *plan, int j, const veer_limits *lim, double x_start, veer_workspace *ws,
                                 veer_diag *diag) {
     /* The window averages the law with its own past: it needs rest before the
      * segment, so a moving start's first stretch keeps its time-optimal law. */
     if (!veer__has_jerk_limit(plan) || x_start > 0.0) return VEER_OK;
-    double g = 1.0;
+    double gv = 1.0, ga = 1.0;
     for (int it = 0; it < 40; it++) {
-        double worst = veer__jerk_window(plan, j);
+        double over = 1.0;
+        double worst = veer__jerk_window(plan, j, &over);
         if (worst >= 0.0 && worst <= 1.005) return VEER_OK;
-        g *= worst < 0.0 ? 0.85 : 0.97; /* jerk from geometry falls with the cube of speed */
-        veer_limits sc = scaled_limits(lim, g);
+        if (worst < 0.0) {
+            double f = fmin(0.97, fmax(0.5, cbrt(1.0 / over)));
+            gv *= f;
+            ga *= f * f;
+        } else {
+            gv *= 0.97;
+            ga *= 0.97;
+        }
+        veer_limits sc = scaled_limits(lim, gv, ga);
         veer_row_ctx ctx;
         veer__row_ctx_init(&ctx, &plan->drive, &sc, &plan->options);
         plan->segs[j].tau = 0.0;

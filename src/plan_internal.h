@@ -238,11 +238,12 @@ void veer__check_segment(const veer_plan *plan, int j, double dt, int which, vee
 
 int veer__has_jerk_limit(const veer_plan *plan);
 /* Sets segment j's averaging window to the smallest that keeps every jerk
- * limit (sampled at 1 ms) and returns the worst ratio of the other limits
- * after averaging, or -1 when no window up to half the stretch's time does
- * (jerk from the path's geometry: the stretch must be slower). Needs the
+ * limit (accepted at 0.25 ms samples) and returns the worst ratio of the
+ * other limits after averaging, or -1 when no window up to half the
+ * stretch's time does (jerk from the path's geometry: the stretch must be
+ * slower); *over gets the jerk's ratio to its aim (> 1 when -1). Needs the
  * segment's law and steer angles. */
-double veer__jerk_window(veer_plan *plan, int j);
+double veer__jerk_window(veer_plan *plan, int j, double *over);
 
 /* ---- stop.c: controlled stop along the path ----------------------------- */
 
