@@ -39,26 +39,78 @@ static double jerk_ratio(veer_plan *plan, int j, double tau, double dt) {
     return r.worst;
 }
 
-double veer__jerk_window(veer_plan *plan, int j, double *over) {
+/* Sets segment j's window to tau and returns the worst ratio of the other
+ * limits at 1 ms. */
+static double other_limits(veer_plan *plan, int j, double tau) {
+    veer_plan_segment *sg = &plan->segs[j];
+    sg->tau = tau;
+    sg->move_time = sg->raw_time + tau;
+    veer_check_report r;
+    memset(&r, 0, sizeof r);
+    veer__check_segment(plan, j, 1e-3, VEER__CHECK_LIMITS, &r);
+    return r.worst;
+}
+
+/* When no window holds the jerk: the law is driven slower in time, speeds
+ * times f and accelerations times f^2, so that it runs 1/f times longer
+ * and every jerk of it, and of its window stretched by 1/f, falls by f^3.
+ * over (the jerk over its aim at the window chosen) gives f = over^(-1/3),
+ * kept within [0.3, 0.99]. */
+static double fail(veer_plan *plan, int j, double over, double slow[2]) {
+    double f = fmin(0.99, fmax(0.3, cbrt(1.0 / over)));
+    slow[0] = f;
+    slow[1] = f * f;
+    jerk_ratio(plan, j, 0.0, VEER_JERK_DT);
+    return -1.0;
+}
+
+/* The motion time, raw plus window, once slowed so that window tau holds
+ * the jerk ratio r (up to the factor aim^(-1/3)). */
+static double slowed_time(double raw, double tau, double r) { return (raw + tau) * cbrt(fmax(r, 1e-9)); }
+
+double veer__jerk_window(veer_plan *plan, int j, double slow[2]) {
     /* Jerk that the path's own geometry causes at speed (a wheel's rate
      * changing along a curve) does not average away: a longer window even
      * carries the speed of the straights into the curve. A window longer
      * than half the stretch, or none that holds the jerk when checked
-     * finely, means the stretch must be driven slower. */
-    double cap = fmin(VEER_JERK_TAU_MAX, fmax(0.5, 0.5 * plan->segs[j].raw_time));
-    double hi = 0.02, r = jerk_ratio(plan, j, hi, VEER_JERK_DT), best = r;
-    while (r > VEER_JERK_AIM) {
-        hi *= 2.0;
-        if (hi >= cap) break;
+     * finely, means the stretch must be driven slower: at the window that
+     * makes the slowed motion shortest. */
+    slow[0] = slow[1] = 1.0;
+    double raw = plan->segs[j].raw_time;
+    double cap = fmin(VEER_JERK_TAU_MAX, fmax(0.5, 0.5 * raw));
+    double hi = 0.02, r = jerk_ratio(plan, j, hi, VEER_JERK_DT), at = hi, r_at = r;
+    while (r > VEER_JERK_AIM && hi < cap) {
+        hi = fmin(2.0 * hi, cap); /* the cap itself is a window too */
         r = jerk_ratio(plan, j, hi, VEER_JERK_DT);
-        best = fmin(best, r);
-    }
-    if (r > VEER_JERK_AIM) {
-        *over = best / VEER_JERK_AIM;
-        jerk_ratio(plan, j, 0.0, VEER_JERK_DT);
-        return -1.0;
+        if (slowed_time(raw, hi, r) < slowed_time(raw, at, r_at)) at = hi, r_at = r;
     }
     double lo = hi > 0.02 ? 0.5 * hi : 0.0;
+    if (r > VEER_JERK_AIM) {
+        /* Refine the best doubling between its neighbours (golden section
+         * in log tau); a window there may even hold the jerk. */
+        double a = log(0.5 * at), b = log(fmin(2.0 * at, cap)), g = 0.6180339887498949;
+        double c = b - g * (b - a), d = a + g * (b - a);
+        double rc = jerk_ratio(plan, j, exp(c), VEER_JERK_DT), rd = jerk_ratio(plan, j, exp(d), VEER_JERK_DT);
+        for (int it = 0; it < 5 && rc > VEER_JERK_AIM && rd > VEER_JERK_AIM; it++) {
+            if (slowed_time(raw, exp(c), rc) < slowed_time(raw, exp(d), rd)) {
+                b = d, d = c, rd = rc;
+                c = b - g * (b - a);
+                rc = jerk_ratio(plan, j, exp(c), VEER_JERK_DT);
+            } else {
+                a = c, c = d, rc = rd;
+                d = a + g * (b - a);
+                rd = jerk_ratio(plan, j, exp(d), VEER_JERK_DT);
+            }
+        }
+        if (rc > VEER_JERK_AIM && rd > VEER_JERK_AIM) {
+            double tc = exp(c), td = exp(d);
+            if (slowed_time(raw, tc, rc) < slowed_time(raw, at, r_at)) at = tc, r_at = rc;
+            if (slowed_time(raw, td, rd) < slowed_time(raw, at, r_at)) at = td, r_at = rd;
+            return fail(plan, j, r_at / VEER_JERK_AIM, slow);
+        }
+        hi = rc <= VEER_JERK_AIM ? exp(c) : exp(d); /* holds the jerk; the bisection keeps a window that does */
+        lo = 0.5 * at;
+    }
     while (hi - lo > 0.02 * hi) {
         double mid = 0.5 * (lo + hi);
         if (jerk_ratio(plan, j, mid, VEER_JERK_DT) > VEER_JERK_AIM)
@@ -66,27 +118,29 @@ double veer__jerk_window(veer_plan *plan, int j, double *over) {
         else
             hi = mid;
     }
-    /* Accept at the fine step. A peak the coarse samples missed may need a
-     * slightly longer window (a switch of the law averaged away), but where
-     * a longer window no longer helps the jerk comes from the geometry. */
+    /* A peak the coarse samples missed may need a slightly longer window (a
+     * switch of the law averaged away), found at 1 ms and accepted at the
+     * fine step; where a longer window no longer helps, the jerk comes from
+     * the geometry. The fine step is taken once the other limits hold (else
+     * the law is solved again anyway). */
+    r = jerk_ratio(plan, j, hi, 1e-3);
+    for (int it = 0; it < 8 && r > VEER_JERK_AIM && 1.05 * hi <= cap; it++) {
+        double longer = jerk_ratio(plan, j, 1.05 * hi, 1e-3);
+        if (!(longer < r)) break;
+        hi *= 1.05;
+        r = longer;
+    }
+    if (r > VEER_JERK_AIM) return fail(plan, j, r / VEER_JERK_AIM, slow);
+    double others = other_limits(plan, j, hi);
+    if (others > VEER__JERK_OTHERS) return others;
+    double h0 = hi;
     r = jerk_ratio(plan, j, hi, VEER_JERK_DT_FINE);
-    for (int it = 0; it < 8 && r > VEER_JERK_AIM; it++) {
+    for (int it = 0; it < 3 && r > VEER_JERK_AIM && 1.05 * hi <= cap; it++) {
         double longer = jerk_ratio(plan, j, 1.05 * hi, VEER_JERK_DT_FINE);
         if (!(longer < r)) break;
         hi *= 1.05;
         r = longer;
     }
-    if (r > VEER_JERK_AIM) {
-        *over = r / VEER_JERK_AIM;
-        jerk_ratio(plan, j, 0.0, VEER_JERK_DT);
-        return -1.0;
-    }
-    veer_plan_segment *sg = &plan->segs[j];
-    sg->tau = hi;
-    sg->move_time = sg->raw_time + hi;
-    *over = r / VEER_JERK_AIM;
-    veer_check_report rep;
-    memset(&rep, 0, sizeof rep);
-    veer__check_segment(plan, j, 1e-3, VEER__CHECK_LIMITS, &rep);
-    return rep.worst;
+    if (r > VEER_JERK_AIM) return fail(plan, j, r / VEER_JERK_AIM, slow);
+    return hi != h0 ? other_limits(plan, j, hi) : others;
 }

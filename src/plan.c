@@ -414,10 +414,7 @@ static veer_limits scaled_limits(const veer_limits *in, double gv, double ga) {
 /* Jerk limits on segment j (solved within lim, steer angles known): fit the
  * averaging window; if averaging takes another limit more than 0.5 % over,
  * re-solve with every limit 3 % lower and fit again. If no window holds
- * the jerk (it comes from the path's geometry), re-solve slower in time:
- * speed limits times f, accelerations times f^2, which scales every jerk
- * of the law, and of its window, by f^3; f is the cube root of the jerk's
- * excess (at most 0.97, at least 0.5 per round). */
+ * the jerk, re-solve slower as the fit advises (veer__jerk_window). */
 veer_status veer__shape_segment(veer_plan *plan, int j, const veer_limits *lim, double x_start, veer_workspace *ws,
                                 veer_diag *diag) {
     /* The window averages the law with its own past: it needs rest before the
@@ -425,13 +422,12 @@ veer_status veer__shape_segment(veer_plan *plan, int j, const veer_limits *lim, 
     if (!veer__has_jerk_limit(plan) || x_start > 0.0) return VEER_OK;
     double gv = 1.0, ga = 1.0;
     for (int it = 0; it < 40; it++) {
-        double over = 1.0;
-        double worst = veer__jerk_window(plan, j, &over);
-        if (worst >= 0.0 && worst <= 1.005) return VEER_OK;
+        double slow[2];
+        double worst = veer__jerk_window(plan, j, slow);
+        if (worst >= 0.0 && worst <= VEER__JERK_OTHERS) return VEER_OK;
         if (worst < 0.0) {
-            double f = fmin(0.97, fmax(0.5, cbrt(1.0 / over)));
-            gv *= f;
-            ga *= f * f;
+            gv *= slow[0];
+            ga *= slow[1];
         } else {
             gv *= 0.97;
             ga *= 0.97;

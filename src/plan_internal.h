@@ -240,10 +240,13 @@ int veer__has_jerk_limit(const veer_plan *plan);
 /* Sets segment j's averaging window to the smallest that keeps every jerk
  * limit (accepted at 0.25 ms samples) and returns the worst ratio of the
  * other limits after averaging, or -1 when no window up to half the
- * stretch's time does (jerk from the path's geometry: the stretch must be
- * slower); *over gets the jerk's ratio to its aim (> 1 when -1). Needs the
- * segment's law and steer angles. */
-double veer__jerk_window(veer_plan *plan, int j, double *over);
+ * stretch's time does; slow[0] and slow[1] then say by how much to scale
+ * the speed-type and the acceleration-type limits for the next try (1 when
+ * a window holds). Needs the segment's law and steer angles. */
+double veer__jerk_window(veer_plan *plan, int j, double slow[2]);
+/* How far averaging may take the other limits over (beyond it the law is
+ * solved again 3 % lower). */
+#define VEER__JERK_OTHERS 1.005
 
 /* ---- stop.c: controlled stop along the path ----------------------------- */
 
