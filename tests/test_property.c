@@ -109,12 +109,12 @@ static void random_cart(rng *r, veer_drive_kind kind, case_def *c) {
     if (chance(r, 0.6)) l.body_accel = uni(r, 0.4, 3.0);
     if (chance(r, 0.3)) l.yaw_rate = uni(r, 0.5, 3.0);
     if (chance(r, 0.3)) l.yaw_accel = uni(r, 0.5, 6.0);
-    /* Jerk limits on a few carts only: planning them costs far more (see
-     * bench/RESULTS.md). */
-    c->jerk = chance(r, 0.03);
+    /* Jerk limits on some carts: planning them costs about a hundred times
+     * more than planning without. */
+    c->jerk = chance(r, 0.06);
     if (c->jerk) {
-        l.body_jerk = uni(r, 5.0, 30.0);
-        for (int i = 0; i < M; i++) l.modules[i].wheel_jerk = uni(r, 150.0, 800.0);
+        l.body_jerk = uni(r, 2.0, 20.0);
+        for (int i = 0; i < M; i++) l.modules[i].wheel_jerk = uni(r, 50.0, 400.0);
     }
     c->drive = d;
     c->limits = l;
