@@ -92,11 +92,9 @@ static veer_status geometry(bool has, double v, int applies, const char *field, 
     if (!applies)
         return veer__fail_plain(diag, VEER_ERR_VALUE, "drive.%s applies to %s drives only",
                                 field, kinds);
-    char name[48];
-    snprintf(name, sizeof name, "drive.%s", field);
-    veer_status st = finite(v, name, diag);
-    if (st == VEER_OK) *dst = v;
-    return st;
+    if (!isfinite(v)) return veer__fail_plain(diag, VEER_ERR_VALUE, "drive.%s is not finite (%g)", field, v);
+    *dst = v;
+    return VEER_OK;
 }
 
 veer_status veer__wire_drive_from_pb(const veer_v1_DriveDef *m, veer_drive_def *out, veer_diag *diag) {
@@ -118,15 +116,13 @@ veer_status veer__wire_drive_from_pb(const veer_v1_DriveDef *m, veer_drive_def *
                                     (int)m->modules_count, VEER_MAX_MODULES);
         d.module_count = (int)m->modules_count;
         for (int i = 0; i < d.module_count; i++) {
-            char f[48];
             const veer_v1_ModuleDef *md = &m->modules[i];
-            veer_status st;
-            snprintf(f, sizeof f, "drive.modules[%d].x", i);
-            if ((st = finite(md->x, f, diag))) return st;
-            snprintf(f, sizeof f, "drive.modules[%d].y", i);
-            if ((st = finite(md->y, f, diag))) return st;
-            snprintf(f, sizeof f, "drive.modules[%d].drive_angle", i);
-            if ((st = finite(md->drive_angle, f, diag))) return st;
+            const double v[3] = {md->x, md->y, md->drive_angle};
+            static const char *const names[3] = {"x", "y", "drive_angle"};
+            for (int c = 0; c < 3; c++) /* the field is named only when it fails */
+                if (!isfinite(v[c]))
+                    return veer__fail_plain(diag, VEER_ERR_VALUE, "drive.modules[%d].%s is not finite (%g)", i,
+                                            names[c], v[c]);
             if (kind == VEER_DRIVE_STEERED && md->drive_angle != 0.0)
                 return veer__fail_plain(diag, VEER_ERR_VALUE,
                                         "drive.modules[%d].drive_angle applies to omni drives only", i);

@@ -531,6 +531,32 @@ Test(wire_values, every_limit_field_is_read_and_named) {
     cr_expect_str_eq(d.message, "limits.modules[1]: steer_min 1 is above steer_max -1");
 }
 
+/* A drive's non-finite module position or geometry is named in the message. */
+Test(wire_values, drive_fields_are_named) {
+    veer_diag d;
+    veer_drive_def drive;
+    veer_v1_DriveDef md;
+    memset(&md, 0, sizeof md);
+    md.kind = veer_v1_DriveKind_DRIVE_KIND_OMNI;
+    md.modules_count = 3;
+    for (int i = 0; i < 3; i++) md.modules[i].x = 0.1 * i, md.modules[i].y = 0.2, md.modules[i].drive_angle = 1.0;
+    cr_assert_eq(veer__wire_drive_from_pb(&md, &drive, &d), VEER_OK, "%s", d.message);
+    cr_expect_eq(drive.modules[2].x, 0.1 * 2);
+    cr_expect_eq(drive.modules[1].drive_angle, 1.0);
+    md.modules[1].drive_angle = (double)NAN;
+    cr_assert_eq(veer__wire_drive_from_pb(&md, &drive, &d), VEER_ERR_VALUE);
+    cr_expect_str_eq(d.message, "drive.modules[1].drive_angle is not finite (nan)");
+    md.modules[1].drive_angle = 1.0;
+    md.modules[2].y = (double)INFINITY;
+    cr_assert_eq(veer__wire_drive_from_pb(&md, &drive, &d), VEER_ERR_VALUE);
+    cr_expect_str_eq(d.message, "drive.modules[2].y is not finite (inf)");
+    md.modules[2].y = 0.2;
+    md.has_wheel_radius = true;
+    md.wheel_radius = -(double)INFINITY;
+    cr_assert_eq(veer__wire_drive_from_pb(&md, &drive, &d), VEER_ERR_VALUE);
+    cr_expect_str_eq(d.message, "drive.wheel_radius is not finite (-inf)");
+}
+
 Test(wire_values, bad_values_are_named) {
     veer_diag d;
     veer_drive_def drive;
