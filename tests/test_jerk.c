@@ -74,9 +74,11 @@ static jerk_worst mecanum_jerk(const veer_plan *p, const veer_drive_def *d, cons
  * 0x5eed0002, case 163, with jerk limits down to 50 rad/s^3): a pivot, a
  * spin, then a tangent-heading travel leg whose corner may pass only 6 cm
  * from its waypoint. The jerk at that corner comes from the path's geometry
- * (the yaw rate turning fast) and grew with the averaging window; the fit
- * accepted a window from 2 ms samples that missed its peak and the plan was
- * 6.5 % over wheel_jerk[3]. The generator's numbers, to 17 digits. */
+ * (the yaw rate turning fast) and grows with the averaging window. The fit
+ * chose a window from 2 ms samples that read the peak 3 % low; its 1 ms
+ * confirmation then lengthened the window twenty times while the jerk grew,
+ * and kept the last one: the plan was 6.5 % over wheel_jerk[3]. The
+ * generator's numbers, to 17 digits. */
 Test(jerk, tight_tangent_corner_mecanum, .timeout = 120) {
     veer_drive_def d = veer_default_drive_def(VEER_DRIVE_MECANUM);
     d.wheel_radius = 0.19746155432946325;
