@@ -184,7 +184,8 @@ typedef struct {
      * points (plan.c): a pool and, per stage, where its rows are. */
     veer_row *extra;
     int *extra_at, *extra_n; /* [longest] */
-    unsigned char *extra_done; /* [longest]: which of an interval's points were added */
+    unsigned char *extra_done; /* [longest]: which of an interval's points were added (bits 0-2), and the
+                                * re-solve's marks (VEER_TOPP_CHANGED: rows added at the last check) */
     int extra_used, extra_cap;
 } veer_workspace;
 
