@@ -255,10 +255,11 @@ static int add_point_rows(veer_workspace *ws, int k, double ds, double f, const 
 
 /* Between grid points the profile runs with constant u and x linear in s,
  * but the rows' coefficients follow the path. Each interval's midpoint is
- * checked against every limit at the profile's (u, x there), and its
- * quarter points too where the midpoint comes within 5 % of a limit; where
- * one is exceeded by more than 0.3 %, that point's rows join the stage for
- * the next solve. x_old: the profile at the last check (NULL: none), where
+ * checked against every limit at the profile's (u, x there); where one is
+ * exceeded by more than 0.3 %, that point's rows join the stage for the
+ * next solve, and the interval's quarter points are checked in the rounds
+ * after that (the dense 1 ms checks of the property suite hold every limit
+ * within 1 % with this). x_old: the profile at the last check (NULL: none), where
  * an interval whose ends kept their x and that got no point then would
  * give the same answer again, so it is skipped (VEER_TOPP_CHANGED in done:
  * a point was added at the last check; bits 0-2: which points were ever
