@@ -356,11 +356,19 @@ static dense_result dense_check(const veer_plan *p, const case_def *c) {
     veer_sample prev, s;
     memset(&prev, 0, sizeof prev);
     int have = 0;
+    /* Jerk, independently of the library's accelerations: the wheel rates
+     * of the textbook kinematics (wheel_rates, signed) and the world
+     * velocity at the last two samples, twice differenced. A second
+     * difference over equal steps h is the second derivative averaged with
+     * a hat-shaped weight (Taylor's theorem with integral remainder), so it
+     * obeys every bound the jerk obeys. */
+    double k1[VEER_MAX_MODULES] = {0}, k2[VEER_MAX_MODULES] = {0}, v1[2] = {0}, v2[2] = {0};
+    int even = 0; /* evenly spaced samples in a row so far */
     for (long q = 0; q <= steps; q++) {
         double t = q < steps ? (double)q * DT : T;
         if (veer_plan_sample(p, t, &s) != VEER_OK || !sample_finite(&s) || s.module_count != M) {
             out.nan++;
-            have = 0;
+            have = even = 0;
             continue;
         }
         out.samples++;
@@ -376,6 +384,25 @@ static dense_result dense_check(const veer_plan *p, const case_def *c) {
         if (e > out.kin_err) out.kin_err = e;
         double u[VEER_MAX_MODULES], dir[VEER_MAX_MODULES];
         wheel_rates(d, s.twist_body, u, dir);
+        if (c->jerk) {
+            even = q < steps ? even + 1 : 0;
+            double h2 = DT * DT;
+            for (int i = 0; i < M; i++) {
+                /* a steered module's rate takes the sign of the reverse choice */
+                double k0 = d->kind == VEER_DRIVE_STEERED ? copysign(u[i], s.modules[i].wheel_rate) : u[i];
+                if (even >= 3)
+                    note(&out.limit, (k0 - 2.0 * k1[i] + k2[i]) / h2, l->modules[i].wheel_jerk,
+                         "wheel_jerk(kinematics, twice differenced)", i, t);
+                k2[i] = k1[i];
+                k1[i] = k0;
+            }
+            if (even >= 3)
+                note(&out.limit,
+                     hypot(s.twist_world[0] - 2.0 * v1[0] + v2[0], s.twist_world[1] - 2.0 * v1[1] + v2[1]) / h2,
+                     l->body_jerk, "body_jerk(velocity twice differenced)", -1, t);
+            memcpy(v2, v1, sizeof v1);
+            memcpy(v1, s.twist_world, sizeof v1);
+        }
         for (int i = 0; i < M; i++) {
             const veer_module_limits *ml = &l->modules[i];
             const veer_module_setpoint *m = &s.modules[i];
