@@ -49,6 +49,28 @@ trap 'rm -rf "$OUT"' EXIT
 # Each part into a file of its own; "summary KEY VALUE ..." lines feed the targets table.
 "$PYTHON" "$REPO/bench/bench.py" lp "$BUILD" >"$OUT/lp.md"
 "$BUILD/bench_cart" scaling >"$OUT/scaling.md"
+# Instructions per plan (callgrind, inside veer_plan_create only): the same
+# on a busy machine as on an idle one, unlike the times.
+instructions() { # instructions N
+    valgrind --tool=callgrind --toggle-collect=veer_plan_create --callgrind-out-file=/dev/null \
+        "$BUILD/bench_cart" once "$1" 2>&1 >/dev/null | awk '/Collected :/ {print $NF}'
+}
+if command -v valgrind >/dev/null 2>&1; then
+    {
+        echo "### Instructions per plan (demo route, callgrind, veer_plan_create only)"
+        echo
+        echo "| grid points asked | instructions | per grid point | cost / cost at 1000 |"
+        echo "|---|---|---|---|"
+        i1000=$(instructions 1000)
+        for n in 250 1000 4000 16000; do
+            i=$([[ $n == 1000 ]] && echo "$i1000" || instructions "$n")
+            awk -v n="$n" -v i="$i" -v b="$i1000" 'BEGIN {printf "| %d | %.2f M | %.0f | %.2f |\n", n, i / 1e6, i / n, i / b}'
+            [[ $n == 16000 ]] && awk -v i="$i" -v b="$i1000" 'BEGIN {printf "\nsummary instr_16000_over_1000 %.2f\n", i / b}'
+        done
+    } >"$OUT/instr.md"
+else
+    printf 'valgrind is not installed: no instruction counts.\n\nsummary instr_16000_over_1000 n/a\n' >"$OUT/instr.md"
+fi
 "$BUILD/bench_cart" player >"$OUT/player.md"
 "$PYTHON" "$REPO/bench/size.py" "$BUILD" >"$OUT/size.md"
 "$PYTHON" "$REPO/bench/size.py" "$BUILD-os" cc -Os >"$OUT/size_os.md"
@@ -58,12 +80,16 @@ trap 'rm -rf "$OUT"' EXIT
 "$PYTHON" "$REPO/bench/bench.py" conventional "$BUILD" >"$OUT/conventional.md"
 
 fig() { # fig KEY: the value after KEY on a summary line (or in stack.txt)
-    cat "$OUT"/*.md "$OUT/stack.txt" | awk -v k="$1" '{for (i = 1; i < NF; i++) if ($i == k) {print $(i + 1); exit}}'
+    # awk reads to the end (an early exit would kill cat by SIGPIPE, which
+    # pipefail and set -e turn into a silent stop of this script)
+    awk -v k="$1" '!found {for (i = 1; i < NF; i++) if ($i == k) {print $(i + 1); found = 1; break}}' \
+        "$OUT"/*.md "$OUT/stack.txt"
 }
 verdict() { # verdict OK?: met / missed
     if [[ $1 == 1 ]]; then echo met; else echo "**missed**"; fi
 }
 ratio=$(fig lp_ratio_1000) diff=$(fig lp_diff_1000) scale=$(fig scale_16000_over_1000) step=$(fig step_mean_us)
+ratio_med=$(fig lp_ratio_1000_median) scale_med=$(fig "(medians:" | tr -d ')') instr=$(fig instr_16000_over_1000)
 p99=$(fig step_p99_us) code=$(fig code_bytes) ram=$(fig ram_bytes)
 code_os=$(fig code_bytes_Os) code_terse=$(fig code_bytes_Os_terse)
 stack=$(fig stack_high_water_bytes) mem=$(fig player_size_bytes)
@@ -72,7 +98,7 @@ ok() { awk "BEGIN {print ($1) ? 1 : 0}"; }
 {
     echo "# veer benchmark results"
     echo
-    echo "Made by \`bench/run.sh --write\` on $(date -u +%Y-%m-%d): veer $(sed -n 's/.*VEER_VERSION_STRING "\(.*\)".*/\1/p' "$REPO/include/veer/version.h")" \
+    echo "Made by \`bench/run.sh\` on $(date -u +%Y-%m-%d): veer $(sed -n 's/.*VEER_VERSION_STRING "\(.*\)".*/\1/p' "$REPO/include/veer/version.h")" \
         "(commit $(git -C "$REPO" rev-parse --short HEAD 2>/dev/null || echo unknown)), $(cc --version | head -n 1 | sed 's/ (.*)//'), -O2," \
         "$(lscpu 2>/dev/null | sed -n 's/^Model name: *//p' | head -n 1), $(nproc) cores."
     echo "Regenerate: \`bench/run.sh --write\` (prints the same tables; needs Debian's python3-scipy)."
@@ -81,14 +107,14 @@ ok() { awk "BEGIN {print ($1) ? 1 : 0}"; }
     echo
     echo "| target | measured | |"
     echo "|---|---|---|"
-    echo "| at 1000 grid points, at least 200 times faster than HiGHS | $ratio times | $(verdict "$(ok "$ratio >= 200")") |"
+    echo "| at 1000 grid points, at least 200 times faster than HiGHS | $ratio times (best against best; medians: $ratio_med) | $(verdict "$(ok "$ratio >= 200")") |"
     echo "| ... with the duration within 0.2 % of the LP optimum | ${diff} % | $(verdict "$(ok "$diff <= 0.2 && $diff >= -0.2")") |"
-    echo "| time linear in N: 16000 grid points cost at most 20 times 1000 | $scale times | $(verdict "$(ok "$scale <= 20")") |"
+    echo "| time linear in N: 16000 grid points cost at most 20 times 1000 | $scale times (best runs; medians: $scale_med; instructions: $instr) | $(verdict "$(ok "$scale <= 20")") |"
     echo "| player step under 1 us for a 4-module cart | mean $step us, 99th percentile $p99 us | $(verdict "$(ok "$step < 1")") |"
     echo "| receiver + player + decoder under 48 KiB of code | -O2: $code B ($(awk "BEGIN {printf \"%.1f\", $code / 1024}") KiB); -Os: $code_os B ($(awk "BEGIN {printf \"%.1f\", $code_os / 1024}") KiB); -Os with VEER_TERSE_DIAG: $code_terse B ($(awk "BEGIN {printf \"%.1f\", $code_terse / 1024}") KiB); HMAC-SHA-256 included | $(verdict "$(ok "$code_os < 49152")") |"
     echo "| ... and under 16 KiB of RAM | static $ram B; stack high-water $stack B; player memory (caller's) $mem B | $(verdict "$(ok "$ram + $stack + $mem < 16384")") (static RAM alone: $(verdict "$(ok "$ram < 16384")")) |"
     echo
-    for part in lp scaling player size size_os size_os_terse; do
+    for part in lp scaling instr player size size_os size_os_terse; do
         sed '/^summary /d' "$OUT/$part.md"
         echo
     done
