@@ -10,7 +10,7 @@
 #   the time a user saves against a careful conventional plan.
 #
 #   bench/run.sh            print the tables
-#   bench/run.sh --write    also write them to bench/RESULTS.md
+#   bench/run.sh --write    also write them to bench/RESULTS.md, and the targets table into README.md
 #
 # Environment: VEER_BENCH_BUILD (default /tmp/veer-bench), VEER_BENCH_RATE
 # (radio air rate in bit/s for the airtime, default 9600).
@@ -138,4 +138,18 @@ cat "$OUT/RESULTS.md"
 if ((WRITE)); then
     cp "$OUT/RESULTS.md" "$REPO/bench/RESULTS.md"
     echo "wrote $REPO/bench/RESULTS.md" >&2
+    # The README shows the targets table between its two bench markers.
+    "$PYTHON" - "$OUT/RESULTS.md" "$REPO/README.md" <<'PY'
+import re, sys
+results, readme = (open(p).read() for p in sys.argv[1:3])
+table = re.search(r"^\| target \|.*?(?=\n\n)", results, re.S | re.M).group(0)
+head = re.search(r"^Made by .*$", results, re.M).group(0)
+new, n = re.subn(r"(<!-- bench targets -->\n)(?:.*?\n)?(<!-- /bench targets -->)",
+                 lambda m: m.group(1) + head + "\n\n" + table + "\n" + m.group(2), readme, flags=re.S)
+if n == 1:
+    open(sys.argv[2], "w").write(new)
+    print("updated the targets table in " + sys.argv[2], file=sys.stderr)
+else:
+    print("README.md has no bench targets markers: not updated", file=sys.stderr)
+PY
 fi
