@@ -54,6 +54,12 @@ static void polygon_init(veer_polygon *pg, int sides, double radius) {
     }
     pg->r = radius * cos(VEER_PI / sides);
     pg->radius = radius;
+    /* h rises to its peak and falls again (checked, not assumed): then the
+     * faces low enough to bind are a run at each end (polygon_rows) */
+    int j = 0;
+    while (j + 1 < pg->faces && pg->h[j] <= pg->h[j + 1]) j++;
+    while (j + 1 < pg->faces && pg->h[j] >= pg->h[j + 1]) j++;
+    pg->ends = j + 1 >= pg->faces;
 }
 
 void veer__row_ctx_init(veer_row_ctx *ctx, const veer_drive_def *drive, const veer_limits *limits,
@@ -70,6 +76,17 @@ void veer__row_ctx_init(veer_row_ctx *ctx, const veer_drive_def *drive, const ve
         ctx->degraded |= drive->modules[i].out;
     }
     ctx->m = ctx->accel.faces + 2 + ctx->module_count * (4 + ctx->traction.faces);
+    /* which limits are set, tested once here rather than at every point */
+    ctx->on_body = (unsigned)set(limits->body_speed) * VEER_ON_BODY_SPEED | (unsigned)set(limits->yaw_rate) * VEER_ON_YAW_RATE |
+                   (unsigned)set(limits->yaw_accel) * VEER_ON_YAW_ACCEL | (unsigned)set(limits->body_accel) * VEER_ON_BODY_ACCEL;
+    for (int i = 0; i < ctx->module_count && i < VEER_MAX_MODULES; i++) {
+        const veer_module_limits *ml = &limits->modules[i];
+        ctx->on_mod[i] = (unsigned)set(ml->steer_rate) * VEER_ON_STEER_RATE | (unsigned)set(ml->wheel_rate) * VEER_ON_WHEEL_RATE |
+                         (unsigned)set(ml->wheel_accel) * VEER_ON_WHEEL_ACCEL |
+                         (unsigned)set(ml->motor_stall_accel) * VEER_ON_MOTOR |
+                         (unsigned)set(ml->motor_free_rate) * VEER_ON_MOTOR_FREE |
+                         (unsigned)set(ml->traction_mu) * VEER_ON_TRACTION;
+    }
 }
 
 static void tighten(double *xmax, veer_limit_id *id, double bound, veer_limit_id which) {
@@ -79,21 +96,39 @@ static void tighten(double *xmax, veer_limit_id *id, double bound, veer_limit_id
     }
 }
 
-/* |f| sdot <= L  ->  x <= L^2 / f^2 */
-static void speed_row2(double f2, double limit, double *xmax, veer_limit_id *id, veer_limit_id which) {
-    if (set(limit) && f2 > 0.0) tighten(xmax, id, limit * limit / f2, which);
+/* |f| sdot <= L  ->  x <= L^2 / f^2 (on: the limit is set) */
+static void speed_row2(unsigned on, double f2, double limit, double *xmax, veer_limit_id *id, veer_limit_id which) {
+    if (on && f2 > 0.0) tighten(xmax, id, limit * limit / f2, which);
 }
 
-static void speed_row(double f, double limit, double *xmax, veer_limit_id *id, veer_limit_id which) {
-    speed_row2(f * f, limit, xmax, id, which);
+static void speed_row(unsigned on, double f, double limit, double *xmax, veer_limit_id *id, veer_limit_id which) {
+    speed_row2(on, f * f, limit, xmax, id, which);
+}
+
+/* Where the u-rows go: into rows, or (rows NULL) only the largest
+ * (a u + b x) / c of the rows with c > 0 at the given (u, x), for the
+ * between-grid-point check (veer__point_worst). m counts the rows. */
+typedef struct {
+    veer_row *rows;
+    int m;
+    double u, x, worst;
+} row_out;
+
+static inline void put(row_out *o, double a, double b, double c, veer_limit_id id) {
+    if (o->rows) {
+        o->rows[o->m] = (veer_row){a, b, c, id};
+    } else if (c > 0.0) {
+        double v = (a * o->u + b * o->x) / c;
+        if (v > o->worst) o->worst = v;
+    }
+    o->m++;
 }
 
 /* |f u + df x| <= L as two rows */
-static int accel_rows(veer_row *rows, double f, double df, double limit, veer_limit_id which) {
-    if (!set(limit)) return 0;
-    rows[0] = (veer_row){f, df, limit, which};
-    rows[1] = (veer_row){-f, -df, limit, which};
-    return 2;
+static void accel_rows(unsigned on, row_out *o, double f, double df, double limit, veer_limit_id which) {
+    if (!on) return;
+    put(o, f, df, limit, which);
+    put(o, -f, -df, limit, which);
 }
 
 /* |p' u + p'' x| <= R for a point with path derivatives p', p'' (world):
@@ -103,10 +138,10 @@ static int accel_rows(veer_row *rows, double f, double df, double limit, veer_li
  * (x >= 0), so only the faces on its side can bind, and of those only the
  * faces that reach down to the highest normal acceleration the point's
  * speed bound xmax allows. radius scales the polygon (R = pg->radius * scale). */
-static int polygon_rows(const veer_polygon *pg, double scale, const double p1[2], const double p2[2], double xmax,
-                        veer_limit_id id, veer_row *rows) {
+static void polygon_rows(const veer_polygon *pg, double scale, const double p1[2], const double p2[2], double xmax,
+                         veer_limit_id id, row_out *o) {
     double sp = sqrt(p1[0] * p1[0] + p1[1] * p1[1]); /* path derivatives: no overflow to guard against */
-    if (!(sp > 0.0 || p2[0] != 0.0 || p2[1] != 0.0)) return 0;
+    if (!(sp > 0.0 || p2[0] != 0.0 || p2[1] != 0.0)) return;
     double tx = 1.0, ty = 0.0;
     if (sp > 0.0) {
         tx = p1[0] / sp;
@@ -116,13 +151,27 @@ static int polygon_rows(const veer_polygon *pg, double scale, const double p1[2]
     double an_x = -p2[0] * ty + p2[1] * tx;            /* normal: an_x x */
     double side = an_x >= 0.0 ? 1.0 : -1.0;
     double an_max = fabs(an_x) * xmax / (pg->radius * scale); /* inf * 0 is NaN: then every face is kept */
-    int m = 0;
-    for (int j = 0; j < pg->faces; j++) {
-        if (pg->h[j] > an_max * (1.0 + 1e-9)) continue;
-        double ca = pg->c[j], sa = side * pg->s[j];
-        rows[m++] = (veer_row){ca * at_u, ca * at_x + sa * an_x, pg->r * scale, id};
+    double top = an_max * (1.0 + 1e-9);
+    if (!pg->ends) {
+        for (int j = 0; j < pg->faces; j++) {
+            if (pg->h[j] > top) continue;
+            double ca = pg->c[j], sa = side * pg->s[j];
+            put(o, ca * at_u, ca * at_x + sa * an_x, pg->r * scale, id);
+        }
+        return;
     }
-    return m;
+    /* the faces kept: [0, a) and [b, faces), in order */
+    int a = 0, b = pg->faces;
+    while (a < b && !(pg->h[a] > top)) {
+        double ca = pg->c[a], sa = side * pg->s[a];
+        put(o, ca * at_u, ca * at_x + sa * an_x, pg->r * scale, id);
+        a++;
+    }
+    while (b > a && !(pg->h[b - 1] > top)) b--;
+    for (int j = b; j < pg->faces; j++) {
+        double ca = pg->c[j], sa = side * pg->s[j];
+        put(o, ca * at_u, ca * at_x + sa * an_x, pg->r * scale, id);
+    }
 }
 
 /* Path derivatives (world) of the contact point of a module at body offset r. */
@@ -140,13 +189,13 @@ static void contact_point(const veer_point_kin *pk, const double r[2], double p1
 /* Rows of one module with wheel rate f sdot (f >= 0) and rate of change
  * f u + df x: speed, acceleration, motor curve (linearized at x_lin, see
  * below), traction. */
-static int module_rows(const veer_row_ctx *ctx, int i, const veer_point_kin *pk, double f, double df, double x_lin,
-                       veer_row *rows, double *xmax, veer_limit_id *xmax_id) {
+static void module_rows(const veer_row_ctx *ctx, int i, const veer_point_kin *pk, double f, double df, double x_lin,
+                        row_out *o, double *xmax, veer_limit_id *xmax_id) {
     const veer_module_limits *ml = &ctx->limits->modules[i];
-    int m = 0;
-    speed_row(f, ml->wheel_rate, xmax, xmax_id, veer__limit(VEER_LIMIT_WHEEL_SPEED, i));
-    m += accel_rows(rows + m, f, df, ml->wheel_accel, veer__limit(VEER_LIMIT_WHEEL_ACCEL, i));
-    if (set(ml->motor_stall_accel) && f > 0.0) {
+    unsigned on = ctx->on_mod[i];
+    speed_row(on & VEER_ON_WHEEL_RATE, f, ml->wheel_rate, xmax, xmax_id, veer__limit(VEER_LIMIT_WHEEL_SPEED, i));
+    accel_rows(on & VEER_ON_WHEEL_ACCEL, o, f, df, ml->wheel_accel, veer__limit(VEER_LIMIT_WHEEL_ACCEL, i));
+    if ((on & VEER_ON_MOTOR) && f > 0.0) {
         /* Driving: f u + df x <= A (1 - f sqrt(x) / w_free). sqrt is concave,
          * so its tangent at x_lin lies above it, sqrt(x) <= sqrt(x0)/2 +
          * x / (2 sqrt(x0)): the row is never looser than the motor curve and
@@ -154,35 +203,34 @@ static int module_rows(const veer_row_ctx *ctx, int i, const veer_point_kin *pk,
         veer_limit_id id = veer__limit(VEER_LIMIT_MOTOR, i);
         double A = ml->motor_stall_accel, wf = ml->motor_free_rate;
         double x_free = wf * wf / (f * f);
-        speed_row(f, wf, xmax, xmax_id, id);
+        speed_row(on & VEER_ON_MOTOR_FREE, f, wf, xmax, xmax_id, id);
         double x0 = x_lin > 1e-6 * x_free ? x_lin : (x_lin > 0.0 ? 1e-6 * x_free : 0.25 * x_free);
         if (x0 > x_free) x0 = x_free;
         double r0 = sqrt(x0);
-        rows[m++] = (veer_row){f, df + A * f / (2.0 * wf * r0), A * (1.0 - f * r0 / (2.0 * wf)), id};
-        rows[m++] = (veer_row){-f, -df, A, id};
+        put(o, f, df + A * f / (2.0 * wf * r0), A * (1.0 - f * r0 / (2.0 * wf)), id);
+        put(o, -f, -df, A, id);
     }
-    if (set(ml->traction_mu)) {
+    if (on & VEER_ON_TRACTION) {
         double p1[2], p2[2];
         contact_point(pk, ctx->pos[i], p1, p2);
-        m += polygon_rows(&ctx->traction, ml->traction_mu * VEER_GRAVITY, p1, p2, *xmax,
-                          veer__limit(VEER_LIMIT_TRACTION, i), rows + m);
+        polygon_rows(&ctx->traction, ml->traction_mu * VEER_GRAVITY, p1, p2, *xmax, veer__limit(VEER_LIMIT_TRACTION, i),
+                     o);
     }
-    return m;
 }
 
-int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double x_lin, veer_row *rows, double *xmax,
-                     veer_limit_id *xmax_id) {
+static int point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double x_lin, row_out *o, double *xmax,
+                      veer_limit_id *xmax_id) {
     const veer_drive_def *drive = ctx->drive;
     const veer_limits *lim = ctx->limits;
-    int m = 0;
     *xmax = VEER_UNLIMITED;
     *xmax_id = veer__limit(VEER_LIMIT_NONE, -1);
     const double *dq = pk->dq, *ddq = pk->ddq;
 
     /* Body speed and yaw rate, yaw acceleration. */
-    speed_row2(dq[0] * dq[0] + dq[1] * dq[1], lim->body_speed, xmax, xmax_id, veer__limit(VEER_LIMIT_BODY_SPEED, -1));
-    speed_row(dq[2], lim->yaw_rate, xmax, xmax_id, veer__limit(VEER_LIMIT_YAW_RATE, -1));
-    m += accel_rows(rows + m, dq[2], ddq[2], lim->yaw_accel, veer__limit(VEER_LIMIT_YAW_ACCEL, -1));
+    speed_row2(ctx->on_body & VEER_ON_BODY_SPEED, dq[0] * dq[0] + dq[1] * dq[1], lim->body_speed, xmax, xmax_id,
+               veer__limit(VEER_LIMIT_BODY_SPEED, -1));
+    speed_row(ctx->on_body & VEER_ON_YAW_RATE, dq[2], lim->yaw_rate, xmax, xmax_id, veer__limit(VEER_LIMIT_YAW_RATE, -1));
+    accel_rows(ctx->on_body & VEER_ON_YAW_ACCEL, o, dq[2], ddq[2], lim->yaw_accel, veer__limit(VEER_LIMIT_YAW_ACCEL, -1));
 
     if (drive->kind == VEER_DRIVE_DIFFERENTIAL) {
         double g = hypot(pk->xi[0], pk->xi[1]) + fabs(pk->xi[2]);
@@ -206,7 +254,8 @@ int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double x
             double sp2 = v[0] * v[0] + v[1] * v[1], spd = sqrt(sp2);
             if (spd > VEER_STILL) {
                 double dphi = (v[0] * dv[1] - v[1] * dv[0]) / sp2; /* d steer / ds */
-                speed_row(dphi, lim->modules[i].steer_rate, xmax, xmax_id, veer__limit(VEER_LIMIT_STEER_RATE, i));
+                speed_row(ctx->on_mod[i] & VEER_ON_STEER_RATE, dphi, lim->modules[i].steer_rate, xmax, xmax_id,
+                          veer__limit(VEER_LIMIT_STEER_RATE, i));
             }
             /* Wheel rate along the wheel's direction e: (v.e) u + (v'.e) x. */
             double ex, ey;
@@ -229,11 +278,24 @@ int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double x
                 df = -df;
             }
         }
-        m += module_rows(ctx, i, pk, f, df, x_lin, rows + m, xmax, xmax_id);
+        module_rows(ctx, i, pk, f, df, x_lin, o, xmax, xmax_id);
     }
-    if (set(lim->body_accel))
-        m += polygon_rows(&ctx->accel, 1.0, dq, ddq, *xmax, veer__limit(VEER_LIMIT_BODY_ACCEL, -1), rows + m);
-    return m;
+    if (ctx->on_body & VEER_ON_BODY_ACCEL) polygon_rows(&ctx->accel, 1.0, dq, ddq, *xmax, veer__limit(VEER_LIMIT_BODY_ACCEL, -1), o);
+    return o->m;
+}
+
+int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double x_lin, veer_row *rows, double *xmax,
+                     veer_limit_id *xmax_id) {
+    row_out o = {rows, 0, 0.0, 0.0, 0.0};
+    return point_rows(ctx, pk, x_lin, &o, xmax, xmax_id);
+}
+
+int veer__point_worst(const veer_row_ctx *ctx, const veer_point_kin *pk, double u, double x, double *worst,
+                      double *xmax, veer_limit_id *xmax_id) {
+    row_out o = {NULL, 0, u, x, -VEER_UNLIMITED};
+    int c = point_rows(ctx, pk, x, &o, xmax, xmax_id);
+    *worst = o.worst;
+    return c;
 }
 
 static veer_status check_one(veer_diag *diag, double v, veer_limit_id id, int allow_any_sign) {

@@ -157,20 +157,39 @@ static double steer_slope(const veer_drive_def *d, int i, const double *xi, cons
 static void steer_rate_bounds(const veer_plan *plan, const veer_row_ctx *ctx, int j, int n, const double *s,
                               veer_workspace *ws) {
     const veer_drive_def *d = &plan->drive;
+    size_t per = 3 * (size_t)plan->module_count;
+    const double *slope = ws->slope ? ws->slope + (size_t)plan->segs[j].k0 * per : NULL;
     for (int i = 0; i < plan->module_count; i++) {
         double w = ctx->limits->modules[i].steer_rate;
         if (d->modules[i].out || !isfinite(w)) continue;
         veer_limit_id id = veer__limit(VEER_LIMIT_STEER_RATE, i);
         double a[2], b[2], prev_bound = VEER_UNLIMITED;
-        double r0 = steer_slope(d, i, ws->xi, ws->dxi, a);
+        /* the slopes at the grid points: the grid refinement's (the same
+         * steer_slope of the same kinematics) where it kept them */
+        const double *sl = slope ? slope + 3 * (size_t)i : NULL;
+        double r0;
+        if (sl) {
+            r0 = sl[0], a[0] = sl[1], a[1] = sl[2];
+        } else {
+            r0 = steer_slope(d, i, ws->xi, ws->dxi, a);
+        }
+        double b0 = r0 > 0.0 ? w * w / (r0 * r0) : VEER_UNLIMITED, a2 = a[0] * a[0] + a[1] * a[1];
         for (int k = 0; k + 1 < n; k++) {
-            double r1 = steer_slope(d, i, ws->xi + 3 * (k + 1), ws->dxi + 3 * (k + 1), b);
-            double b0 = r0 > 0.0 ? w * w / (r0 * r0) : VEER_UNLIMITED, b1 = r1 > 0.0 ? w * w / (r1 * r1) : VEER_UNLIMITED;
+            double r1;
+            if (sl) {
+                const double *o = sl + (size_t)(k + 1) * per;
+                r1 = o[0], b[0] = o[1], b[1] = o[2];
+            } else {
+                r1 = steer_slope(d, i, ws->xi + 3 * (k + 1), ws->dxi + 3 * (k + 1), b);
+            }
+            double b1 = r1 > 0.0 ? w * w / (r1 * r1) : VEER_UNLIMITED;
             double lo = b1 < prev_bound ? b1 : prev_bound; /* neighbours of point k */
             double ds = s[k + 1] - s[k];
             double cross = fabs(a[0] * b[1] - a[1] * b[0]);
-            double scale = sqrt((a[0] * a[0] + a[1] * a[1]) * (b[0] * b[0] + b[1] * b[1]));
-            if (ds > 0.0 && cross > (1.02 * fmax(r0, r1) * ds + 1e-9) * scale) {
+            double b2 = b[0] * b[0] + b[1] * b[1];
+            double scale = sqrt(a2 * b2);
+            double rmax = (r0 >= r1 || isnan(r1)) ? r0 : r1; /* fmax(r0, r1) without the call */
+            if (ds > 0.0 && cross > (1.02 * rmax * ds + 1e-9) * scale) {
                 double inner = VEER_UNLIMITED;
                 for (int q = 1; q < 32; q++) {
                     veer_point_kin pk;
@@ -185,6 +204,8 @@ static void steer_rate_bounds(const veer_plan *plan, const veer_row_ctx *ctx, in
             if (lo < ws->xmax[k]) ws->xmax[k] = lo, ws->xmax_id[k] = id;
             prev_bound = b0 < b1 ? b0 : b1; /* for point k + 1: its left neighbour and itself */
             r0 = r1;
+            b0 = b1;
+            a2 = b2;
             a[0] = b[0];
             a[1] = b[1];
         }
@@ -280,18 +301,16 @@ static int midpoint_rows(const veer_plan *plan, int j, const veer_row_ctx *ctx, 
             double f = frac[q], xf = x[k] + f * (x[k + 1] - x[k]);
             veer_point_kin pk;
             veer__point_kin(&plan->path, j, s[k] + f * ds, &pk);
-            double xmax;
+            double xmax, worst_row;
             veer_limit_id id;
-            int c = veer__point_rows(ctx, &pk, xf, rows, &xmax, &id);
+            /* the rows are only checked here; written out only where one is broken */
+            int c = veer__point_worst(ctx, &pk, u, xf, &worst_row, &xmax, &id);
             if (c < 0) break;
             double worst = isfinite(xmax) ? xf / xmax : 0.0;
             if (isnan(worst)) worst = -VEER_UNLIMITED; /* as fmax: a NaN start gives way to the first row */
-            for (int r = 0; r < c && !(worst > 1.0 + 3e-3); r++) {
-                if (!(rows[r].c > 0.0)) continue;
-                double v = (rows[r].a * u + rows[r].b * xf) / rows[r].c;
-                if (v > worst) worst = v; /* fmax(worst, v) without the call */
-            }
+            if (worst_row > worst) worst = worst_row; /* fmax(worst, v) over the rows, without the call */
             if (worst > 1.0 + 3e-3) {
+                c = veer__point_rows(ctx, &pk, xf, rows, &xmax, &id);
                 if (!add_point_rows(ws, k, ds, f, rows, c, xmax, id)) return -1;
                 done[k] |= (unsigned char)(1u << q | VEER_TOPP_CHANGED);
                 added++;
@@ -512,14 +531,19 @@ static veer_status start_state(veer_plan *plan, double *x_start, veer_diag *diag
  * once per point. */
 typedef struct {
     veer_point_kin pk;
-    double r[VEER_MAX_MODULES], v[VEER_MAX_MODULES][2];
+    double sl[3 * VEER_MAX_MODULES]; /* module i: steer slope sl[3 i], velocity sl[3 i + 1], sl[3 i + 2] */
 } grid_probe;
 
 static void probe_at(const veer_plan *plan, int seg, double s, grid_probe *g) {
     veer__point_kin(&plan->path, seg, s, &g->pk);
     if (!plan->steered) return;
-    for (int i = 0; i < plan->module_count; i++)
-        if (!plan->drive.modules[i].out) g->r[i] = steer_slope(&plan->drive, i, g->pk.xi, g->pk.dxi, g->v[i]);
+    for (int i = 0; i < plan->module_count; i++) {
+        if (!plan->drive.modules[i].out) {
+            g->sl[3 * i] = steer_slope(&plan->drive, i, g->pk.xi, g->pk.dxi, &g->sl[3 * i + 1]);
+        } else {
+            g->sl[3 * i] = g->sl[3 * i + 1] = g->sl[3 * i + 2] = 0.0; /* never read */
+        }
+    }
 }
 
 static int needs_points(const veer_plan *plan, const grid_probe *ga, const grid_probe *gb) {
@@ -529,8 +553,8 @@ static int needs_points(const veer_plan *plan, const grid_probe *ga, const grid_
     int need = 0;
     for (int i = 0; i < plan->module_count; i++) {
         if (d->modules[i].out) continue;
-        const double *va = ga->v[i], *vb = gb->v[i];
-        double ra = ga->r[i], rb = gb->r[i];
+        const double *va = &ga->sl[3 * i + 1], *vb = &gb->sl[3 * i + 1];
+        double ra = ga->sl[3 * i], rb = gb->sl[3 * i];
         double a2 = va[0] * va[0] + va[1] * va[1], b2 = vb[0] * vb[0] + vb[1] * vb[1], dot = va[0] * vb[0] + va[1] * vb[1];
         if (a2 < 1e-18 || b2 < 1e-18) continue;
         if (dot < 0.0 || dot * dot < c2 * a2 * b2) return 2;
@@ -559,26 +583,39 @@ static int needs_points(const veer_plan *plan, const grid_probe *ga, const grid_
 typedef struct {
     double *s;
     veer_point_kin *kin;
-    int n, cap; /* points written, room in kin */
+    double *slope; /* steered drives: the probes' steer slope and module velocity, 3 per module, M per point */
+    int M;         /* modules */
+    int n, cap; /* points written, room in kin (and slope) */
     int oom;    /* 1: kin could not grow */
 } grid_out;
 
-static void grid_push(grid_out *g, double s, const veer_point_kin *pk) {
+static void grid_push(grid_out *g, double s, const grid_probe *pr) {
     if (g->oom) return;
+    size_t per = 3 * (size_t)g->M;
     if (g->n == g->cap) {
         int cap = 2 * g->cap;
         veer_point_kin *k = veer__alloc((size_t)cap * sizeof *k);
-        if (!k) {
+        double *sl = g->slope ? veer__alloc((size_t)cap * per * sizeof *sl) : NULL;
+        if (!k || (g->slope && !sl)) {
+            veer__free(k, (size_t)cap * sizeof *k);
+            veer__free(sl, (size_t)cap * per * sizeof *sl);
             g->oom = 1;
             return;
         }
         memcpy(k, g->kin, (size_t)g->n * sizeof *k);
         veer__free(g->kin, (size_t)g->cap * sizeof *g->kin);
         g->kin = k;
+        if (g->slope) {
+            memcpy(sl, g->slope, (size_t)g->n * per * sizeof *sl);
+            veer__free(g->slope, (size_t)g->cap * per * sizeof *g->slope);
+            g->slope = sl;
+        }
         g->cap = cap;
     }
     g->s[g->n] = s;
-    g->kin[g->n++] = *pk;
+    g->kin[g->n] = pr->pk;
+    if (g->slope) memcpy(g->slope + (size_t)g->n * per, pr->sl, per * sizeof *g->slope);
+    g->n++;
 }
 
 static void refine(const veer_plan *plan, int seg, double sa, const grid_probe *pa, double sb, const grid_probe *pb,
@@ -590,7 +627,7 @@ static void refine(const veer_plan *plan, int seg, double sa, const grid_probe *
     probe_at(plan, seg, sm, &pm);
     budget[need == 2 ? 0 : 1]--;
     refine(plan, seg, sa, pa, sm, &pm, depth + 1, budget, g);
-    grid_push(g, sm, &pm.pk);
+    grid_push(g, sm, &pm);
     refine(plan, seg, sm, &pm, sb, pb, depth + 1, budget, g);
 }
 
@@ -609,7 +646,7 @@ static void grid_points(const veer_plan *plan, const int *intervals, grid_out *g
         double prev = ps->s_begin;
         grid_probe pprev, pk;
         probe_at(plan, j, prev, &pprev);
-        grid_push(g, prev, &pprev.pk);
+        grid_push(g, prev, &pprev);
         for (int p = ps->first_piece; p < ps->first_piece + ps->piece_count; p++) {
             const veer_path_piece *pc = &path->pieces[p];
             for (int i = 1; i <= intervals[p]; i++) {
@@ -619,7 +656,7 @@ static void grid_points(const veer_plan *plan, const int *intervals, grid_out *g
                 probe_at(plan, j, sn, &pk);
                 if (plan->steered) refine(plan, j, prev, &pprev, sn, &pk, 0, budget, g);
                 pprev = pk;
-                grid_push(g, sn, &pk.pk);
+                grid_push(g, sn, &pk);
                 prev = sn;
             }
         }
@@ -663,15 +700,23 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     int base = path->segment_count;
     for (int p = 0; p < path->piece_count; p++) base += intervals[p];
     size_t grid_room = (size_t)(base + 4 * plan->options.grid_points + plan->options.grid_points / 4 + 1) * sizeof(double);
-    grid_out go = {veer__alloc(grid_room), NULL, 0, base, 0};
+    grid_out go = {veer__alloc(grid_room), NULL, NULL, plan->module_count, 0, base, 0};
+    size_t per = 3 * (size_t)plan->module_count; /* slope doubles per point */
     go.kin = go.s ? veer__alloc((size_t)go.cap * sizeof *go.kin) : NULL;
-    if (go.kin) grid_points(plan, intervals, &go, first);
+    if (go.kin && plan->steered) {
+        go.slope = veer__alloc((size_t)go.cap * per * sizeof *go.slope);
+        if (!go.slope) go.oom = 1;
+    }
+    if (go.kin && !go.oom) grid_points(plan, intervals, &go, first);
     double *grid = go.s;
     veer_point_kin *kin = go.kin;
     size_t kin_room = (size_t)go.cap * sizeof *go.kin;
+    double *slope = go.slope;
+    size_t slope_room = (size_t)go.cap * per * sizeof *go.slope;
     if (!kin || go.oom) {
         veer__free(grid, grid_room);
         veer__free(kin, kin_room);
+        veer__free(slope, slope_room);
         return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
     }
     int n = go.n;
@@ -681,6 +726,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     if (!g) {
         veer__free(grid, grid_room);
         veer__free(kin, kin_room);
+        veer__free(slope, slope_room);
         return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
     }
     plan->n = n;
@@ -706,6 +752,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     veer_status st = start_state(plan, &plan->x_start, diag);
     if (st != VEER_OK) {
         veer__free(kin, kin_room);
+        veer__free(slope, slope_room);
         return st;
     }
 
@@ -720,9 +767,11 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     if (!w) {
         veer__free(ws.rows, ws.rows_cap * sizeof *ws.rows);
         veer__free(kin, kin_room);
+        veer__free(slope, slope_room);
         return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
     }
     ws.kin = kin;
+    ws.slope = slope;
     ws.xmax = (double *)w;
     ws.K = ws.xmax + longest;
     ws.xi = ws.K + longest;
@@ -750,6 +799,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     veer__free(w, ws.bytes);
     veer__free(ws.rows, ws.rows_cap * sizeof *ws.rows);
     veer__free(kin, kin_room);
+    veer__free(slope, slope_room);
     if (st != VEER_OK) return st;
 
     veer__plan_timeline(plan);

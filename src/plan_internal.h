@@ -43,6 +43,7 @@ typedef struct {
     double h[VEER_MAX_POLYGON_FACES]; /* lowest normal component on each face, unit circle */
     double r;                         /* radius * cos(pi / sides) */
     double radius;
+    int ends; /* 1: h rises, then falls: the faces that can bind are a run at each end */
 } veer_polygon;
 
 typedef struct {
@@ -56,7 +57,19 @@ typedef struct {
     double J[VEER_MAX_MODULES][3];
     double pos[VEER_MAX_MODULES][2];    /* module contact points, body frame */
     int m;                              /* most u-rows a point can have */
+    unsigned on_body;                   /* VEER_ON_* bits of the body limits that are set (finite) */
+    unsigned on_mod[VEER_MAX_MODULES];  /* and of each module's */
 } veer_row_ctx;
+#define VEER_ON_BODY_SPEED 1u
+#define VEER_ON_YAW_RATE 2u
+#define VEER_ON_YAW_ACCEL 4u
+#define VEER_ON_BODY_ACCEL 8u
+#define VEER_ON_STEER_RATE 1u
+#define VEER_ON_WHEEL_RATE 2u
+#define VEER_ON_WHEEL_ACCEL 4u
+#define VEER_ON_MOTOR 8u
+#define VEER_ON_MOTOR_FREE 16u
+#define VEER_ON_TRACTION 32u
 
 void veer__row_ctx_init(veer_row_ctx *ctx, const veer_drive_def *drive, const veer_limits *limits,
                         const veer_plan_options *opt);
@@ -69,6 +82,11 @@ void veer__row_ctx_init(veer_row_ctx *ctx, const veer_drive_def *drive, const ve
  * there (differential drive asked to move sideways: *xmax_id says so). */
 int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double x_lin, veer_row *rows, double *xmax,
                      veer_limit_id *xmax_id);
+/* The same rows at (u, x), linearized at x, not written: *worst gets the
+ * largest (a u + b x) / c of those with c > 0 (-VEER_UNLIMITED if none).
+ * Returns what veer__point_rows would. */
+int veer__point_worst(const veer_row_ctx *ctx, const veer_point_kin *pk, double u, double x, double *worst,
+                      double *xmax, veer_limit_id *xmax_id);
 
 /* Checks limits against the drive: NaN/negative -> ERR_VALUE, zero -> ERR_INFEASIBLE. */
 veer_status veer__limits_check(const veer_drive_def *drive, const veer_limits *limits, veer_diag *diag);
@@ -179,6 +197,8 @@ typedef struct {
     double *x_prev;         /* [longest] the profile at the last between-grid-point check */
     veer_limit_id *xmax_id;
     const veer_point_kin *kin; /* [plan->n] path kinematics at every grid point, NULL: computed when needed */
+    const double *slope;    /* steered drives: [plan->n * 3 * modules] steer slope and module velocity at every grid point
+                             * (plan.c's grid refinement), NULL: computed when needed */
     size_t bytes;
     /* Midpoint rows added where the profile broke a limit between grid
      * points (plan.c): a pool and, per stage, where its rows are. */

@@ -14,6 +14,7 @@
  * piece each step and never overshoots the root, so a stage costs
  * O(m * steps) with steps typically 1 to 3: the solve is O(N m).
  * SPDX-License-Identifier: MIT */
+#include <string.h>
 #include "plan_internal.h"
 
 #define VEER_X_BIG 1e20 /* stands for an unbounded x */
@@ -148,10 +149,37 @@ static double stage_max_x(const stage *st) {
  * x[k], stage k and K[k + 1], so a value is recomputed only where one of
  * these changed (VEER_TOPP_K_CHANGED marks the K that did). The result is
  * the full solve's, bit for bit. */
+/* U(x) from a stage's upper bounds as stage_build wrote them: the value
+ * stage_upper computes from the rows, bit for bit (same bounds, same order,
+ * p + q x with p = c / a, q = -b / a). */
+static double kept_upper(const bound *b, int nb, double x) {
+    double U = b[0].p + b[0].q * x;
+    for (int j = 1; j < nb; j++) {
+        double v = b[j].p + b[j].q * x;
+        if (v < U) U = v;
+    }
+    return U;
+}
+
 static veer_status solve(const veer_topp_problem *p, double x_start, double *x, double *K, unsigned char *marks,
                          int *bad_index) {
     int n = p->n;
     stage st;
+    /* A full solve without extra rows keeps each stage's upper bounds from
+     * the backward pass for the forward pass (which would otherwise divide
+     * them out of the rows again): stage k's at kept + k + row_at[k] +
+     * row_at[k + 1] (relative to row_at[0]), room for its 1 + n0 + n1. If
+     * the room cannot be had, the forward pass works from the rows. */
+    bound *kept = NULL;
+    int *kept_n = NULL;
+    size_t kept_bytes = 0;
+    if (!marks && !p->extra && n >= 2) {
+        size_t r0 = (size_t)p->row_at[0];
+        size_t cnt = (size_t)(n - 1) + ((size_t)p->row_at[n - 1] - r0) + ((size_t)p->row_at[n] - r0);
+        kept_bytes = cnt * sizeof *kept + (size_t)n * sizeof *kept_n;
+        kept = veer__alloc(kept_bytes);
+        if (kept) kept_n = (int *)(kept + cnt);
+    }
     /* Backward pass: controllable sets K_k = [0, K[k]], rest at the end. */
     K[n - 1] = 0.0;
     if (marks) marks[n - 1] &= (unsigned char)~VEER_TOPP_K_CHANGED;
@@ -164,6 +192,11 @@ static veer_status solve(const veer_topp_problem *p, double x_start, double *x, 
         }
         stage_build(p, k, K[k + 1], &st);
         double v = stage_max_x(&st);
+        if (kept) {
+            size_t at = (size_t)k + (size_t)(p->row_at[k] - p->row_at[0]) + (size_t)(p->row_at[k + 1] - p->row_at[0]);
+            memcpy(kept + at, st.up, (size_t)st.nup * sizeof *kept);
+            kept_n[k] = st.nup;
+        }
         if (marks) {
             dirty = !(v == K[k]);
             if (dirty) marks[k] |= VEER_TOPP_K_CHANGED;
@@ -172,6 +205,7 @@ static veer_status solve(const veer_topp_problem *p, double x_start, double *x, 
     }
     /* A moving start must lie in the first controllable set: room to stop. */
     if (x_start > K[0] * (1.0 + 1e-9) + 1e-12) {
+        veer__free(kept, kept_bytes);
         if (bad_index) *bad_index = 0;
         return VEER_ERR_INFEASIBLE;
     }
@@ -180,13 +214,20 @@ static veer_status solve(const veer_topp_problem *p, double x_start, double *x, 
     x[0] = x_start;
     for (int k = 0; k < n - 1; k++) {
         if (!dirty && !(marks[k] & VEER_TOPP_CHANGED) && !(marks[k + 1] & VEER_TOPP_K_CHANGED)) continue;
-        double U = stage_upper(p, k, K[k + 1], x[k]);
+        double U;
+        if (kept) {
+            size_t at = (size_t)k + (size_t)(p->row_at[k] - p->row_at[0]) + (size_t)(p->row_at[k + 1] - p->row_at[0]);
+            U = kept_upper(kept + at, kept_n[k], x[k]);
+        } else {
+            U = stage_upper(p, k, K[k + 1], x[k]);
+        }
         double next = x[k] + 2.0 * (p->s[k + 1] - p->s[k]) * U;
         if (next > K[k + 1]) next = K[k + 1];
         if (!(next > 0.0)) next = 0.0;
         dirty = !marks || !(next == x[k + 1]);
         x[k + 1] = next;
     }
+    veer__free(kept, kept_bytes);
     x[n - 1] = 0.0;
     /* Interior points where nothing can move make the duration infinite. */
     for (int k = 1; k < n - 1; k++) {
