@@ -28,10 +28,14 @@ int veer__has_jerk_limit(const veer_plan *plan) {
     return 0;
 }
 
-static double jerk_ratio(veer_plan *plan, int j, double tau, double dt) {
+static void set_window(veer_plan *plan, int j, double tau) {
     veer_plan_segment *sg = &plan->segs[j];
     sg->tau = tau;
-    sg->move_time = sg->raw_time + tau;
+    sg->move_time = sg->raw_time + tau - veer__segment_lead(plan, j);
+}
+
+static double jerk_ratio(veer_plan *plan, int j, double tau, double dt) {
+    set_window(plan, j, tau);
     veer_check_report r;
     memset(&r, 0, sizeof r);
     veer__check_segment(plan, j, dt, VEER__CHECK_JERK, &r);
@@ -41,9 +45,7 @@ static double jerk_ratio(veer_plan *plan, int j, double tau, double dt) {
 /* Sets segment j's window to tau and returns the worst ratio of the other
  * limits at 1 ms. */
 static double other_limits(veer_plan *plan, int j, double tau) {
-    veer_plan_segment *sg = &plan->segs[j];
-    sg->tau = tau;
-    sg->move_time = sg->raw_time + tau;
+    set_window(plan, j, tau);
     veer_check_report r;
     memset(&r, 0, sizeof r);
     veer__check_segment(plan, j, 1e-3, VEER__CHECK_LIMITS, &r);
@@ -89,10 +91,8 @@ static double quarters(const veer_plan *plan, int j, const veer_sample *a, const
  * than half the aim (its millisecond lies within two neighbouring ones of
  * ours, so it reads at most their sum). */
 static double fine_jerk_ratio(veer_plan *plan, int j, double tau) {
-    veer_plan_segment *sg = &plan->segs[j];
-    sg->tau = tau;
-    sg->move_time = sg->raw_time + tau;
-    const double dt = 1e-3, T = sg->move_time;
+    set_window(plan, j, tau);
+    const double dt = 1e-3, T = plan->segs[j].move_time;
     long n = (long)ceil(T / dt);
     veer_sample s[3]; /* at steps q - 2, q - 1, q */
     memset(s, 0, sizeof s);
@@ -128,6 +128,14 @@ static double fail(veer_plan *plan, int j, double over, double slow[2]) {
     return -1.0;
 }
 
+/* Moving start, first segment: seconds the solve holds the start speed
+ * (coast_k grid points); -1 elsewhere. */
+static double hold_time(const veer_plan *plan, int j) {
+    const veer_plan_segment *sg = &plan->segs[j];
+    if (j != 0 || !(plan->x_start > 0.0)) return -1.0;
+    return (plan->s[sg->k0 + sg->coast_k] - plan->s[sg->k0]) / sqrt(plan->x_start);
+}
+
 /* The motion time, raw plus window, once slowed so that window tau holds
  * the jerk ratio r (up to the factor aim^(-1/3)). */
 static double slowed_time(double raw, double tau, double r) { return (raw + tau) * cbrt(fmax(r, 1e-9)); }
@@ -142,6 +150,12 @@ double veer__jerk_window(veer_plan *plan, int j, double slow[2]) {
     slow[0] = slow[1] = 1.0;
     double raw = plan->segs[j].raw_time;
     double cap = fmin(VEER_JERK_TAU_MAX, fmax(0.5, 0.5 * raw));
+    /* A moving start's window reads the raw law tau / 2 ahead, which must
+     * still hold the start speed there (sample.c, veer__segment_law). */
+    double hold = hold_time(plan, j);
+    int held = hold >= 0.0 && 2.0 * hold < cap;
+    if (hold >= 0.0) cap = fmin(cap, 2.0 * hold);
+    if (!(cap >= 0.02)) return fail(plan, j, 1.0, slow) - (held ? 1.0 : 0.0);
     double hi = 0.02, r = jerk_ratio(plan, j, hi, VEER_JERK_DT), at = hi, r_at = r;
     while (r > VEER_JERK_AIM && hi < cap) {
         hi = fmin(2.0 * hi, cap); /* the cap itself is a window too */
@@ -170,7 +184,7 @@ double veer__jerk_window(veer_plan *plan, int j, double slow[2]) {
             double tc = exp(c), td = exp(d);
             if (slowed_time(raw, tc, rc) < slowed_time(raw, at, r_at)) at = tc, r_at = rc;
             if (slowed_time(raw, td, rd) < slowed_time(raw, at, r_at)) at = td, r_at = rd;
-            return fail(plan, j, r_at / VEER_JERK_AIM, slow);
+            return fail(plan, j, r_at / VEER_JERK_AIM, slow) - (held ? 1.0 : 0.0);
         }
         hi = rc <= VEER_JERK_AIM ? exp(c) : exp(d); /* holds the jerk; the bisection keeps a window that does */
         lo = 0.5 * at;
@@ -194,7 +208,7 @@ double veer__jerk_window(veer_plan *plan, int j, double slow[2]) {
         hi *= 1.05;
         r = longer;
     }
-    if (r > VEER_JERK_AIM) return fail(plan, j, r / VEER_JERK_AIM, slow);
+    if (r > VEER_JERK_AIM) return fail(plan, j, r / VEER_JERK_AIM, slow) - (held ? 1.0 : 0.0);
     double others = other_limits(plan, j, hi);
     if (others > VEER__JERK_OTHERS) return others;
     double h0 = hi;
@@ -205,6 +219,6 @@ double veer__jerk_window(veer_plan *plan, int j, double slow[2]) {
         hi *= 1.05;
         r = longer;
     }
-    if (r > VEER_JERK_AIM) return fail(plan, j, r / VEER_JERK_AIM, slow);
+    if (r > VEER_JERK_AIM) return fail(plan, j, r / VEER_JERK_AIM, slow) - (held ? 1.0 : 0.0);
     return hi != h0 ? other_limits(plan, j, hi) : others;
 }

@@ -363,6 +363,9 @@ veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx,
         p.rows = ws->rows;
         if (plan->cap.cap) apply_speed_caps(plan, j, n, s, ws);
         if (plan->steered) steer_rate_bounds(plan, ctx, j, n, s, ws);
+        for (int k = 0; k <= sg->coast_k && k < n; k++) /* a moving start's hold for its jerk window */
+            if (sg->coast_k > 0 && x_start < ws->xmax[k])
+                ws->xmax[k] = x_start, ws->xmax_id[k] = veer__limit(VEER_LIMIT_START_STATE, -1);
         int bad = 0;
         veer_status st = veer__topp_solve(&p, x_start, x, ws->K, &bad);
         /* Limits broken between grid points: add those midpoints' rows and
@@ -435,16 +438,17 @@ static veer_limits scaled_limits(const veer_limits *in, double gv, double ga) {
  * averaging window; if averaging takes another limit more than 0.5 % over,
  * re-solve with every limit 3 % lower and fit again. If no window holds
  * the jerk, re-solve slower as the fit advises (veer__jerk_window). */
-veer_status veer__shape_segment(veer_plan *plan, int j, const veer_limits *lim, double x_start, veer_workspace *ws,
-                                veer_diag *diag) {
-    /* The window averages the law with its own past: it needs rest before the
-     * segment, so a moving start's first stretch keeps its time-optimal law. */
-    if (!veer__has_jerk_limit(plan) || x_start > 0.0) return VEER_OK;
+static veer_status fit_window(veer_plan *plan, int j, const veer_limits *lim, double x_start, veer_workspace *ws,
+                              veer_diag *diag, int *longer_hold) {
     double gv = 1.0, ga = 1.0;
     for (int it = 0; it < 40; it++) {
         double slow[2];
         double worst = veer__jerk_window(plan, j, slow);
         if (worst >= 0.0 && worst <= VEER__JERK_OTHERS) return VEER_OK;
+        if (worst < -1.5) { /* the window needs a longer hold of the start speed */
+            *longer_hold = 1;
+            return VEER_OK;
+        }
         if (worst < 0.0) {
             gv *= slow[0];
             ga *= slow[1];
@@ -463,6 +467,82 @@ veer_status veer__shape_segment(veer_plan *plan, int j, const veer_limits *lim, 
     return veer__fail(diag, VEER_ERR_INFEASIBLE, ps->leg, ps->waypoint, -1, ps->s_begin,
                       veer__limit(VEER_LIMIT_BODY_JERK, -1),
                       "leg %d: no jerk-limiting window keeps the other limits on this stretch", ps->leg);
+}
+
+/* The hold of the start speed, in grid points, that covers hold_t seconds
+ * (at least one interval, less than the whole segment; 0 when none fits). */
+static int coast_points(const veer_plan *plan, int j, double v0, double hold_t) {
+    const veer_plan_segment *sg = &plan->segs[j];
+    double want = plan->s[sg->k0] + v0 * hold_t;
+    int k = 1;
+    while (sg->k0 + k < sg->k1 && plan->s[sg->k0 + k] < want) k++;
+    return sg->k0 + k < sg->k1 ? k : 0;
+}
+
+/* Jerk window on a moving start's first segment. The averaged law is read
+ * tau / 2 ahead (veer__segment_lead) and the solve holds the start speed
+ * for at least tau / 2 (coast_k), so the law starts at s0 with the start
+ * speed and no acceleration: the cart keeps moving as it did, then eases
+ * into the time-optimal law. The hold starts at the longest accel / jerk
+ * ratio of the limits (the S-curve's ramp time on a straight) and grows
+ * while the fit asks for it; once a window holds, the hold is cut to that
+ * window if that still fits. When no hold works (the cart must brake at
+ * once, or the slowed limits no longer admit the start speed), the segment
+ * keeps its time-optimal law, as before. */
+static veer_status shape_moving(veer_plan *plan, int j, const veer_limits *lim, double x_start, veer_workspace *ws,
+                                veer_diag *diag) {
+    veer_plan_segment *sg = &plan->segs[j];
+    double v0 = sqrt(x_start), g = 0.05;
+    if (isfinite(lim->body_jerk) && isfinite(lim->body_accel)) g = fmax(g, lim->body_accel / lim->body_jerk);
+    for (int i = 0; i < plan->module_count; i++)
+        if (isfinite(lim->modules[i].wheel_jerk) && isfinite(lim->modules[i].wheel_accel))
+            g = fmax(g, lim->modules[i].wheel_accel / lim->modules[i].wheel_jerk);
+    veer_row_ctx ctx;
+    veer__row_ctx_init(&ctx, &plan->drive, lim, &plan->options);
+    int good = 0, cut = 0; /* coast_k of the last fit that held (0: none yet); the cut was tried */
+    for (int it = 0; it < 16; it++) {
+        int k = coast_points(plan, j, v0, 0.5 * g);
+        veer_diag scratch;
+        veer_status st = VEER_ERR_INFEASIBLE;
+        int longer = 0;
+        if (k > 0) {
+            sg->coast_k = k;
+            sg->tau = 0.0;
+            st = veer__solve_segment(plan, j, &ctx, x_start, ws, &scratch);
+            if (st == VEER_OK) st = fit_window(plan, j, lim, x_start, ws, &scratch, &longer);
+            if (st == VEER_ERR_NO_MEMORY) return veer__fail_plain(diag, st, "out of memory");
+        }
+        if (st == VEER_OK && !longer) {
+            if (cut || 2.0 * (plan->s[sg->k0 + k] - plan->s[sg->k0]) / v0 <= 1.2 * sg->tau + 1e-3) return VEER_OK;
+            good = k, cut = 1;
+            g = 1.02 * sg->tau; /* the hold the window needs, and a little */
+            continue;
+        }
+        if (good) { /* the cut hold no longer fits: back to the one that did */
+            g = 2.0 * (plan->s[sg->k0 + good] - plan->s[sg->k0]) / v0;
+            good = 0;
+            continue;
+        }
+        if (st != VEER_OK || k == 0) break;
+        g *= 1.6;
+    }
+    /* No hold: the time-optimal law as it is. */
+    sg->coast_k = 0;
+    sg->tau = 0.0;
+    return veer__solve_segment(plan, j, &ctx, x_start, ws, diag);
+}
+
+/* Jerk limits on segment j (solved within lim, steer angles known): fit the
+ * averaging window; if averaging takes another limit more than 0.5 % over,
+ * re-solve with every limit 3 % lower and fit again. If no window holds
+ * the jerk, re-solve slower as the fit advises (veer__jerk_window). */
+veer_status veer__shape_segment(veer_plan *plan, int j, const veer_limits *lim, double x_start, veer_workspace *ws,
+                                veer_diag *diag) {
+    plan->segs[j].coast_k = 0;
+    if (!veer__has_jerk_limit(plan)) return VEER_OK;
+    if (x_start > 0.0) return shape_moving(plan, j, lim, x_start, ws, diag);
+    int longer = 0;
+    return fit_window(plan, j, lim, x_start, ws, diag, &longer);
 }
 
 /* Re-planning on the move: the start twist must be the path's own direction

@@ -155,10 +155,12 @@ typedef struct {
     double t_resteer;             /* s: the re-steer phase before the motion starts */
     double resteer_time;          /* s */
     double t_move;                /* s: motion starts (= t_resteer + resteer_time) */
-    double move_time;             /* s: raw_time + tau */
+    double move_time;             /* s: raw_time + tau - lead (veer__segment_lead) */
     double raw_time;              /* s: the time-optimal law's motion time */
     double tau;                   /* s: jerk-limiting window (the law averaged over it), 0: none */
     double dwell;                 /* s at rest after the motion */
+    int coast_k;                  /* moving start with a jerk window: the solve holds the start speed up to
+                                     grid point k0 + coast_k (0: no such hold) */
     double steer_from[VEER_MAX_MODULES]; /* module angles when the re-steer phase starts */
     double steer_to[VEER_MAX_MODULES];   /* ... and when it ends (= steer at k0) */
 } veer_plan_segment;
@@ -263,7 +265,10 @@ int veer__has_jerk_limit(const veer_plan *plan);
  * other limits after averaging, or -1 when no window up to half the
  * stretch's time does; slow[0] and slow[1] then say by how much to scale
  * the speed-type and the acceleration-type limits for the next try (1 when
- * a window holds). Needs the segment's law and steer angles. */
+ * a window holds). On a moving start's first segment the window is at most
+ * twice the solve's hold of the start speed (coast_k); -2 when none up to
+ * that holds but a longer one might. Needs the segment's law and steer
+ * angles. */
 double veer__jerk_window(veer_plan *plan, int j, double slow[2]);
 /* How far averaging may take the other limits over (beyond it the law is
  * solved again 3 % lower). */
@@ -276,6 +281,11 @@ double veer__jerk_window(veer_plan *plan, int j, double slow[2]);
  * hard as the limits allow; *sddot gets the last deceleration. Returns 1
  * while still moving, 0 once at rest. Bounded work: ceil(dt / 1 ms) steps. */
 int veer__stop_step(const veer_plan *plan, int seg, double *s, double *sdot, double *sddot, double dt);
+
+/* Seconds by which segment j reads its averaged law ahead: tau / 2 on the
+ * first segment of a moving start with a jerk window (its law starts at the
+ * start point with the start speed), else 0. */
+double veer__segment_lead(const veer_plan *plan, int j);
 
 /* The motion law of segment j, r seconds after its motion starts. */
 void veer__segment_law(const veer_plan *plan, int j, double r, double *s, double *sdot, double *sddot);

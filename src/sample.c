@@ -145,6 +145,10 @@ static double raw_integral(const veer_plan *plan, int j, double a, double b) {
     return sum;
 }
 
+double veer__segment_lead(const veer_plan *plan, int j) {
+    return j == 0 && plan->x_start > 0.0 && plan->segs[0].tau > 0.0 ? 0.5 * plan->segs[0].tau : 0.0;
+}
+
 void veer__segment_law(const veer_plan *plan, int j, double r, double *s, double *sdot, double *sddot) {
     const veer_plan_segment *sg = &plan->segs[j];
     if (!(sg->tau > 0.0)) {
@@ -153,7 +157,13 @@ void veer__segment_law(const veer_plan *plan, int j, double r, double *s, double
     }
     /* Jerk limit: the raw law averaged over a window of tau seconds. Its
      * speed and acceleration are differences of the raw law's, so its jerk
-     * is (sddot(r) - sddot(r - tau)) / tau. */
+     * is (sddot(r) - sddot(r - tau)) / tau. A moving start reads it tau / 2
+     * ahead: the raw law holds the start speed v0 for at least tau / 2 and
+     * continues the cart's motion at v0 before it (the cart is taken to move
+     * at constant speed, as a start twist without acceleration says), so the
+     * window [-tau/2, tau/2] averages to s0 with speed v0 and sddot 0 at
+     * r = 0. */
+    r += veer__segment_lead(plan, j);
     double tau = sg->tau, s1, v1, u1, s0, v0, u0;
     raw_at(plan, j, r, &s1, &v1, &u1);
     raw_at(plan, j, r - tau, &s0, &v0, &u0);

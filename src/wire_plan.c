@@ -260,7 +260,7 @@ static veer_status timeline(veer_plan *plan, double *xi, veer_diag *diag) {
             return veer__fail(diag, VEER_ERR_VALUE, path->segments[j].leg, path->segments[j].waypoint, sg->k0,
                               path->segments[j].s_begin, NONE_ID, "plan.profile: segment %d has no finite time", j);
         sg->raw_time = t;
-        sg->move_time = t + sg->tau; /* tau: the jerk window the profile carries, 0 without */
+        sg->move_time = t + sg->tau - veer__segment_lead(plan, j); /* tau: the profile's jerk window, 0 without */
         veer_status st = veer__steer_segment(plan, j, from, xi, diag);
         if (st != VEER_OK) return st;
         if (j == 0 && plan->x_start > 0.0) sg->resteer_time = 0.0; /* already pointing along the motion */

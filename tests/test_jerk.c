@@ -139,3 +139,77 @@ Test(jerk, tight_tangent_corner_mecanum, .timeout = 120) {
     }
     veer_plan_destroy(p);
 }
+
+/* Duration of a double-S (jerk-limited) motion over L from speed v0 to rest
+ * with peak speed vmax, acceleration a and jerk j, when both acceleration
+ * phases reach a and the cruise vmax (Biagiotti & Melchiorri, "Trajectory
+ * Planning for Automatic Machines and Robots", Springer 2008, sec. 3.4,
+ * eqs. 3.30a and 3.25: Tj = a / j, Ta = Tj + (vmax - v0) / a,
+ * Td = Tj + vmax / a, Tv = L / vmax - Ta / 2 (1 + v0 / vmax) - Td / 2). */
+static double double_s_time(double L, double v0, double vmax, double a, double j) {
+    double tj = a / j, ta = tj + (vmax - v0) / a, td = tj + vmax / a;
+    double tv = L / vmax - 0.5 * ta * (1.0 + v0 / vmax) - 0.5 * td;
+    cr_assert(tv > 0.0 && (vmax - v0) * j >= a * a, "the case must reach vmax and a");
+    return ta + tv + td;
+}
+
+/* Re-planning on the move with jerk limits: a cart at 0.8 m/s along x is
+ * given 6 m straight ahead to a stop, body limits only. The plan must start
+ * where the cart is at its speed with no acceleration (the cart is taken to
+ * move steadily), keep the body and wheel jerk (differenced from the
+ * sampled motion, wheel rates from the textbook mecanum formula) and take
+ * the double-S time. */
+Test(jerk, moving_start_straight, .timeout = 120) {
+    veer_drive_def d = veer_default_drive_def(VEER_DRIVE_MECANUM);
+    veer_limits l = veer_default_limits();
+    const double vmax = 1.5, a = 1.0, j = 2.0, v0 = 0.8, L = 6.0;
+    l.body_speed = vmax, l.body_accel = a, l.body_jerk = j;
+    veer_route r = veer_default_route(2.0, -1.0, 0.0);
+    r.has_start_twist = 1;
+    r.start_twist[0] = v0;
+    veer_leg leg = veer_default_leg(VEER_LEG_TRAVEL);
+    cr_assert_eq(veer_route_add_leg(&r, &leg), VEER_OK);
+    veer_waypoint w = veer_default_waypoint(2.0 + L, -1.0);
+    w.stop = 1;
+    cr_assert_eq(veer_route_add_waypoint(&r, &w), VEER_OK);
+    veer_plan *p = NULL;
+    veer_diag diag;
+    veer_status st = veer_plan_create(&d, &l, &r, NULL, &p, &diag);
+    cr_assert_eq(st, VEER_OK, "%s: %s", veer_status_name(st), diag.message);
+
+    /* continuity with the cart's motion: at its pose, its speed, no acceleration */
+    veer_sample s0, s1;
+    cr_assert_eq(veer_plan_sample(p, 0.0, &s0), VEER_OK);
+    cr_assert_eq(s0.phase, VEER_PHASE_MOVING);
+    cr_expect_float_eq(s0.pose[0], 2.0, 1e-9);
+    cr_expect_float_eq(s0.pose[1], -1.0, 1e-9);
+    cr_expect_float_eq(s0.twist_world[0], v0, 1e-9);
+    cr_expect(fabs(s0.accel_world[0]) < 1e-9, "accel at the start %g", s0.accel_world[0]);
+    cr_assert_eq(veer_plan_sample(p, H, &s1), VEER_OK);
+    /* a millisecond on at jerk j from (v0, 0): x = v0 t + j t^3 / 6 (any kinematics text) */
+    cr_expect(fabs(s1.pose[0] - (2.0 + v0 * H)) <= j * H * H * H / 6.0 + 1e-12, "x(1 ms) = %.12f", s1.pose[0]);
+
+    veer_check_report rep;
+    cr_assert_eq(veer_plan_check_limits(p, H, &rep), VEER_OK);
+    char name[48];
+    (void)veer_limit_name(rep.limit, name, sizeof name);
+    cr_expect(rep.worst <= 1.01, "veer_plan_check_limits: %s at %.4f, t = %.3f s", name, rep.worst, rep.t);
+    assert_plan_within_limits(p, &d, &l, 0.01);
+    double jmax = 0.0;
+    for (int k = 0; k < 4; k++) {
+        jerk_worst jw = mecanum_jerk(p, &d, &l, 0.25e-3 * k);
+        cr_assert_eq(jw.bad, 0);
+        cr_expect(jw.body <= 1.01, "phase %.2f ms: body jerk at %.4f of its limit, t = %.3f s", 0.25 * k, jw.body,
+                  jw.body_t);
+        jmax = fmax(jmax, jw.body * j);
+    }
+    /* the window's jerk lies within the fit's aim and its 2 % search step */
+    cr_expect(jmax > 0.9 * j, "peak jerk %.4f m/s^3: the stretch is not shaped", jmax);
+    double T = veer_plan_duration(p), T_lim = double_s_time(L, v0, vmax, a, j), T_seen = double_s_time(L, v0, vmax, a, jmax);
+    cr_log_info("duration %.4f s, double-S %.4f s at the limit, %.4f s at the sampled peak jerk %.4f", T, T_lim, T_seen,
+                jmax);
+    cr_expect(T >= T_lim - 2e-3, "duration %.4f s below the double-S time %.4f s", T, T_lim);
+    /* the grid may lengthen the hold of v0 by up to one grid interval (6 mm here, 8 ms at v0) */
+    cr_expect(fabs(T - T_seen) <= 0.012, "duration %.4f s, double-S at the plan's jerk %.4f s", T, T_seen);
+    veer_plan_destroy(p);
+}
