@@ -479,6 +479,15 @@ static int coast_points(const veer_plan *plan, int j, double v0, double hold_t) 
     return sg->k0 + k < sg->k1 ? k : 0;
 }
 
+/* Does the solve hold the start speed up to grid point k0 + k? (The
+ * limits may make it brake sooner: the hold is a cap, not a floor.) */
+static int held(const veer_plan *plan, int j, int k, double x_start) {
+    const double *x = plan->x + plan->segs[j].k0;
+    for (int i = 0; i <= k; i++)
+        if (!(x[i] >= x_start * (1.0 - 1e-9))) return 0;
+    return 1;
+}
+
 /* Jerk window on a moving start's first segment. The averaged law is read
  * tau / 2 ahead (veer__segment_lead) and the solve holds the start speed
  * for at least tau / 2 (coast_k), so the law starts at s0 with the start
@@ -509,7 +518,9 @@ static veer_status shape_moving(veer_plan *plan, int j, const veer_limits *lim, 
             sg->coast_k = k;
             sg->tau = 0.0;
             st = veer__solve_segment(plan, j, &ctx, x_start, ws, &scratch);
-            if (st == VEER_OK) st = fit_window(plan, j, lim, x_start, ws, &scratch, &longer);
+            if (st == VEER_OK && held(plan, j, k, x_start)) st = fit_window(plan, j, lim, x_start, ws, &scratch, &longer);
+            else if (st == VEER_OK) st = VEER_ERR_INFEASIBLE;
+            if (st == VEER_OK && !held(plan, j, k, x_start)) st = VEER_ERR_INFEASIBLE; /* slowed below v0 */
             if (st == VEER_ERR_NO_MEMORY) return veer__fail_plain(diag, st, "out of memory");
         }
         if (st == VEER_OK && !longer) {

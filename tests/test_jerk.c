@@ -213,3 +213,92 @@ Test(jerk, moving_start_straight, .timeout = 120) {
     cr_expect(fabs(T - T_seen) <= 0.012, "duration %.4f s, double-S at the plan's jerk %.4f s", T, T_seen);
     veer_plan_destroy(p);
 }
+
+/* Re-planning on the move with wheel jerk limits on a curve: a mecanum cart
+ * at 0.5 m/s along x is sent through a waypoint to the left and on to a
+ * stop. The wheel and body jerk, differenced from the sampled motion, hold
+ * from the first millisecond, and the plan starts at the cart's pose and
+ * speed. */
+Test(jerk, moving_start_wheel_jerk_curve, .timeout = 120) {
+    veer_drive_def d = veer_default_drive_def(VEER_DRIVE_MECANUM);
+    veer_limits l = veer_default_limits();
+    for (int i = 0; i < 4; i++) {
+        l.modules[i].wheel_rate = 15.0;
+        l.modules[i].wheel_accel = 25.0;
+        l.modules[i].wheel_jerk = 40.0;
+    }
+    l.body_accel = 1.2, l.body_jerk = 5.0, l.yaw_rate = 1.5;
+    const double v0 = 0.5;
+    veer_route r = veer_default_route(-1.0, 0.5, 0.0);
+    r.has_start_twist = 1;
+    r.start_twist[0] = v0;
+    veer_leg leg = veer_default_leg(VEER_LEG_TRAVEL);
+    leg.heading = VEER_HEADING_TANGENT;
+    cr_assert_eq(veer_route_add_leg(&r, &leg), VEER_OK);
+    veer_waypoint w = veer_default_waypoint(1.5, 0.5);
+    cr_assert_eq(veer_route_add_waypoint(&r, &w), VEER_OK);
+    w = veer_default_waypoint(3.0, 2.5);
+    w.stop = 1;
+    cr_assert_eq(veer_route_add_waypoint(&r, &w), VEER_OK);
+    veer_plan *p = NULL;
+    veer_diag diag;
+    veer_status st = veer_plan_create(&d, &l, &r, NULL, &p, &diag);
+    cr_assert_eq(st, VEER_OK, "%s: %s", veer_status_name(st), diag.message);
+    veer_sample s0;
+    cr_assert_eq(veer_plan_sample(p, 0.0, &s0), VEER_OK);
+    cr_expect_float_eq(s0.pose[0], -1.0, 1e-9);
+    cr_expect_float_eq(s0.pose[1], 0.5, 1e-9);
+    cr_expect_float_eq(s0.twist_world[0], v0, 1e-9);
+    cr_expect(hypot(s0.accel_world[0], s0.accel_world[1]) < 1e-9, "accel at the start");
+    veer_check_report rep;
+    cr_assert_eq(veer_plan_check_limits(p, H, &rep), VEER_OK);
+    char name[48];
+    (void)veer_limit_name(rep.limit, name, sizeof name);
+    cr_expect(rep.worst <= 1.01, "veer_plan_check_limits: %s at %.4f, t = %.3f s", name, rep.worst, rep.t);
+    assert_plan_within_limits(p, &d, &l, 0.01);
+    for (int k = 0; k < 4; k++) {
+        jerk_worst jw = mecanum_jerk(p, &d, &l, 0.25e-3 * k);
+        cr_assert_eq(jw.bad, 0);
+        cr_expect(jw.wheel <= 1.01, "phase %.2f ms: wheel_jerk[%d] at %.4f of its limit, t = %.3f s", 0.25 * k,
+                  jw.wheel_i, jw.wheel, jw.wheel_t);
+        cr_expect(jw.body <= 1.01, "phase %.2f ms: body jerk at %.4f of its limit, t = %.3f s", 0.25 * k, jw.body,
+                  jw.body_t);
+        cr_expect(fmax(jw.wheel, jw.body) > 0.8, "no jerk limit binds (%.4f, %.4f): the check sees nothing", jw.wheel,
+                  jw.body);
+        cr_log_info("phase %.2f ms: wheel jerk %.4f (t %.3f), body jerk %.4f (t %.3f) of the limits", 0.25 * k, jw.wheel,
+                    jw.wheel_t, jw.body, jw.body_t);
+    }
+    veer_plan_destroy(p);
+}
+
+/* A moving start with too little room for a jerk-limited stop: from 1.4 m/s
+ * at 1 m/s^2 braking takes 0.98 m (v^2 / 2a, any kinematics text), and a
+ * jerk-limited stop from (v0, 0) at 2 m/s^3 needs v0^2 / 2a + v0 a / 2j =
+ * 1.33 m (the double-S deceleration, Biagiotti & Melchiorri sec. 3.4), more
+ * than the 1.2 m given. The plan keeps the time-optimal law there (as
+ * without jerk limits), starting at the cart's speed. */
+Test(jerk, moving_start_without_room_keeps_the_time_optimal_law, .timeout = 60) {
+    veer_drive_def d = veer_default_drive_def(VEER_DRIVE_MECANUM);
+    veer_limits l = veer_default_limits();
+    l.body_speed = 1.5, l.body_accel = 1.0;
+    veer_route r = veer_default_route(0.0, 0.0, 0.0);
+    r.has_start_twist = 1;
+    r.start_twist[0] = 1.4;
+    veer_leg leg = veer_default_leg(VEER_LEG_TRAVEL);
+    cr_assert_eq(veer_route_add_leg(&r, &leg), VEER_OK);
+    veer_waypoint w = veer_default_waypoint(1.2, 0.0);
+    w.stop = 1;
+    cr_assert_eq(veer_route_add_waypoint(&r, &w), VEER_OK);
+    veer_plan *p0 = NULL, *p = NULL;
+    veer_diag diag;
+    cr_assert_eq(veer_plan_create(&d, &l, &r, NULL, &p0, &diag), VEER_OK, "%s", diag.message);
+    l.body_jerk = 2.0;
+    veer_status st = veer_plan_create(&d, &l, &r, NULL, &p, &diag);
+    cr_assert_eq(st, VEER_OK, "%s: %s", veer_status_name(st), diag.message);
+    cr_expect_float_eq(veer_plan_duration(p), veer_plan_duration(p0), 1e-9);
+    veer_sample s0;
+    cr_assert_eq(veer_plan_sample(p, 0.0, &s0), VEER_OK);
+    cr_expect_float_eq(s0.twist_world[0], 1.4, 1e-9);
+    veer_plan_destroy(p0);
+    veer_plan_destroy(p);
+}

@@ -825,6 +825,61 @@ Test(wire_plan, jerk_limited, .timeout = 120) {
     free(w);
 }
 
+/* A jerk-limited plan made on the move: its first stretch is shaped too
+ * (read half its window ahead, which the cart derives from start_sdot and
+ * the window), and the decoded plan starts at the cart's speed with no
+ * acceleration and keeps the tolerances. */
+Test(wire_plan, jerk_limited_on_the_move, .timeout = 120) {
+    scenario sc = mecanum_scenario();
+    sc.limits.body_jerk = 4.0; /* m/s^3 */
+    sc.limits.body_accel = 1.0;
+    sc.route.has_start_twist = 1;
+    sc.route.start_twist[0] = 0.6;
+    sc.route.waypoint_count = 0;
+    sc.route.leg_count = 0;
+    veer_leg l = veer_default_leg(VEER_LEG_TRAVEL);
+    cr_assert_eq(veer_route_add_leg(&sc.route, &l), VEER_OK);
+    veer_waypoint a = veer_default_waypoint(3.0, 1.5);
+    a.stop = 1;
+    cr_assert_eq(veer_route_add_waypoint(&sc.route, &a), VEER_OK);
+    wire_demo *w = malloc(sizeof *w);
+    demo_over_wire(w, sc, 0);
+    veer_plan *dec = NULL;
+    veer_diag d;
+    cr_assert_eq(veer_plan_decode_pb(w->plan_bytes, w->plan_size, &dec, &d), VEER_OK, "%s", d.message);
+    veer_v1_Plan *m = calloc(1, sizeof *m);
+    cr_assert_eq(veer__wire_decode(veer_v1_Plan_fields, m, w->plan_bytes, w->plan_size, "plan", &d), VEER_OK);
+    cr_assert_gt(m->profile.jerk_window_count, 0, "the plan carries no jerk window");
+    cr_expect_gt(m->profile.jerk_window[0], 0.0, "the moving start's stretch has no window");
+    veer_sample s0;
+    cr_assert_eq(veer_plan_sample(dec, 0.0, &s0), VEER_OK);
+    cr_expect(fabs(s0.twist_body[0] - 0.6) < 1e-3, "the decoded plan starts at %g m/s", s0.twist_body[0]);
+    cr_expect(hypot(s0.accel_world[0], s0.accel_world[1]) < 1e-2, "the decoded plan starts with %g m/s^2",
+              hypot(s0.accel_world[0], s0.accel_world[1]));
+    /* the knots' sdot is quantized (Profile.sdot_step), so the decoded hold may differ from v0 a little */
+    cr_expect(hypot(s0.pose[0] - sc.route.start_x, s0.pose[1] - sc.route.start_y) < 1e-6, "starts at (%.9f, %.9f)",
+              s0.pose[0], s0.pose[1]);
+    veer_wire_figures f = check_against(w->plan, dec, &w->sc.limits);
+    cr_expect_leq(f.duration, 5e-3, "durations differ by %.4f s", f.duration);
+    /* the law itself, every millisecond: the cart reads the window as the planner does */
+    double dv = 0.0, du = 0.0;
+    for (double t = 0.0; t < veer_plan_duration(w->plan); t += 1e-3) {
+        veer_sample pa, pb;
+        cr_assert_eq(veer_plan_sample(w->plan, t, &pa), VEER_OK);
+        cr_assert_eq(veer_plan_sample(dec, t, &pb), VEER_OK);
+        dv = fmax(dv, fabs(pa.sdot - pb.sdot));
+        du = fmax(du, fabs(pa.sddot - pb.sddot));
+    }
+    printf("jerk-limited plan on the move over the wire: pose %.3f mm, sdot %.2g, sddot %.2g, duration %.2g s\n",
+           1e3 * f.position, dv, du, f.duration);
+    cr_expect_leq(dv, 5e-3, "sdot differs by %g", dv);
+    cr_expect_leq(du, 0.05, "sddot differs by %g", du);
+    free(m);
+    veer_plan_destroy(dec);
+    demo_free(w);
+    free(w);
+}
+
 /* Reply contents: legs, per grid point s, sdot and binding limit, as in memory. */
 Test(wire_plan, reply_carries_grid_and_legs) {
     wire_demo *w = malloc(sizeof *w);
