@@ -45,7 +45,10 @@ typedef struct {
     /* rad/s^3, rate of change of the wheel acceleration. Jerk limits (this and
      * body_jerk) average each rest-to-rest stretch's time-optimal law over the
      * shortest window that keeps them, at a cost of that window in seconds per
-     * stretch; not applied to the first stretch of a plan that starts moving. */
+     * stretch. A plan that starts moving (taken as moving steadily) eases out
+     * of its start speed the same way where the limits let it hold that speed
+     * for half the window; where it must brake sooner, its first stretch is
+     * not jerk-limited. */
     double wheel_jerk;
 } veer_module_limits;
 
