@@ -493,7 +493,8 @@ static int held(const veer_plan *plan, int j, int k, double x_start) {
  * for at least tau / 2 (coast_k), so the law starts at s0 with the start
  * speed and no acceleration: the cart keeps moving as it did, then eases
  * into the time-optimal law. The hold starts at the longest accel / jerk
- * ratio of the limits (the S-curve's ramp time on a straight) and grows
+ * ratio of the limits (the S-curve's ramp time on a straight), plus 10 %
+ * for the fit's aim below the limit, and grows
  * while the fit asks for it; once a window holds, the hold is cut to that
  * window if that still fits. When no hold works (the cart must brake at
  * once, or the slowed limits no longer admit the start speed), the segment
@@ -506,11 +507,12 @@ static veer_status shape_moving(veer_plan *plan, int j, const veer_limits *lim, 
     for (int i = 0; i < plan->module_count; i++)
         if (isfinite(lim->modules[i].wheel_jerk) && isfinite(lim->modules[i].wheel_accel))
             g = fmax(g, lim->modules[i].wheel_accel / lim->modules[i].wheel_jerk);
+    g = fmin(1.1 * g, fmax(0.5, 0.5 * sg->raw_time)); /* the fit aims below the limit; no window is longer */
     veer_row_ctx ctx;
     veer__row_ctx_init(&ctx, &plan->drive, lim, &plan->options);
-    int good = 0, cut = 0; /* coast_k of the last fit that held (0: none yet); the cut was tried */
+    int good = 0, cut = 0; /* coast_k of the last fit that held (0: none yet); 1: the cut is tried, 2: undone */
     for (int it = 0; it < 16; it++) {
-        int k = coast_points(plan, j, v0, 0.5 * g);
+        int k = good && cut > 1 ? good : coast_points(plan, j, v0, 0.5 * g);
         veer_diag scratch;
         veer_status st = VEER_ERR_INFEASIBLE;
         int longer = 0;
@@ -524,17 +526,16 @@ static veer_status shape_moving(veer_plan *plan, int j, const veer_limits *lim, 
             if (st == VEER_ERR_NO_MEMORY) return veer__fail_plain(diag, st, "out of memory");
         }
         if (st == VEER_OK && !longer) {
-            if (cut || 2.0 * (plan->s[sg->k0 + k] - plan->s[sg->k0]) / v0 <= 1.2 * sg->tau + 1e-3) return VEER_OK;
+            if (cut || 2.0 * (plan->s[sg->k0 + k] - plan->s[sg->k0]) / v0 <= 1.01 * sg->tau + 2e-3) return VEER_OK;
             good = k, cut = 1;
-            g = 1.02 * sg->tau; /* the hold the window needs, and a little */
+            g = 1.005 * sg->tau; /* the hold the window needs, and a little */
             continue;
         }
-        if (good) { /* the cut hold no longer fits: back to the one that did */
-            g = 2.0 * (plan->s[sg->k0 + good] - plan->s[sg->k0]) / v0;
-            good = 0;
+        if (good && cut == 1) { /* the cut hold no longer fits: back to the one that did */
+            cut = 2;
             continue;
         }
-        if (st != VEER_OK || k == 0) break;
+        if (st != VEER_OK || k == 0 || cut == 2) break;
         g *= 1.6;
     }
     /* No hold: the time-optimal law as it is. */
