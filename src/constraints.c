@@ -110,12 +110,22 @@ static void speed_row(unsigned on, double f, double limit, double *xmax, veer_li
  * between-grid-point check (veer__point_worst). m counts the rows. */
 typedef struct {
     veer_row *rows;
+    int write; /* a constant where the builder is inlined: 1 writes rows, 0 checks them */
     int m;
     double u, x, worst;
 } row_out;
 
-static inline void put(row_out *o, double a, double b, double c, veer_limit_id id) {
-    if (o->rows) {
+/* The row builder is inlined into its two users, so each is compiled for
+ * its own kind of row_out (not when optimizing for size: a cart's firmware
+ * links veer__point_rows, through stop.c). */
+#if defined(__GNUC__) && !defined(__OPTIMIZE_SIZE__)
+#define VEER_ROWS_INLINE static inline __attribute__((always_inline))
+#else
+#define VEER_ROWS_INLINE static inline
+#endif
+
+VEER_ROWS_INLINE void put(row_out *o, double a, double b, double c, veer_limit_id id) {
+    if (o->write) {
         o->rows[o->m] = (veer_row){a, b, c, id};
     } else if (c > 0.0) {
         double v = (a * o->u + b * o->x) / c;
@@ -125,7 +135,7 @@ static inline void put(row_out *o, double a, double b, double c, veer_limit_id i
 }
 
 /* |f u + df x| <= L as two rows */
-static void accel_rows(unsigned on, row_out *o, double f, double df, double limit, veer_limit_id which) {
+VEER_ROWS_INLINE void accel_rows(unsigned on, row_out *o, double f, double df, double limit, veer_limit_id which) {
     if (!on) return;
     put(o, f, df, limit, which);
     put(o, -f, -df, limit, which);
@@ -138,8 +148,8 @@ static void accel_rows(unsigned on, row_out *o, double f, double df, double limi
  * (x >= 0), so only the faces on its side can bind, and of those only the
  * faces that reach down to the highest normal acceleration the point's
  * speed bound xmax allows. radius scales the polygon (R = pg->radius * scale). */
-static void polygon_rows(const veer_polygon *pg, double scale, const double p1[2], const double p2[2], double xmax,
-                         veer_limit_id id, row_out *o) {
+VEER_ROWS_INLINE void polygon_rows(const veer_polygon *pg, double scale, const double p1[2], const double p2[2], double xmax,
+                             veer_limit_id id, row_out *o) {
     double sp = sqrt(p1[0] * p1[0] + p1[1] * p1[1]); /* path derivatives: no overflow to guard against */
     if (!(sp > 0.0 || p2[0] != 0.0 || p2[1] != 0.0)) return;
     double tx = 1.0, ty = 0.0;
@@ -189,8 +199,8 @@ static void contact_point(const veer_point_kin *pk, const double r[2], double p1
 /* Rows of one module with wheel rate f sdot (f >= 0) and rate of change
  * f u + df x: speed, acceleration, motor curve (linearized at x_lin, see
  * below), traction. */
-static void module_rows(const veer_row_ctx *ctx, int i, const veer_point_kin *pk, double f, double df, double x_lin,
-                        row_out *o, double *xmax, veer_limit_id *xmax_id) {
+VEER_ROWS_INLINE void module_rows(const veer_row_ctx *ctx, int i, const veer_point_kin *pk, double f, double df, double x_lin,
+                             row_out *o, double *xmax, veer_limit_id *xmax_id) {
     const veer_module_limits *ml = &ctx->limits->modules[i];
     unsigned on = ctx->on_mod[i];
     speed_row(on & VEER_ON_WHEEL_RATE, f, ml->wheel_rate, xmax, xmax_id, veer__limit(VEER_LIMIT_WHEEL_SPEED, i));
@@ -218,8 +228,8 @@ static void module_rows(const veer_row_ctx *ctx, int i, const veer_point_kin *pk
     }
 }
 
-static int point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double x_lin, row_out *o, double *xmax,
-                      veer_limit_id *xmax_id) {
+VEER_ROWS_INLINE int point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double x_lin, row_out *o, double *xmax,
+                           veer_limit_id *xmax_id) {
     const veer_drive_def *drive = ctx->drive;
     const veer_limits *lim = ctx->limits;
     *xmax = VEER_UNLIMITED;
@@ -286,13 +296,13 @@ static int point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double 
 
 int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double x_lin, veer_row *rows, double *xmax,
                      veer_limit_id *xmax_id) {
-    row_out o = {rows, 0, 0.0, 0.0, 0.0};
+    row_out o = {rows, 1, 0, 0.0, 0.0, 0.0};
     return point_rows(ctx, pk, x_lin, &o, xmax, xmax_id);
 }
 
 int veer__point_worst(const veer_row_ctx *ctx, const veer_point_kin *pk, double u, double x, double *worst,
                       double *xmax, veer_limit_id *xmax_id) {
-    row_out o = {NULL, 0, u, x, -VEER_UNLIMITED};
+    row_out o = {NULL, 0, 0, u, x, -VEER_UNLIMITED};
     int c = point_rows(ctx, pk, x, &o, xmax, xmax_id);
     *worst = o.worst;
     return c;
