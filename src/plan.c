@@ -497,8 +497,8 @@ static int held(const veer_plan *plan, int j, int k, double x_start) {
  * for the fit's aim below the limit, and grows
  * while the fit asks for it; once a window holds, the hold is cut to that
  * window if that still fits. When no hold works (the cart must brake at
- * once, or the slowed limits no longer admit the start speed), the segment
- * keeps its time-optimal law, as before. */
+ * once, or the slowed limits no longer admit the start speed), the plan is
+ * refused (INFEASIBLE, START_STATE): its law would break the jerk limits. */
 static veer_status shape_moving(veer_plan *plan, int j, const veer_limits *lim, double x_start, veer_workspace *ws,
                                 veer_diag *diag) {
     veer_plan_segment *sg = &plan->segs[j];
@@ -538,10 +538,18 @@ static veer_status shape_moving(veer_plan *plan, int j, const veer_limits *lim, 
         if (st != VEER_OK || k == 0 || cut == 2) break;
         g *= 1.6;
     }
-    /* No hold: the time-optimal law as it is. */
+    /* No hold fits: from this speed the cart must brake (or the limits bind)
+     * sooner than a jerk-limited law can ease out of the start speed. A plan
+     * that broke its jerk limits would be no answer: refused, like a moving
+     * start with no room to stop. */
     sg->coast_k = 0;
     sg->tau = 0.0;
-    return veer__solve_segment(plan, j, &ctx, x_start, ws, diag);
+    const veer_path_segment *ps = &plan->path.segments[j];
+    return veer__fail(diag, VEER_ERR_INFEASIBLE, ps->leg, ps->waypoint, sg->k0, ps->s_begin,
+                      veer__limit(VEER_LIMIT_START_STATE, -1),
+                      "leg %d: from the start speed (%.3g in s units per second) there is no room for a jerk-limited "
+                      "law before the first stop or limit; re-plan from a lower speed or without jerk limits",
+                      ps->leg, v0);
 }
 
 /* Jerk limits on segment j (solved within lim, steer angles known): fit the

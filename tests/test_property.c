@@ -11,6 +11,9 @@
  * share of the plans, the cart side (veer_plan_load_pb, veer_plan_sample_pb,
  * the player) runs under a counting allocator and must not allocate.
  *
+ * Half of the routes that start with a held-heading line start on the
+ * move (a start twist along the line), as re-planning while driving does.
+ *
  * The generator (splitmix64, fixed seeds) invents carts and routes; it only
  * makes requests a careful user could make (limits > 0, modules apart,
  * routes that say what they mean), so that a refusal other than the named
@@ -55,12 +58,18 @@ static double wrap(double a) { return a - 2.0 * PI * floor((a + PI) / (2.0 * PI)
 
 /* ---- case generator ----------------------------------------------------- */
 
+/* 1 in the moving_jerk runs: every cart has jerk limits and every route
+ * starts on the move along a held-heading line (the rare combination of the
+ * random runs, which re-planning while driving with jerk limits exercises). */
+static int force_moving_jerk;
+
 typedef struct {
     veer_drive_def drive;
     veer_limits limits;
     veer_route route;
     veer_plan_options options;
     int jerk; /* 1: jerk limits set */
+    int moving; /* 1: planned on the move (start twist) */
 } case_def;
 
 /* A cart of the given kind with a random layout and random limits. */
@@ -111,7 +120,7 @@ static void random_cart(rng *r, veer_drive_kind kind, case_def *c) {
     if (chance(r, 0.3)) l.yaw_accel = uni(r, 0.5, 6.0);
     /* Jerk limits on some carts: planning them costs about a hundred times
      * more than planning without. */
-    c->jerk = chance(r, 0.06);
+    c->jerk = force_moving_jerk || chance(r, 0.06);
     if (c->jerk) {
         l.body_jerk = uni(r, 2.0, 20.0);
         for (int i = 0; i < M; i++) l.modules[i].wheel_jerk = uni(r, 50.0, 400.0);
@@ -150,7 +159,8 @@ static int random_travel(rng *r, const case_def *c, veer_route *rt, pose2 *at) {
     veer_leg leg = veer_default_leg(VEER_LEG_TRAVEL);
     leg.corner_tolerance = uni(r, 0.05, 0.6);
     if (chance(r, 0.2)) leg.dwell = uni(r, 0.0, 1.0);
-    int h = diff ? 1 : pick(r, 4); /* a differential drive faces its travel */
+    /* a differential drive faces its travel; the forced runs hold the first leg's heading */
+    int h = diff ? 1 : (force_moving_jerk && rt->leg_count == 0) ? 0 : pick(r, 4);
     double first = atan2(py[0] - at->y, px[0] - at->x);
     double tx = 0.0, ty = 0.0;
     switch (h) {
@@ -202,7 +212,7 @@ static int random_route(rng *r, case_def *c) {
     int legs = 1 + pick(r, 3);
     int diff = c->drive.kind == VEER_DRIVE_DIFFERENTIAL;
     for (int k = 0; k < legs; k++) {
-        int kind = pick(r, 10);
+        int kind = (force_moving_jerk && k == 0) ? 0 : pick(r, 10);
         if (kind < 6) {
             if (!random_travel(r, c, &rt, &at)) return 0;
         } else if (kind < 8) {
@@ -234,6 +244,21 @@ static int random_route(rng *r, case_def *c) {
     c->route = rt;
     /* The default grid (1000 points), as most users plan. */
     c->options = veer_default_plan_options();
+    /* Half of the routes that start with a held-heading travel leg are
+     * planned on the move (re-planning while the cart drives): the cart
+     * already moves along the first line at a share of its body speed. The
+     * planner may refuse one with no room to stop (a named refusal). */
+    const veer_leg *l0 = &c->route.legs[0];
+    if (l0->kind == VEER_LEG_TRAVEL && l0->heading == VEER_HEADING_HOLD && !diff && (force_moving_jerk || chance(r, 0.5))) {
+        const veer_waypoint *w0 = &c->route.waypoints[0];
+        double dir = atan2(w0->y - c->route.start_y, w0->x - c->route.start_x) - c->route.start_yaw;
+        double v0 = uni(r, 0.05, 0.5) * fmin(c->limits.body_speed, 3.0);
+        c->route.has_start_twist = 1;
+        c->route.start_twist[0] = v0 * cos(dir); /* body frame */
+        c->route.start_twist[1] = v0 * sin(dir);
+        c->route.start_twist[2] = 0.0;
+        c->moving = 1;
+    }
     return 1;
 }
 
@@ -568,6 +593,7 @@ static long cart_side_allocations(const veer_plan *plan, const case_def *c, int 
 
 typedef struct {
     int cases, ok, infeasible, geometry, cart_checked;
+    int moving, moving_ok, moving_jerk; /* cases planned on the move; how many planned; with jerk limits */
     int over_check, over_dense, bad_kin, bad_pose; /* cases that broke a property */
     double worst, worst_check, kin_err, pose_err;
     int worst_case;
@@ -600,6 +626,7 @@ static void run_cases(veer_drive_kind kind, uint64_t seed, int full, tally *tl) 
         random_cart(&r, kind, &c);
         cr_assert(random_route(&r, &c), "case %d: the generator overfilled the route", k);
         tl->cases++;
+        tl->moving += c.moving;
         veer_plan *p = NULL;
         veer_diag diag;
         veer_status st = veer_plan_create(&c.drive, &c.limits, &c.route, &c.options, &p, &diag);
@@ -616,6 +643,8 @@ static void run_cases(veer_drive_kind kind, uint64_t seed, int full, tally *tl) 
             continue;
         }
         tl->ok++;
+        tl->moving_ok += c.moving;
+        tl->moving_jerk += c.moving && c.jerk;
         double T = veer_plan_duration(p);
         cr_assert(isfinite(T) && T > 0.0 && T < 3600.0, "case %d: duration %g", k, T);
 
@@ -658,9 +687,10 @@ static void run_cases(veer_drive_kind kind, uint64_t seed, int full, tally *tl) 
                      dr.pose_err, dr.pose_axis, dr.pose_t);
         }
         if (broke && shown++ < 12)
-            cr_log_error("%s seed %#llx case %d (%.1f s, %d legs%s%s):%s", kind_name(kind), (unsigned long long)seed,
-                         k, T, c.route.leg_count, c.jerk ? ", jerk" : "",
-                         isfinite(c.limits.modules[0].traction_mu) ? ", traction" : "", why);
+            cr_log_error("%s seed %#llx case %d (%.1f s, %d legs%s%s%s):%s", kind_name(kind),
+                         (unsigned long long)seed, k, T, c.route.leg_count, c.jerk ? ", jerk" : "",
+                         isfinite(c.limits.modules[0].traction_mu) ? ", traction" : "", c.moving ? ", moving" : "",
+                         why);
         if (rep.worst > tl->worst_check) tl->worst_check = rep.worst;
         if (dr.limit.worst > tl->worst) {
             tl->worst = dr.limit.worst;
@@ -678,9 +708,11 @@ static void run_cases(veer_drive_kind kind, uint64_t seed, int full, tally *tl) 
     }
     /* A line for the log (cr_log_warn would make Criterion exit non-zero). */
     fprintf(stderr, "property: %s: %d cases, %d planned, %d infeasible, %d refused geometry; worst limit ratio %.4f (samples, "
-                "case %d), %.4f (veer_plan_check_limits); kinematics %.2g, pose %.2g; cart side checked on %d plans\n",
+                "case %d), %.4f (veer_plan_check_limits); kinematics %.2g, pose %.2g; cart side checked on %d plans; "
+                "on the move: %d cases, %d planned, %d of them jerk-limited\n",
                 kind_name(kind), tl->cases, tl->ok, tl->infeasible, tl->geometry, tl->worst, tl->worst_case,
-                tl->worst_check, tl->kin_err, tl->pose_err, tl->cart_checked);
+                tl->worst_check, tl->kin_err, tl->pose_err, tl->cart_checked, tl->moving, tl->moving_ok,
+                tl->moving_jerk);
     /* The generator makes routes a careful user would: most of them must
      * plan, or the property says little. */
     cr_assert(tl->ok >= (tl->cases * 7) / 10, "only %d of %d random cases planned", tl->ok, tl->cases);
@@ -714,6 +746,19 @@ Test(property, omni, .timeout = 1200) {
 Test(property, differential, .timeout = 1200) {
     tally t;
     run_cases(VEER_DRIVE_DIFFERENTIAL, 0x5eed0004u, 400, &t);
+}
+
+/* Re-planning on the move with jerk limits, on 120 more cases: the first
+ * stretch holds the start speed for half the averaging window (plan.c), a
+ * path the random runs take only a few times. */
+Test(property, moving_jerk, .timeout = 1200) {
+    tally t;
+    force_moving_jerk = 1;
+    run_cases(VEER_DRIVE_STEERED, 0x5eed0011u, 60, &t);
+    cr_expect(t.moving_jerk >= 30, "only %d of 60 steered cases planned on the move with jerk limits", t.moving_jerk);
+    run_cases(VEER_DRIVE_MECANUM, 0x5eed0012u, 30, &t);
+    run_cases(VEER_DRIVE_OMNI, 0x5eed0013u, 30, &t);
+    force_moving_jerk = 0;
 }
 
 /* The independent checks can fail: a plan sampled against tighter limits

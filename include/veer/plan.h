@@ -47,8 +47,8 @@ typedef struct {
      * shortest window that keeps them, at a cost of that window in seconds per
      * stretch. A plan that starts moving (taken as moving steadily) eases out
      * of its start speed the same way where the limits let it hold that speed
-     * for half the window; where it must brake sooner, its first stretch is
-     * not jerk-limited. */
+     * for half the window; where it must brake sooner than that allows, the
+     * plan is refused (VEER_ERR_INFEASIBLE, limit START_STATE). */
     double wheel_jerk;
 } veer_module_limits;
 
