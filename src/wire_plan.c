@@ -154,6 +154,13 @@ static double kinterval_time(const kinterval *q) {
     return t;
 }
 
+/* Time over an interval of length h from speed va to vb with sddot change
+ * du in r pieces (+inf where it dips to rest). */
+static double arrival_time(double h, double va, double vb, double du, int r) {
+    kinterval q = make_interval(h, va * va, vb * vb, du, r);
+    return kinterval_time(&q);
+}
+
 #define COUNT_LIMIT ((int64_t)1 << 40)
 
 /* Parses the profile against the path's segments. With s, x NULL only counts
@@ -592,16 +599,20 @@ static int choose_knots(const veer_plan *plan, int j, const coder *cd, qknot *ou
         if (best < N) {
             double h = fmin(sj - si, s[best + 1] - sj); /* this interval and the shortest the next can be */
             double dv = fmin(0.5 * cd->ev, 0.25 * cd->eu * h / fmax((double)kb.cv * cd->v, cd->v));
-            int64_t c0 = kb.cv, r = (int64_t)floor(dv / cd->v), c_best = c0;
-            double e_best = VEER_UNLIMITED;
-            for (int64_t c = c0 - r; c <= c0 + r; c++) {
-                if (c < 1) continue;
-                double vc = (double)c * cd->v;
-                kinterval q = make_interval(sj - si, vi * vi, vc * vc, (double)kb.cu * cd->u, kb.r);
-                double e = fabs(D + kinterval_time(&q) - (t[best] - t[i]));
-                if (e < e_best) e_best = e, c_best = c;
+            int64_t c0 = kb.cv, r = (int64_t)floor(dv / cd->v);
+            int64_t lo = c0 - r < 1 ? 1 : c0 - r, hi = c0 + r;
+            /* The arrival error falls as the end speed c rises (every split
+             * point's speed rises with it): bisect for its change of sign, in
+             * O(log r) steps (r reaches billions on long grid intervals). */
+            double goal = t[best] - t[i] - D;
+            while (hi - lo > 1) {
+                int64_t mid = lo + (hi - lo) / 2;
+                if (arrival_time(sj - si, vi, (double)mid * cd->v, (double)kb.cu * cd->u, kb.r) > goal) lo = mid;
+                else hi = mid;
             }
-            kb.cv = c_best;
+            double e_lo = fabs(arrival_time(sj - si, vi, (double)lo * cd->v, (double)kb.cu * cd->u, kb.r) - goal);
+            double e_hi = fabs(arrival_time(sj - si, vi, (double)hi * cd->v, (double)kb.cu * cd->u, kb.r) - goal);
+            kb.cv = e_hi < e_lo ? hi : lo;
         }
         double vj = best == N ? 0.0 : (double)kb.cv * cd->v;
         kinterval q = make_interval(sj - si, vi * vi, vj * vj, (double)kb.cu * cd->u, kb.r);
