@@ -599,7 +599,8 @@ static int choose_knots(const veer_plan *plan, int j, const coder *cd, qknot *ou
         if (best < N) {
             double h = fmin(sj - si, s[best + 1] - sj); /* this interval and the shortest the next can be */
             double dv = fmin(0.5 * cd->ev, 0.25 * cd->eu * h / fmax((double)kb.cv * cd->v, cd->v));
-            int64_t c0 = kb.cv, r = (int64_t)floor(dv / cd->v);
+            double span = dv / cd->v; /* counts the sdot may move; none unless positive (NaN, -inf too) */
+            int64_t c0 = kb.cv, r = span >= 1.0 ? (int64_t)floor(fmin(span, 1e15)) : 0;
             int64_t lo = c0 - r < 1 ? 1 : c0 - r, hi = c0 + r;
             /* The arrival error falls as the end speed c rises (every split
              * point's speed rises with it): bisect for its change of sign, in
