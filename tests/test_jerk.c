@@ -70,6 +70,38 @@ static jerk_worst mecanum_jerk(const veer_plan *p, const veer_drive_def *d, cons
     return w;
 }
 
+/* Every limit within 1 %, as the property suite checks it (the library's
+ * dense check and the independent one), and the jerk from the textbook
+ * kinematics within 1 % at four sampling phases. Returns the least, over
+ * the phases, of the wheel jerk's and of the larger jerk's share of its
+ * limit (how much the check sees). */
+typedef struct {
+    double wheel, larger;
+} jerk_seen;
+
+static jerk_seen assert_limits_and_jerk(const veer_plan *p, const veer_drive_def *d, const veer_limits *l) {
+    veer_check_report rep;
+    cr_assert_eq(veer_plan_check_limits(p, H, &rep), VEER_OK);
+    char name[48];
+    (void)veer_limit_name(rep.limit, name, sizeof name);
+    cr_expect(rep.worst <= 1.01, "veer_plan_check_limits: %s at %.4f of its limit, t = %.3f s", name, rep.worst, rep.t);
+    assert_plan_within_limits(p, d, l, 0.01);
+    jerk_seen seen = {VEER_UNLIMITED, VEER_UNLIMITED};
+    for (int k = 0; k < 4; k++) {
+        jerk_worst jw = mecanum_jerk(p, d, l, 0.25e-3 * k);
+        cr_assert_eq(jw.bad, 0);
+        cr_expect(jw.wheel <= 1.01, "phase %.2f ms: wheel_jerk[%d] at %.4f of its limit, t = %.3f s", 0.25 * k,
+                  jw.wheel_i, jw.wheel, jw.wheel_t);
+        cr_expect(jw.body <= 1.01, "phase %.2f ms: body jerk at %.4f of its limit, t = %.3f s", 0.25 * k, jw.body,
+                  jw.body_t);
+        cr_log_info("phase %.2f ms: wheel jerk %.4f (t %.3f), body jerk %.4f (t %.3f) of the limits", 0.25 * k, jw.wheel,
+                    jw.wheel_t, jw.body, jw.body_t);
+        seen.wheel = fmin(seen.wheel, jw.wheel);
+        seen.larger = fmin(seen.larger, fmax(jw.wheel, jw.body));
+    }
+    return seen;
+}
+
 /* Found by the property suite (tests/test_property.c, mecanum seed
  * 0x5eed0002, case 163, with jerk limits down to 50 rad/s^3): a pivot, a
  * spin, then a tangent-heading travel leg whose corner may pass only 6 cm
@@ -119,24 +151,10 @@ Test(jerk, tight_tangent_corner_mecanum, .timeout = 120) {
     veer_status st = veer_plan_create(&d, &l, &r, NULL, &p, &diag);
     cr_assert_eq(st, VEER_OK, "%s: %s", veer_status_name(st), diag.message);
 
-    /* every limit, jerk included, as the property suite checks it */
-    veer_check_report rep;
-    cr_assert_eq(veer_plan_check_limits(p, H, &rep), VEER_OK);
-    char name[48];
-    (void)veer_limit_name(rep.limit, name, sizeof name);
-    cr_expect(rep.worst <= 1.01, "veer_plan_check_limits: %s at %.4f of its limit, t = %.3f s", name, rep.worst, rep.t);
-    assert_plan_within_limits(p, &d, &l, 0.01);
-    /* the jerk from the textbook kinematics, at four sampling phases */
-    for (int k = 0; k < 4; k++) {
-        jerk_worst jw = mecanum_jerk(p, &d, &l, 0.25e-3 * k);
-        cr_assert_eq(jw.bad, 0);
-        cr_expect(jw.wheel <= 1.01, "phase %.2f ms: wheel_jerk[%d] at %.4f of its limit, t = %.3f s", 0.25 * k,
-                  jw.wheel_i, jw.wheel, jw.wheel_t);
-        cr_expect(jw.body <= 1.01, "phase %.2f ms: body jerk at %.4f of its limit, t = %.3f s", 0.25 * k, jw.body,
-                  jw.body_t);
-        cr_log_info("phase %.2f ms: wheel jerk %.4f, body jerk %.4f of the limits", 0.25 * k, jw.wheel, jw.body);
-        cr_expect(jw.wheel > 0.5, "the wheel jerk binds nowhere (%.4f): the check sees nothing", jw.wheel);
-    }
+    /* every limit, jerk included, as the property suite checks it, and the
+     * jerk from the textbook kinematics at four sampling phases */
+    jerk_seen seen = assert_limits_and_jerk(p, &d, &l);
+    cr_expect(seen.wheel > 0.5, "the wheel jerk binds nowhere (%.4f): the check sees nothing", seen.wheel);
     veer_plan_destroy(p);
 }
 
@@ -250,24 +268,8 @@ Test(jerk, moving_start_wheel_jerk_curve, .timeout = 120) {
     cr_expect_float_eq(s0.pose[1], 0.5, 1e-9);
     cr_expect_float_eq(s0.twist_world[0], v0, 1e-9);
     cr_expect(hypot(s0.accel_world[0], s0.accel_world[1]) < 1e-9, "accel at the start");
-    veer_check_report rep;
-    cr_assert_eq(veer_plan_check_limits(p, H, &rep), VEER_OK);
-    char name[48];
-    (void)veer_limit_name(rep.limit, name, sizeof name);
-    cr_expect(rep.worst <= 1.01, "veer_plan_check_limits: %s at %.4f, t = %.3f s", name, rep.worst, rep.t);
-    assert_plan_within_limits(p, &d, &l, 0.01);
-    for (int k = 0; k < 4; k++) {
-        jerk_worst jw = mecanum_jerk(p, &d, &l, 0.25e-3 * k);
-        cr_assert_eq(jw.bad, 0);
-        cr_expect(jw.wheel <= 1.01, "phase %.2f ms: wheel_jerk[%d] at %.4f of its limit, t = %.3f s", 0.25 * k,
-                  jw.wheel_i, jw.wheel, jw.wheel_t);
-        cr_expect(jw.body <= 1.01, "phase %.2f ms: body jerk at %.4f of its limit, t = %.3f s", 0.25 * k, jw.body,
-                  jw.body_t);
-        cr_expect(fmax(jw.wheel, jw.body) > 0.8, "no jerk limit binds (%.4f, %.4f): the check sees nothing", jw.wheel,
-                  jw.body);
-        cr_log_info("phase %.2f ms: wheel jerk %.4f (t %.3f), body jerk %.4f (t %.3f) of the limits", 0.25 * k, jw.wheel,
-                    jw.wheel_t, jw.body, jw.body_t);
-    }
+    jerk_seen seen = assert_limits_and_jerk(p, &d, &l);
+    cr_expect(seen.larger > 0.8, "no jerk limit binds (%.4f): the check sees nothing", seen.larger);
     veer_plan_destroy(p);
 }
 
