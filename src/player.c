@@ -2,10 +2,13 @@
  * plan at the control rate, stops under control on command, on a local
  * request and when the link goes quiet, and reports its state.
  *
- * Memory: the player struct (with its receiver) and two plan workspaces
- * (veer_plan_load_pb). A new plan is decoded into the workspace that does
- * not hold the armed plan, and the switch is one pointer assignment after
- * every check passed: a plan that fails leaves the armed one as it was.
+ * Memory: the player struct (with its receiver), one plan workspace
+ * (veer_plan_load_pb) and a copy of the armed plan's bytes. Plans are armed
+ * only while the cart stands, so a new plan is decoded into the one
+ * workspace; if it fails a check, the armed plan is decoded again from its
+ * bytes (decoding is deterministic: the same plan, bit for bit), so a plan
+ * that fails leaves the armed one as it was, at the price of a second
+ * decode. This halves the player's memory against keeping two decoded plans.
  *
  * The controlled stop is veer__stop_step (stop.c), the braking the range
  * checks and veer_plan_stop_sample use: the hardest deceleration the plan's
@@ -27,9 +30,10 @@ struct veer_player {
     int module_count;
     int state, stop_reason, last_rejection;
     uint64_t plan_id;          /* armed, running or last plan */
-    const veer_plan *plan;     /* in work[active]; NULL before the first */
-    int active;
-    unsigned char *work[2];
+    const veer_plan *plan;     /* in work; NULL before the first */
+    unsigned char *work;       /* the plan workspace */
+    uint8_t *armed;            /* [VEER_LINK_MAX_PLAN_BYTES] the bytes plan was decoded from */
+    size_t armed_size;
     double last_now;           /* latest time a call saw (the clock must not go back) */
     int seen_time;
     double last_auth;          /* time of the latest authenticated frame */
@@ -126,7 +130,9 @@ veer_player_def veer_default_player_def(void) {
     return d;
 }
 
-size_t veer_player_size(void) { return ALIGN16(sizeof(veer_player)) + 2 * ALIGN16(veer_plan_workspace_size()); }
+size_t veer_player_size(void) {
+    return ALIGN16(sizeof(veer_player)) + ALIGN16(veer_plan_workspace_size()) + ALIGN16(VEER_LINK_MAX_PLAN_BYTES);
+}
 
 /* The body at rest: the latest pose, zero rates, steer angles held. */
 static void rest_sample(veer_sample *o) {
@@ -172,8 +178,8 @@ veer_status veer_player_init(void *memory, size_t size, const veer_player_def *d
     p->stop_reason = VEER_STOP_NONE;
     p->last_rejection = VEER_LINK_NONE;
     unsigned char *base = (unsigned char *)memory + ALIGN16(sizeof(veer_player));
-    p->work[0] = base;
-    p->work[1] = base + ALIGN16(veer_plan_workspace_size());
+    p->work = base;
+    p->armed = base + ALIGN16(veer_plan_workspace_size());
     memset(&p->last, 0, sizeof p->last);
     p->last.module_count = p->module_count;
     p->last.leg = -1;
@@ -316,6 +322,23 @@ static int plan_names_other_cart(const uint8_t *bytes, size_t size, const char *
     return found != strlen(name) || memcmp(text, name, found) != 0;
 }
 
+/* Decodes bytes into the workspace and checks them against the cart: the
+ * arming verdict (VEER_LINK_NONE when the plan is for this cart). */
+static int load(veer_player *p, const uint8_t *bytes, size_t size, const veer_plan **out) {
+    const veer_plan *plan = NULL;
+    *out = NULL;
+    if (veer_plan_load_pb(bytes, size, p->work, ALIGN16(veer_plan_workspace_size()), &plan, NULL) != VEER_OK ||
+        !plan)
+        return VEER_LINK_DECODE;
+    *out = plan;
+    if (plan_names_other_cart(bytes, size, p->def.cart_name)) return VEER_LINK_CART_NAME;
+    uint8_t dh[32], lh[32];
+    if (config_hashes(&plan->drive, &plan->limits, dh, lh) != VEER_OK) return VEER_LINK_DECODE;
+    if (memcmp(dh, p->drive_hash, 32) != 0) return VEER_LINK_DRIVE;
+    if (memcmp(lh, p->limits_hash, 32) != 0) return VEER_LINK_LIMITS;
+    return VEER_LINK_NONE;
+}
+
 static int arm(veer_player *p, double now) {
     const uint8_t *bytes;
     size_t size;
@@ -323,20 +346,23 @@ static int arm(veer_player *p, double now) {
     if (veer_link_receiver_plan(&p->rx, &bytes, &size, &id) != VEER_OK) return VEER_LINK_STATE;
     if (p->state == VEER_PLAYER_RUNNING || p->state == VEER_PLAYER_STOPPING) return VEER_LINK_BUSY;
     if (p->state == VEER_PLAYER_FAULT) return VEER_LINK_STATE;
-    int standby = p->plan ? 1 - p->active : 0;
-    const veer_plan *plan = NULL;
-    if (veer_plan_load_pb(bytes, size, p->work[standby], ALIGN16(veer_plan_workspace_size()), &plan, NULL) !=
-            VEER_OK ||
-        !plan)
-        return VEER_LINK_DECODE;
-    if (plan_names_other_cart(bytes, size, p->def.cart_name)) return VEER_LINK_CART_NAME;
-    uint8_t dh[32], lh[32];
-    if (config_hashes(&plan->drive, &plan->limits, dh, lh) != VEER_OK) return VEER_LINK_DECODE;
-    if (memcmp(dh, p->drive_hash, 32) != 0) return VEER_LINK_DRIVE;
-    if (memcmp(lh, p->limits_hash, 32) != 0) return VEER_LINK_LIMITS;
+    if (size > VEER_LINK_MAX_PLAN_BYTES) return VEER_LINK_DECODE; /* the receiver takes no larger plan */
+    const veer_plan *plan;
+    int verdict = load(p, bytes, size, &plan);
+    if (verdict != VEER_LINK_NONE) {
+        /* The workspace held the armed (or last) plan: decode it again. It
+         * passed every check before, so this cannot fail; if it did, the
+         * player would hold no plan rather than a broken one. */
+        const veer_plan *again = NULL;
+        if (p->plan && load(p, p->armed, p->armed_size, &again) != VEER_LINK_NONE) again = NULL;
+        if (p->plan && !again) fault(p);
+        p->plan = again;
+        return verdict;
+    }
+    memcpy(p->armed, bytes, size);
+    p->armed_size = size;
     /* Every check passed: switch. */
     p->plan = plan;
-    p->active = standby;
     p->plan_id = id;
     p->state = VEER_PLAYER_ARMED;
     p->last_auth = now;

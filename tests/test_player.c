@@ -593,6 +593,24 @@ Test(player, atomic_switch_and_busy) {
     cr_assert_eq(veer_player_plan(p), armed);
     cr_assert_eq(veer_plan_sample(armed, 1.0, &after), VEER_OK);
     cr_assert(memcmp(&before, &after, sizeof before) == 0, "the armed plan changed");
+    /* The player keeps one decoded plan: a refused plan is decoded over it
+     * and the armed plan decoded again from its bytes. A plan that breaks off
+     * in the middle of its profile (garbage there) and one that decodes whole
+     * but names another cart leave it the same, bit for bit. */
+    blob g = plan_bytes(&def.drive, &def.limits, &ra, NULL);
+    memset(g.bytes + g.size - 12, 0xff, 12);
+    blob named = plan_bytes(&def.drive, &def.limits, &ra, "test-range/cart-9");
+    ev = send_plan(p, &def.link, 5, g, 0.0);
+    cr_assert_eq(ev.reason, VEER_LINK_DECODE, "%s", veer_link_reason_name(ev.reason));
+    cr_assert_eq(veer_player_plan(p), armed);
+    cr_assert_eq(veer_plan_sample(armed, 1.0, &after), VEER_OK);
+    cr_assert(memcmp(&before, &after, sizeof before) == 0, "a plan that did not decode changed the armed one");
+    ev = send_plan(p, &def.link, 6, named, 0.0);
+    cr_assert_eq(ev.reason, VEER_LINK_CART_NAME, "%s", veer_link_reason_name(ev.reason));
+    cr_assert_eq(veer_plan_sample(veer_player_plan(p), 1.0, &after), VEER_OK);
+    cr_assert(memcmp(&before, &after, sizeof before) == 0, "a plan for another cart changed the armed one");
+    cr_assert_eq(status(p).state, VEER_PLAYER_ARMED);
+    free(g.bytes), free(named.bytes);
     veer_link_report rep = status(p);
     cr_assert_eq(rep.state, VEER_PLAYER_ARMED);
     cr_assert_eq(rep.plan_id, 2u);

@@ -2,8 +2,9 @@
  * arms them and steps them at the control rate.
  *
  * A plan is armed only when the link hands it over whole and authentic
- * (link.h), it decodes (veer_plan_load_pb, into one of two workspaces inside
- * the player: the armed plan is never touched by a plan that fails), it
+ * (link.h), it decodes (veer_plan_load_pb, into the player's workspace; a
+ * plan that fails leaves the armed one as it was: the player decodes the
+ * armed plan again from the copy of its bytes it keeps), it
  * names this cart (when the plan carries a cart name) and it was planned for
  * exactly this cart's drive and limits. "Exactly" means: the canonical
  * DriveDef and Limits messages of the plan and of the cart's configuration
@@ -25,7 +26,8 @@
  *
  * Time: `now` is the cart's monotonic clock in seconds; every call takes
  * it and it must not go backwards. The player allocates nothing; its memory
- * (about twice veer_plan_workspace_size()) is the caller's. Calls on one
+ * (veer_player_size(): one veer_plan_workspace_size(), VEER_LINK_MAX_PLAN_BYTES
+ * for the armed plan's bytes, and the receiver) is the caller's. Calls on one
  * player must not run concurrently.
  * SPDX-License-Identifier: MIT */
 #ifndef VEER_PLAYER_H
