@@ -309,7 +309,8 @@ int veer__point_worst(const veer_row_ctx *ctx, const veer_point_kin *pk, double 
 }
 
 static veer_status check_one(veer_diag *diag, double v, veer_limit_id id, int allow_any_sign) {
-    char name[48];
+    if (!isnan(v) && (allow_any_sign || v >= 1e-9)) return VEER_OK;
+    char name[48]; /* named on failure only */
     veer_limit_name(id, name, sizeof name);
     if (isnan(v) || (!allow_any_sign && v < 0.0))
         return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, id,

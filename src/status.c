@@ -38,19 +38,28 @@ static const char *limit_text(int kind) {
 }
 
 size_t veer_limit_name(veer_limit_id id, char *buf, size_t size) {
+    /* "text" or "text[module]", written by hand: no printf family for a name */
     char tmp[64];
-    int n;
-    if (id.module >= 0)
-        n = snprintf(tmp, sizeof tmp, "%s[%d]", limit_text(id.kind), id.module);
-    else
-        n = snprintf(tmp, sizeof tmp, "%s", limit_text(id.kind));
-    if (n < 0) n = 0;
+    const char *text = limit_text(id.kind);
+    size_t n = strlen(text);
+    if (n > sizeof tmp - 16) n = sizeof tmp - 16;
+    memcpy(tmp, text, n);
+    if (id.module >= 0) {
+        char digits[12];
+        int d = 0;
+        unsigned m = (unsigned)id.module;
+        do digits[d++] = (char)('0' + m % 10u), m /= 10u;
+        while (m && d < (int)sizeof digits);
+        tmp[n++] = '[';
+        while (d) tmp[n++] = digits[--d];
+        tmp[n++] = ']';
+    }
     if (buf && size > 0) {
-        size_t len = (size_t)n < size - 1 ? (size_t)n : size - 1;
+        size_t len = n < size - 1 ? n : size - 1;
         memcpy(buf, tmp, len);
         buf[len] = '\0';
     }
-    return (size_t)n;
+    return n;
 }
 
 void veer__diag_ok(veer_diag *diag) {
@@ -69,12 +78,29 @@ int veer__fail_format(const char *fmt, ...) {
     (void)fmt;
     return 0;
 }
+/* The status text as the message, copied: no printf-family function is
+ * linked into a terse build for diagnostics. */
+veer_status veer__fail_plain_terse(veer_diag *diag, veer_status status) {
+    if (!diag) return status;
+    veer__diag_ok(diag);
+    diag->status = status;
+    const char *text = veer_status_str(status);
+    size_t n = strlen(text);
+    if (n >= sizeof diag->message) n = sizeof diag->message - 1;
+    memcpy(diag->message, text, n);
+    diag->message[n] = '\0';
+    return status;
+}
 veer_status veer__fail_terse(veer_diag *diag, veer_status status, int leg, int waypoint, int grid_index, double s,
                              veer_limit_id limit) {
-    return veer__fail(diag, status, leg, waypoint, grid_index, s, limit, "%s", veer_status_str(status));
-}
-veer_status veer__fail_plain_terse(veer_diag *diag, veer_status status) {
-    return veer__fail_plain(diag, status, "%s", veer_status_str(status));
+    if (!diag) return status;
+    veer__fail_plain_terse(diag, status);
+    diag->leg = leg;
+    diag->waypoint = waypoint;
+    diag->grid_index = grid_index;
+    diag->s = isfinite(s) ? s : -1.0;
+    diag->limit = limit;
+    return status;
 }
 #endif
 

@@ -295,9 +295,15 @@ void veer__wire_limits_to_pb(const veer_limits *l, int module_count, veer_v1_Lim
 
 static veer_status route_value(double v, const char *fmt, int index, veer_diag *diag) {
     if (isfinite(v)) return VEER_OK;
+    const char *name = fmt;
+#ifdef VEER_TERSE_DIAG
+    (void)index; /* the message is the status text: nothing to format */
+#else
     char f[64];
     snprintf(f, sizeof f, fmt, index);
-    return bad(diag, VEER_ERR_VALUE, "%s is not finite (%g)", f, v);
+    name = f;
+#endif
+    return bad(diag, VEER_ERR_VALUE, "%s is not finite (%g)", name, v);
 }
 
 veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, veer_route *out, veer_diag *diag) {

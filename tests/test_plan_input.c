@@ -91,6 +91,29 @@ Test(input, limits_nan_negative_zero) {
     expect(&q, NULL, VEER_ERR_VALUE);
 }
 
+/* Limit names: "text" for body limits, "text[module]" for module limits;
+ * always NUL-terminated, the return value the full length (the snprintf
+ * convention, C11 7.21.6.5). */
+static veer_limit_id limit_id(int kind, int module) {
+    veer_limit_id id;
+    id.kind = kind;
+    id.module = module;
+    return id;
+}
+
+Test(input, limit_names) {
+    char b[32];
+    cr_assert_eq(veer_limit_name(limit_id(VEER_LIMIT_BODY_SPEED, -1), b, sizeof b), strlen("body_speed"));
+    cr_assert_str_eq(b, "body_speed");
+    cr_assert_eq(veer_limit_name(limit_id(VEER_LIMIT_WHEEL_ACCEL, 3), b, sizeof b), strlen("wheel_accel[3]"));
+    cr_assert_str_eq(b, "wheel_accel[3]");
+    cr_assert_eq(veer_limit_name(limit_id(VEER_LIMIT_STEER_RATE, 12), b, sizeof b), strlen("steer_rate[12]"));
+    cr_assert_str_eq(b, "steer_rate[12]");
+    cr_assert_eq(veer_limit_name(limit_id(VEER_LIMIT_STEER_RATE, 0), b, 6), strlen("steer_rate[0]"));
+    cr_assert_str_eq(b, "steer");
+    cr_assert_eq(veer_limit_name(limit_id(VEER_LIMIT_STEER_RATE, 0), NULL, 0), strlen("steer_rate[0]"));
+}
+
 Test(input, nothing_bounds_the_speed) {
     request q = good();
     q.l = veer_default_limits();
