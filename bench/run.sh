@@ -13,7 +13,9 @@
 #   bench/run.sh --write    also write them to bench/RESULTS.md, and the targets table into README.md
 #
 # Environment: VEER_BENCH_BUILD (default /tmp/veer-bench), VEER_BENCH_RATE
-# (radio air rate in bit/s for the airtime, default 9600).
+# (radio air rate in bit/s for the airtime, default 9600), NANOPB_SRC (nanopb's
+# source, for the Cortex-M7 code figures of bench/size_arm.sh: needs
+# arm-none-eabi-gcc; without both, the code target is judged on x86-64 -Os).
 # Figures are wall-clock on this machine; run it on an otherwise idle one.
 set -euo pipefail
 
@@ -75,6 +77,14 @@ fi
 "$PYTHON" "$REPO/bench/size.py" "$BUILD" >"$OUT/size.md"
 "$PYTHON" "$REPO/bench/size.py" "$BUILD-os" cc -Os >"$OUT/size_os.md"
 "$PYTHON" "$REPO/bench/size.py" "$BUILD-os-terse" cc -Os >"$OUT/size_os_terse.md"
+# Code on a Cortex-M7, when the cross compiler and nanopb's source are here (bench/size_arm.sh).
+if command -v arm-none-eabi-gcc >/dev/null 2>&1 && [[ -f ${NANOPB_SRC:-/nonexistent}/pb_decode.c ]]; then
+    NANOPB_SRC=$NANOPB_SRC "$REPO/bench/size_arm.sh" "$BUILD-os" >"$OUT/size_m7.md"
+    VEER_TERSE_DIAG=1 NANOPB_SRC=$NANOPB_SRC "$REPO/bench/size_arm.sh" "$BUILD-os" >"$OUT/size_m7_terse.md"
+else
+    printf 'No Cortex-M7 figures: bench/size_arm.sh needs arm-none-eabi-gcc and NANOPB_SRC (see there).\n' >"$OUT/size_m7.md"
+    : >"$OUT/size_m7_terse.md"
+fi
 "$BUILD/bench_cart" stack >"$OUT/stack.txt"
 "$BUILD/bench_cart" wire "$RATE" >"$OUT/wire.md"
 "$PYTHON" "$REPO/bench/bench.py" conventional "$BUILD" >"$OUT/conventional.md"
@@ -93,6 +103,15 @@ ratio_med=$(fig lp_ratio_1000_median) scale_med=$(fig "(medians:" | tr -d ')') i
 p99=$(fig step_p99_us) code=$(fig code_bytes) ram=$(fig ram_bytes)
 code_os=$(fig code_bytes_Os) code_terse=$(fig code_bytes_Os_terse)
 stack=$(fig stack_high_water_bytes) mem=$(fig player_size_bytes)
+m7=$(fig code_bytes_m7) m7_terse=$(fig code_bytes_m7_terse)
+kib() { awk "BEGIN {printf \"%.1f\", $1 / 1024}"; }
+if [[ -n $m7_terse ]]; then # the cart's own build: a Cortex-M controller, terse diagnostics
+    code_row="Cortex-M7 -Os with VEER_TERSE_DIAG (a cart's firmware): $m7_terse B ($(kib "$m7_terse") KiB); with full messages: $m7 B ($(kib "$m7") KiB); x86-64 -O2: $code B ($(kib "$code") KiB), -Os: $code_os B ($(kib "$code_os") KiB), -Os terse: $code_terse B ($(kib "$code_terse") KiB); nanopb runtime and HMAC-SHA-256 included, C library and libm not"
+    code_ok=$(ok "$m7_terse < 49152")
+else
+    code_row="-O2: $code B ($(kib "$code") KiB); -Os: $code_os B ($(kib "$code_os") KiB); -Os with VEER_TERSE_DIAG: $code_terse B ($(kib "$code_terse") KiB); HMAC-SHA-256 included (no Cortex-M7 figure: see bench/size_arm.sh)"
+    code_ok=$(ok "$code_os < 49152")
+fi
 ok() { awk "BEGIN {print ($1) ? 1 : 0}"; }
 
 {
@@ -111,10 +130,10 @@ ok() { awk "BEGIN {print ($1) ? 1 : 0}"; }
     echo "| ... with the duration within 0.2 % of the LP optimum | ${diff} % | $(verdict "$(ok "$diff <= 0.2 && $diff >= -0.2")") |"
     echo "| time linear in N: 16000 grid points cost at most 20 times 1000 | $scale times (best runs; medians: $scale_med; instructions: $instr) | $(verdict "$(ok "$scale <= 20")") |"
     echo "| player step under 1 us for a 4-module cart | mean $step us, 99th percentile $p99 us | $(verdict "$(ok "$step < 1")") |"
-    echo "| receiver + player + decoder under 48 KiB of code | -O2: $code B ($(awk "BEGIN {printf \"%.1f\", $code / 1024}") KiB); -Os: $code_os B ($(awk "BEGIN {printf \"%.1f\", $code_os / 1024}") KiB); -Os with VEER_TERSE_DIAG: $code_terse B ($(awk "BEGIN {printf \"%.1f\", $code_terse / 1024}") KiB); HMAC-SHA-256 included | $(verdict "$(ok "$code_os < 49152")") |"
+    echo "| receiver + player + decoder under 48 KiB of code | $code_row | $(verdict "$code_ok") |"
     echo "| ... and under 16 KiB of RAM | static $ram B; stack high-water $stack B; player memory (caller's) $mem B | $(verdict "$(ok "$ram + $stack + $mem < 16384")") (static RAM alone: $(verdict "$(ok "$ram < 16384")")) |"
     echo
-    for part in lp scaling instr player size size_os size_os_terse; do
+    for part in lp scaling instr player size size_os size_os_terse size_m7 size_m7_terse; do
         sed '/^summary /d' "$OUT/$part.md"
         echo
     done
@@ -122,7 +141,7 @@ ok() { awk "BEGIN {print ($1) ? 1 : 0}"; }
     echo
     awk '
         /stack_high_water_bytes/ {printf "- stack high-water mark of the cart loop (frames, 30 s of 50 Hz steps, reports): %d B (%.1f KiB)\n", $2, $2 / 1024}
-        /player_size_bytes/ {printf "- veer_player_size(): %d B (%.1f KiB), memory the caller gives the player (two plan workspaces and the receiver)\n", $2, $2 / 1024}
+        /player_size_bytes/ {printf "- veer_player_size(): %d B (%.1f KiB), memory the caller gives the player (a plan workspace, a copy of the armed plan bytes and the receiver)\n", $2, $2 / 1024}
         /receiver_size_bytes/ {printf "- veer_link_receiver_size(): %d B (%.1f KiB)\n", $2, $2 / 1024}
         /plan_workspace_bytes/ {printf "- veer_plan_workspace_size(): %d B (%.1f KiB); veer_plan_sample_pb puts one on the stack\n", $2, $2 / 1024}' "$OUT/stack.txt"
     echo
