@@ -503,17 +503,16 @@ static int cmd_player(void) {
 #define STACK_BYTES (2u << 20)
 static unsigned char *stack_base;
 
+/* The player's configuration and the frames are made before (ground side;
+ * a cart keeps its configuration in static storage): on this thread's stack
+ * only the cart's calls run, not the scenario's set-up. */
+static veer_player_def stack_def;
+static sealed_plan stack_plan;
+
 static void *cart_loop(void *arg) {
     (void)arg;
-    veer_drive_def d;
-    veer_limits l;
-    veer_route r;
-    if (kestrel_demo(&d, &l, &r) != VEER_OK) DIE("demo");
-    veer_player_def def = cart_def(&d, &l);
-    /* The frames were made before (ground side); here only the cart's calls run. */
-    extern sealed_plan stack_plan;
     uint64_t seq = 0;
-    veer_player *pl = start_player(&def, &stack_plan, 1, 0.0, &seq);
+    veer_player *pl = start_player(&stack_def, &stack_plan, 1, 0.0, &seq);
     veer_sample s;
     uint8_t f[VEER_LINK_FRAME_MAX];
     size_t n;
@@ -526,7 +525,23 @@ static void *cart_loop(void *arg) {
     }
     return NULL;
 }
-sealed_plan stack_plan;
+
+/* Bytes of a fresh stack that a thread running fn has touched. */
+static size_t stack_used(void *(*fn)(void *)) {
+    memset(stack_base, 0xA5, STACK_BYTES);
+    pthread_attr_t at;
+    pthread_attr_init(&at);
+    pthread_attr_setstack(&at, stack_base, STACK_BYTES);
+    pthread_t th;
+    if (pthread_create(&th, &at, fn, NULL)) DIE("thread");
+    pthread_join(th, NULL);
+    pthread_attr_destroy(&at);
+    size_t untouched = 0;
+    while (untouched < STACK_BYTES && stack_base[untouched] == 0xA5) untouched++;
+    return (size_t)STACK_BYTES - untouched;
+}
+
+static void *no_loop(void *arg) { return arg; }
 
 static int cmd_stack(void) {
     veer_drive_def d;
@@ -534,20 +549,14 @@ static int cmd_stack(void) {
     veer_route r;
     if (kestrel_demo(&d, &l, &r) != VEER_OK) DIE("demo");
     veer_plan *p = make_plan(&d, &l, &r, 0);
-    veer_player_def def = cart_def(&d, &l);
-    seal(&def, p, 1, &stack_plan);
+    stack_def = cart_def(&d, &l);
+    seal(&stack_def, p, 1, &stack_plan);
     veer_plan_destroy(p);
     stack_base = aligned_alloc(4096, STACK_BYTES);
-    memset(stack_base, 0xA5, STACK_BYTES);
-    pthread_attr_t at;
-    pthread_attr_init(&at);
-    pthread_attr_setstack(&at, stack_base, STACK_BYTES);
-    pthread_t th;
-    if (pthread_create(&th, &at, cart_loop, NULL)) DIE("thread");
-    pthread_join(th, NULL);
-    size_t untouched = 0;
-    while (untouched < STACK_BYTES && stack_base[untouched] == 0xA5) untouched++;
-    printf("stack_high_water_bytes %zu\n", (size_t)STACK_BYTES - untouched);
+    printf("stack_high_water_bytes %zu\n", stack_used(cart_loop));
+    /* Part of that is the C library's: the thread's descriptor and TLS sit
+     * at the top of the stack it is given. */
+    printf("stack_thread_overhead_bytes %zu\n", stack_used(no_loop));
     printf("player_size_bytes %zu\n", veer_player_size());
     printf("receiver_size_bytes %zu\n", veer_link_receiver_size());
     printf("plan_workspace_bytes %zu\n", veer_plan_workspace_size());

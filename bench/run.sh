@@ -141,6 +141,7 @@ ok() { awk "BEGIN {print ($1) ? 1 : 0}"; }
     echo
     awk '
         /stack_high_water_bytes/ {printf "- stack high-water mark of the cart loop (frames, 30 s of 50 Hz steps, reports): %d B (%.1f KiB)\n", $2, $2 / 1024}
+        /stack_thread_overhead_bytes/ {printf "  (of which %d B are the C library'"'"'s: the same measure for a thread that returns at once)\n", $2}
         /player_size_bytes/ {printf "- veer_player_size(): %d B (%.1f KiB), memory the caller gives the player (a plan workspace, a copy of the armed plan bytes and the receiver)\n", $2, $2 / 1024}
         /receiver_size_bytes/ {printf "- veer_link_receiver_size(): %d B (%.1f KiB)\n", $2, $2 / 1024}
         /plan_workspace_bytes/ {printf "- veer_plan_workspace_size(): %d B (%.1f KiB); veer_plan_sample_pb puts one on the stack\n", $2, $2 / 1024}' "$OUT/stack.txt"

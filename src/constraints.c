@@ -105,19 +105,26 @@ static void speed_row(unsigned on, double f, double limit, double *xmax, veer_li
     speed_row2(on, f * f, limit, xmax, id, which);
 }
 
-/* Where the u-rows go: into rows, or (rows NULL) only the largest
- * (a u + b x) / c of the rows with c > 0 at the given (u, x), for the
- * between-grid-point check (veer__point_worst). m counts the rows. */
+/* Where the u-rows go (mode, a constant where the builder is inlined):
+ *   ROWS_WRITE  into rows (veer__point_rows);
+ *   ROWS_WORST  nowhere: best is the largest (a u + b x) / c of the rows
+ *               with c > 0 at the given (u, x), for the between-grid-point
+ *               check (veer__point_worst);
+ *   ROWS_DECEL  nowhere: best is the largest (c - b x) / a of the rows with
+ *               a < 0 at the given x, the hardest braking they allow
+ *               (veer__point_decel, for the controlled stop).
+ * m counts the rows. */
+enum { ROWS_WRITE, ROWS_WORST, ROWS_DECEL };
 typedef struct {
     veer_row *rows;
-    int write; /* a constant where the builder is inlined: 1 writes rows, 0 checks them */
+    int mode;
     int m;
-    double u, x, worst;
+    double u, x, best;
 } row_out;
 
-/* The row builder is inlined into its two users, so each is compiled for
+/* The row builder is inlined into its three users, so each is compiled for
  * its own kind of row_out (not when optimizing for size: a cart's firmware
- * links veer__point_rows, through stop.c). */
+ * links veer__point_decel, through stop.c). */
 #if defined(__GNUC__) && !defined(__OPTIMIZE_SIZE__)
 #define VEER_ROWS_INLINE static inline __attribute__((always_inline))
 #else
@@ -125,11 +132,16 @@ typedef struct {
 #endif
 
 VEER_ROWS_INLINE void put(row_out *o, double a, double b, double c, veer_limit_id id) {
-    if (o->write) {
+    if (o->mode == ROWS_WRITE) {
         o->rows[o->m] = (veer_row){a, b, c, id};
-    } else if (c > 0.0) {
-        double v = (a * o->u + b * o->x) / c;
-        if (v > o->worst) o->worst = v;
+    } else if (o->mode == ROWS_WORST) {
+        if (c > 0.0) {
+            double v = (a * o->u + b * o->x) / c;
+            if (v > o->best) o->best = v;
+        }
+    } else if (a < 0.0) {
+        double v = (c - b * o->x) / a;
+        if (v > o->best) o->best = v;
     }
     o->m++;
 }
@@ -296,15 +308,23 @@ VEER_ROWS_INLINE int point_rows(const veer_row_ctx *ctx, const veer_point_kin *p
 
 int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double x_lin, veer_row *rows, double *xmax,
                      veer_limit_id *xmax_id) {
-    row_out o = {rows, 1, 0, 0.0, 0.0, 0.0};
+    row_out o = {rows, ROWS_WRITE, 0, 0.0, 0.0, 0.0};
     return point_rows(ctx, pk, x_lin, &o, xmax, xmax_id);
 }
 
 int veer__point_worst(const veer_row_ctx *ctx, const veer_point_kin *pk, double u, double x, double *worst,
                       double *xmax, veer_limit_id *xmax_id) {
-    row_out o = {NULL, 0, 0, u, x, -VEER_UNLIMITED};
+    row_out o = {NULL, ROWS_WORST, 0, u, x, -VEER_UNLIMITED};
     int c = point_rows(ctx, pk, x, &o, xmax, xmax_id);
-    *worst = o.worst;
+    *worst = o.best;
+    return c;
+}
+
+int veer__point_decel(const veer_row_ctx *ctx, const veer_point_kin *pk, double x, double *decel, double *xmax,
+                      veer_limit_id *xmax_id) {
+    row_out o = {NULL, ROWS_DECEL, 0, 0.0, x, -VEER_UNLIMITED};
+    int c = point_rows(ctx, pk, x, &o, xmax, xmax_id);
+    *decel = c < 0 ? -VEER_UNLIMITED : o.best; /* as if no row had been written */
     return c;
 }
 

@@ -140,6 +140,15 @@ typedef struct {
     double end_pose[3];
 } veer_path;
 
+/* What veer_default_limits returns, written into *l in place (no copy on a
+ * cart's stack), and what it gives each module. */
+void veer__limits_init(veer_limits *l);
+veer_module_limits veer__default_module_limits(void);
+
+/* What veer_default_route returns, written into *r in place (a veer_route
+ * is several KB: no copy on a cart's stack). */
+void veer__route_init(veer_route *r, double x, double y, double yaw);
+
 /* Builds the path of a route: checks it (NaN, coincident waypoints, counts,
  * corners too sharp to round, heading intents that cannot start from the
  * pose the leg starts with) and fills out. On failure out is unspecified and

@@ -140,23 +140,25 @@ veer_status veer__link_encode(const veer_link_def *def, veer_v1_LinkFrame *frame
     *size = total;
     if (total > (size_t)def->frame_size) return VEER_ERR_CAPACITY;
     if (!out || capacity < total) return VEER_ERR_BUFFER;
-    uint8_t tmp[VEER_LINK_FRAME_MAX];
-    pb_ostream_t os = pb_ostream_from_buffer(tmp, sizeof tmp);
+    /* Written in place (no frame-sized copy on a cart's stack), never past
+     * total bytes; only the two cannot-happen failures below leave a partial
+     * frame in out. */
+    pb_ostream_t os = pb_ostream_from_buffer(out, total);
     if (!pb_encode_varint(&os, body)) return VEER_ERR_CAPACITY;
     size_t head = os.bytes_written;
-    if (!pb_encode(&os, veer_v1_LinkFrame_fields, frame)) return VEER_ERR_CAPACITY;
+    if (!pb_encode(&os, veer_v1_LinkFrame_fields, frame)) return VEER_ERR_CAPACITY; /* sized above: cannot happen */
     size_t n = os.bytes_written;
+    if (n + (tagged ? VEER__LINK_TAG_FIELD_BYTES : 0) + 4 != total)
+        return VEER_ERR_CAPACITY; /* sizing and writing disagree: cannot happen */
     if (tagged) {
         uint8_t tag[VEER_LINK_FRAME_TAG_BYTES];
-        veer__link_frame_tag(def->key, tmp + head, n - head, tag);
-        tmp[n++] = (uint8_t)(veer_v1_LinkFrame_tag_tag << 3 | PB_WT_STRING);
-        tmp[n++] = VEER_LINK_FRAME_TAG_BYTES;
-        memcpy(tmp + n, tag, VEER_LINK_FRAME_TAG_BYTES);
+        veer__link_frame_tag(def->key, out + head, n - head, tag);
+        out[n++] = (uint8_t)(veer_v1_LinkFrame_tag_tag << 3 | PB_WT_STRING);
+        out[n++] = VEER_LINK_FRAME_TAG_BYTES;
+        memcpy(out + n, tag, VEER_LINK_FRAME_TAG_BYTES);
         n += VEER_LINK_FRAME_TAG_BYTES;
     }
-    if (n + 4 != total) return VEER_ERR_CAPACITY; /* sizing and writing disagree: cannot happen */
-    put_crc(tmp + n, veer_link_crc32(0, tmp, n));
-    memcpy(out, tmp, total);
+    put_crc(out + n, veer_link_crc32(0, out, n));
     return VEER_OK;
 }
 

@@ -711,57 +711,100 @@ static void apply_fade(veer_path *path, double m) {
     }
 }
 
+/* A travel leg's points and lines, computed where they are needed rather
+ * than kept for every waypoint (a cart builds paths on a small stack); the
+ * same arithmetic gives the same values each time. Point 0 is where the leg
+ * starts, point i >= 1 waypoint w0 + i - 1; line i runs from point i to i + 1. */
+typedef struct {
+    const veer_route *route;
+    int w0, n;     /* first waypoint, waypoint count */
+    double x0, y0; /* where the leg starts */
+} travel_leg;
+
+typedef struct {
+    double x, y, x1, y1; /* its two ends */
+    int stop, stop1;     /* the cart rests at that end */
+    double ll, dx, dy;   /* length, unit direction (0 when shorter than COINCIDENT_) */
+} travel_line;
+
+/* The blend at a point between two lines: turn angle, shape and size
+ * (lam 0: no blend, shape unset). */
+typedef struct {
+    double turn, lam;
+    corner_shape shape;
+} travel_corner;
+
+static void travel_point(const travel_leg *t, int i, double *x, double *y, int *stop) {
+    if (i == 0) {
+        *x = t->x0, *y = t->y0, *stop = 1;
+        return;
+    }
+    const veer_waypoint *wp = &t->route->waypoints[t->w0 + i - 1];
+    *x = wp->x, *y = wp->y;
+    *stop = wp->stop || i == t->n;
+}
+
+static void travel_line_of(const travel_leg *t, int i, travel_line *l) {
+    travel_point(t, i, &l->x, &l->y, &l->stop);
+    travel_point(t, i + 1, &l->x1, &l->y1, &l->stop1);
+    double ex = l->x1 - l->x, ey = l->y1 - l->y;
+    l->ll = hypot(ex, ey);
+    l->dx = l->dy = 0.0;
+    if (!(l->ll < COINCIDENT_)) l->dx = ex / l->ll, l->dy = ey / l->ll;
+}
+
+static double travel_turn(const travel_line *in, const travel_line *out) {
+    return atan2(cross2(in->dx, in->dy, out->dx, out->dy), dot2(in->dx, in->dy, out->dx, out->dy));
+}
+
+/* The corner where line in ends and line out starts (the turn is checked). */
+static void travel_corner_of(const veer_leg *leg, const travel_line *in, const travel_line *out, travel_corner *c) {
+    memset(c, 0, sizeof *c);
+    if (out->stop) return;
+    c->turn = travel_turn(in, out);
+    if (fabs(c->turn) < STRAIGHT_TURN_) return;
+    double d0[2] = {in->dx, in->dy}, d1[2] = {out->dx, out->dy};
+    c->shape = corner_shape_of(d0, d1);
+    double want = leg->corner_tolerance / c->shape.dev1;
+    double cap_in = in->stop ? in->ll * (1.0 - STOP_MARGIN_) : 0.5 * in->ll;
+    double cap_out = out->stop1 ? out->ll * (1.0 - STOP_MARGIN_) : 0.5 * out->ll;
+    c->lam = want < cap_in ? want : cap_in;
+    if (cap_out < c->lam) c->lam = cap_out;
+}
+
 static veer_status build_travel(builder *b, int li, int w0) {
     const veer_route *route = b->route;
     const veer_leg *leg = &route->legs[li];
     const veer_limit_id none = veer__limit(VEER_LIMIT_NONE, -1);
     const int n = leg->waypoint_count;
-    double px[VEER_MAX_WAYPOINTS + 1], py[VEER_MAX_WAYPOINTS + 1];
-    double ll[VEER_MAX_WAYPOINTS], dx[VEER_MAX_WAYPOINTS], dy[VEER_MAX_WAYPOINTS];
-    double lam[VEER_MAX_WAYPOINTS + 1], turn[VEER_MAX_WAYPOINTS + 1], wps[VEER_MAX_WAYPOINTS + 1];
-    corner_shape shape[VEER_MAX_WAYPOINTS + 1];
-    int stop[VEER_MAX_WAYPOINTS + 1];
+    const travel_leg tl = {route, w0, n, b->x, b->y};
+    travel_line cur, next;
     veer_status st;
 
-    /* points: 0 the leg's start, i >= 1 waypoint w0 + i - 1 */
-    px[0] = b->x, py[0] = b->y, stop[0] = 1;
-    for (int i = 1; i <= n; i++) {
-        const veer_waypoint *wp = &route->waypoints[w0 + i - 1];
-        px[i] = wp->x, py[i] = wp->y;
-        stop[i] = wp->stop || i == n;
-    }
     for (int i = 0; i < n; i++) {
-        double ex = px[i + 1] - px[i], ey = py[i + 1] - py[i];
-        ll[i] = hypot(ex, ey);
-        if (ll[i] < COINCIDENT_) {
+        travel_line_of(&tl, i, &cur);
+        if (cur.ll < COINCIDENT_) {
             if (i == 0)
                 return veer__fail(b->diag, VEER_ERR_GEOMETRY, li, w0, -1, b->s, none,
                                   "leg %d, waypoint %d: coincides with the position the leg starts from", li, w0);
             return veer__fail(b->diag, VEER_ERR_GEOMETRY, li, w0 + i, -1, b->s, none,
                               "leg %d, waypoint %d: coincides with waypoint %d", li, w0 + i, w0 + i - 1);
         }
-        dx[i] = ex / ll[i], dy[i] = ey / ll[i];
     }
-    /* corners: turn angle, blend shape and size */
-    for (int i = 0; i <= n; i++) lam[i] = 0.0, turn[i] = 0.0;
+    /* corners too sharp to pass through */
     for (int i = 1; i < n; i++) {
-        if (stop[i]) continue;
-        turn[i] = atan2(cross2(dx[i - 1], dy[i - 1], dx[i], dy[i]), dot2(dx[i - 1], dy[i - 1], dx[i], dy[i]));
-        if (fabs(turn[i]) > MAX_TURN_)
+        travel_line_of(&tl, i - 1, &cur);
+        travel_line_of(&tl, i, &next);
+        if (next.stop) continue;
+        double turn = travel_turn(&cur, &next);
+        if (fabs(turn) > MAX_TURN_)
             return veer__fail(b->diag, VEER_ERR_GEOMETRY, li, w0 + i - 1, -1, b->s, none,
                               "leg %d, waypoint %d: corner too sharp to pass through (turns %.1f degrees, at "
                               "most 175); make it a stop",
-                              li, w0 + i - 1, fabs(turn[i]) / DEG_);
-        if (fabs(turn[i]) < STRAIGHT_TURN_) continue;
-        double d0[2] = {dx[i - 1], dy[i - 1]}, d1[2] = {dx[i], dy[i]};
-        shape[i] = corner_shape_of(d0, d1);
-        double want = leg->corner_tolerance / shape[i].dev1;
-        double cap_in = stop[i - 1] ? ll[i - 1] * (1.0 - STOP_MARGIN_) : 0.5 * ll[i - 1];
-        double cap_out = stop[i + 1] ? ll[i] * (1.0 - STOP_MARGIN_) : 0.5 * ll[i];
-        lam[i] = want < cap_in ? want : cap_in;
-        if (cap_out < lam[i]) lam[i] = cap_out;
+                              li, w0 + i - 1, fabs(turn) / DEG_);
     }
 
+    travel_line_of(&tl, 0, &cur);
     yaw_state ys;
     memset(&ys, 0, sizeof ys);
     ys.heading = leg->heading;
@@ -769,13 +812,13 @@ static veer_status build_travel(builder *b, int li, int w0) {
     ys.offset = leg->reversed ? VEER_PI : 0.0;
     ys.tx = leg->toward_x, ys.ty = leg->toward_y;
     if (ys.heading == VEER_HEADING_TANGENT) {
-        double target = atan2(dy[0], dx[0]) + ys.offset;
+        double target = atan2(cur.dy, cur.dx) + ys.offset;
         ys.law = b->yaw + veer__wrap(target - b->yaw);
         ys.fade = b->yaw - ys.law;
         if (fabs(ys.fade) > MISMATCH_MAX_) return mismatch(b, li, -1, b->yaw, ys.law, ys.heading);
     } else if (ys.heading == VEER_HEADING_TOWARD) {
-        if (hypot(ys.tx - px[0], ys.ty - py[0]) < TOWARD_MIN_) return toward_too_close(b, li, w0);
-        double target = atan2(ys.ty - py[0], ys.tx - px[0]);
+        if (hypot(ys.tx - cur.x, ys.ty - cur.y) < TOWARD_MIN_) return toward_too_close(b, li, w0);
+        double target = atan2(ys.ty - cur.y, ys.tx - cur.x);
         ys.law = b->yaw + veer__wrap(target - b->yaw);
         ys.fade = b->yaw - ys.law;
         if (fabs(ys.fade) > MISMATCH_MAX_) return mismatch(b, li, -1, b->yaw, ys.law, ys.heading);
@@ -783,77 +826,85 @@ static veer_status build_travel(builder *b, int li, int w0) {
 
     const int leg_first = b->path->piece_count;
     const double leg_s = b->s, leg_yaw = b->yaw;
+    /* BLEND knots: the leg's start, then every waypoint with a yaw (a corner
+     * at its blend midpoint, a stop where it rests), unwrapped the short way */
+    double ks[VEER_MAX_WAYPOINTS + 1], ky[VEER_MAX_WAYPOINTS + 1];
+    int nk = 1;
+    ks[0] = leg_s, ky[0] = leg_yaw;
+    travel_corner cn; /* at the end of line i */
+    double lam = 0.0; /* the blend at the start of line i */
     for (int i = 0; i < n; i++) {
         int wi = w0 + i; /* the waypoint this line runs to */
-        double a = lam[i], e = (i + 1 < n) ? lam[i + 1] : 0.0;
-        double L = ll[i] - a - e;
-        if (L > 1e-12 * (1.0 + ll[i])) {
+        if (i > 0) cur = next, lam = cn.lam;
+        memset(&cn, 0, sizeof cn);
+        if (i + 1 < n) {
+            travel_line_of(&tl, i + 1, &next);
+            travel_corner_of(leg, &cur, &next, &cn);
+        }
+        double a = lam, e = cn.lam;
+        double L = cur.ll - a - e;
+        if (L > 1e-12 * (1.0 + cur.ll)) {
             veer_path_piece *pc = new_piece(b, PIECE_LINE, leg->heading, L);
             if (!pc) return piece_capacity(b, li);
-            double ax = px[i] + dx[i] * a, ay = py[i] + dy[i] * a;
-            pc->c[0][0] = ax, pc->c[0][1] = dx[i];
-            pc->c[1][0] = ay, pc->c[1][1] = dy[i];
-            st = line_yaw(b, &ys, pc, ax, ay, dx[i], dy[i], li, wi);
+            double ax = cur.x + cur.dx * a, ay = cur.y + cur.dy * a;
+            pc->c[0][0] = ax, pc->c[0][1] = cur.dx;
+            pc->c[1][0] = ay, pc->c[1][1] = cur.dy;
+            st = line_yaw(b, &ys, pc, ax, ay, cur.dx, cur.dy, li, wi);
             if (st) return st;
             b->s += L;
         }
-        if (!stop[i + 1]) {
-            if (lam[i + 1] > 0.0) {
-                double d0[2] = {dx[i], dy[i]}, d1[2] = {dx[i + 1], dy[i + 1]};
+        double wps; /* where the path passes waypoint wi */
+        if (!cur.stop1) {
+            if (cn.lam > 0.0) {
+                double d0[2] = {cur.dx, cur.dy}, d1[2] = {next.dx, next.dy};
                 veer_path_piece *pc = new_piece(b, PIECE_CORNER, leg->heading, 0.0);
                 if (!pc) return piece_capacity(b, li);
-                corner_coefficients(pc, px[i + 1], py[i + 1], d0, d1, &shape[i + 1], lam[i + 1]);
-                st = corner_yaw(b, &ys, pc, d0, turn[i + 1], &shape[i + 1], li, wi);
+                corner_coefficients(pc, cur.x1, cur.y1, d0, d1, &cn.shape, cn.lam);
+                st = corner_yaw(b, &ys, pc, d0, cn.turn, &cn.shape, li, wi);
                 if (st) return st;
-                wps[i + 1] = pc->s0 + 0.5 * pc->len;
+                wps = pc->s0 + 0.5 * pc->len;
                 b->s += pc->len;
             } else {
-                wps[i + 1] = b->s;
+                wps = b->s;
             }
-            continue;
+        } else {
+            /* a rest at waypoint wi */
+            wps = b->s;
+            b->x = cur.x1, b->y = cur.y1;
+            double dwell = route->waypoints[wi].dwell + (i + 1 == n ? leg->dwell : 0.0);
+            st = close_segment(b, li, wi, dwell);
+            if (st) return st;
+            apply_fade(b->path, ys.fade);
+            ys.fade = 0.0;
+            if (i + 1 < n && ys.heading == VEER_HEADING_TANGENT) {
+                /* The tangent turns at this stop: a small change is faded in at
+                 * the start of the next segment, a larger one is a spin in place
+                 * (its own segment). */
+                double target = atan2(next.dy, next.dx) + ys.offset;
+                double nextlaw = ys.law + veer__wrap(target - ys.law);
+                double delta = nextlaw - ys.law;
+                if (fabs(delta) > MISMATCH_MAX_) {
+                    b->yaw = ys.law;
+                    st = add_spin(b, li, delta);
+                    if (st) return st;
+                    st = close_segment(b, li, -1, 0.0);
+                    if (st) return st;
+                    ys.fade = 0.0;
+                } else {
+                    ys.fade = -delta;
+                }
+                ys.law = nextlaw;
+            }
         }
-        /* a rest at waypoint wi */
-        wps[i + 1] = b->s;
-        b->x = px[i + 1], b->y = py[i + 1];
-        double dwell = route->waypoints[wi].dwell + (i + 1 == n ? leg->dwell : 0.0);
-        st = close_segment(b, li, wi, dwell);
-        if (st) return st;
-        apply_fade(b->path, ys.fade);
-        ys.fade = 0.0;
-        if (i + 1 < n && ys.heading == VEER_HEADING_TANGENT) {
-            /* The tangent turns at this stop: a small change is faded in at
-             * the start of the next segment, a larger one is a spin in place
-             * (its own segment). */
-            double target = atan2(dy[i + 1], dx[i + 1]) + ys.offset;
-            double next = ys.law + veer__wrap(target - ys.law);
-            double delta = next - ys.law;
-            if (fabs(delta) > MISMATCH_MAX_) {
-                b->yaw = ys.law;
-                st = add_spin(b, li, delta);
-                if (st) return st;
-                st = close_segment(b, li, -1, 0.0);
-                if (st) return st;
-                ys.fade = 0.0;
-            } else {
-                ys.fade = -delta;
-            }
-            ys.law = next;
+        const veer_waypoint *wp = &route->waypoints[wi];
+        if (ys.heading == VEER_HEADING_BLEND && wp->has_yaw) {
+            ks[nk] = wps;
+            ky[nk] = ky[nk - 1] + veer__wrap(wp->yaw - ky[nk - 1]);
+            nk++;
         }
     }
 
     if (ys.heading == VEER_HEADING_BLEND) {
-        /* knots: the leg's start, then every waypoint with a yaw (a corner at
-         * its blend midpoint, a stop where it rests), unwrapped the short way */
-        double ks[VEER_MAX_WAYPOINTS + 1], ky[VEER_MAX_WAYPOINTS + 1];
-        int nk = 1;
-        ks[0] = leg_s, ky[0] = leg_yaw;
-        for (int i = 1; i <= n; i++) {
-            const veer_waypoint *wp = &route->waypoints[w0 + i - 1];
-            if (!wp->has_yaw) continue;
-            ks[nk] = wps[i];
-            ky[nk] = ky[nk - 1] + veer__wrap(wp->yaw - ky[nk - 1]);
-            nk++;
-        }
         int k = 0;
         for (int j = leg_first; j < b->path->piece_count; j++) {
             veer_path_piece *pc = &b->path->pieces[j];

@@ -8,21 +8,30 @@
 #define VEER_GRID_MAX 50000
 #define VEER_SEGMENT_MIN_INTERVALS 8
 
+veer_module_limits veer__default_module_limits(void) {
+    veer_module_limits m;
+    memset(&m, 0, sizeof m);
+    m.wheel_rate = VEER_UNLIMITED;
+    m.wheel_accel = VEER_UNLIMITED;
+    m.steer_rate = VEER_UNLIMITED;
+    m.steer_min = -VEER_UNLIMITED;
+    m.steer_max = VEER_UNLIMITED;
+    m.traction_mu = VEER_UNLIMITED;
+    m.motor_stall_accel = VEER_UNLIMITED;
+    m.motor_free_rate = VEER_UNLIMITED;
+    m.wheel_jerk = VEER_UNLIMITED;
+    return m;
+}
+
+void veer__limits_init(veer_limits *l) {
+    memset(l, 0, sizeof *l);
+    for (int i = 0; i < VEER_MAX_MODULES; i++) l->modules[i] = veer__default_module_limits();
+    l->body_speed = l->body_accel = l->yaw_rate = l->yaw_accel = l->body_jerk = VEER_UNLIMITED;
+}
+
 veer_limits veer_default_limits(void) {
     veer_limits l;
-    memset(&l, 0, sizeof l);
-    for (int i = 0; i < VEER_MAX_MODULES; i++) {
-        l.modules[i].wheel_rate = VEER_UNLIMITED;
-        l.modules[i].wheel_accel = VEER_UNLIMITED;
-        l.modules[i].steer_rate = VEER_UNLIMITED;
-        l.modules[i].steer_min = -VEER_UNLIMITED;
-        l.modules[i].steer_max = VEER_UNLIMITED;
-        l.modules[i].traction_mu = VEER_UNLIMITED;
-        l.modules[i].motor_stall_accel = VEER_UNLIMITED;
-        l.modules[i].motor_free_rate = VEER_UNLIMITED;
-        l.modules[i].wheel_jerk = VEER_UNLIMITED;
-    }
-    l.body_speed = l.body_accel = l.yaw_rate = l.yaw_accel = l.body_jerk = VEER_UNLIMITED;
+    veer__limits_init(&l);
     return l;
 }
 

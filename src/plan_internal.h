@@ -87,6 +87,12 @@ int veer__point_rows(const veer_row_ctx *ctx, const veer_point_kin *pk, double x
  * Returns what veer__point_rows would. */
 int veer__point_worst(const veer_row_ctx *ctx, const veer_point_kin *pk, double u, double x, double *worst,
                       double *xmax, veer_limit_id *xmax_id);
+/* The same rows at x, linearized at x, not written: *decel gets the largest
+ * (c - b x) / a of those with a < 0, the hardest deceleration u they allow
+ * (-VEER_UNLIMITED if none bounds braking, or if the function returns -1).
+ * Returns what veer__point_rows would. */
+int veer__point_decel(const veer_row_ctx *ctx, const veer_point_kin *pk, double x, double *decel, double *xmax,
+                      veer_limit_id *xmax_id);
 
 /* Checks limits against the drive: NaN/negative -> ERR_VALUE, zero -> ERR_INFEASIBLE. */
 veer_status veer__limits_check(const veer_drive_def *drive, const veer_limits *limits, veer_diag *diag);

@@ -103,7 +103,7 @@ static veer_status config_hashes(const veer_drive_def *drive, const veer_limits 
      * mean nothing to fixed-wheel drives. */
     veer_limits l = *limits;
     int n = veer_drive_module_count(drive);
-    veer_module_limits unset = veer_default_limits().modules[0];
+    veer_module_limits unset = veer__default_module_limits();
     for (int i = 0; i < VEER_MAX_MODULES; i++) {
         if (i >= n) {
             l.modules[i] = unset;

@@ -3,12 +3,16 @@
 #include <string.h>
 #include "internal.h"
 
+void veer__route_init(veer_route *r, double x, double y, double yaw) {
+    memset(r, 0, sizeof *r);
+    r->start_x = x;
+    r->start_y = y;
+    r->start_yaw = yaw;
+}
+
 veer_route veer_default_route(double x, double y, double yaw) {
     veer_route r;
-    memset(&r, 0, sizeof r);
-    r.start_x = x;
-    r.start_y = y;
-    r.start_yaw = yaw;
+    veer__route_init(&r, x, y, yaw);
     return r;
 }
 

@@ -15,20 +15,14 @@
 #define VEER_STOP_STEP 1e-3 /* s: integration step */
 
 /* Hardest deceleration the limits allow at (s, x) in segment seg; -inf when
- * no limit bounds braking. */
+ * no limit bounds braking. The rows are evaluated as they are built, not
+ * stored (a cart's stack is small). */
 static double hardest_decel(const veer_plan *plan, int seg, double s, double x) {
-    veer_row rows[VEER_MAX_POINT_ROWS];
     veer_point_kin pk;
-    double xmax;
+    double lo, xmax;
     veer_limit_id id;
     veer__point_kin(&plan->path, seg, s, &pk);
-    int m = veer__point_rows(&plan->rows, &pk, x, rows, &xmax, &id);
-    double lo = -VEER_UNLIMITED;
-    for (int j = 0; j < m; j++) {
-        if (!(rows[j].a < 0.0)) continue;
-        double v = (rows[j].c - rows[j].b * x) / rows[j].a;
-        if (v > lo) lo = v;
-    }
+    (void)veer__point_decel(&plan->rows, &pk, x, &lo, &xmax, &id);
     return lo < 0.0 ? lo : 0.0; /* never speeds up */
 }
 

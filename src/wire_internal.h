@@ -31,8 +31,9 @@ veer_status veer__wire_decode(const pb_msgdesc_t *fields, void *msg, const uint8
 int veer__wire_status_to_pb(veer_status st);
 
 /* Each *_from_pb checks every value (enum values known, counts consistent,
- * numbers finite where they must be) and fills out only on success; the
- * diagnostic names the field, e.g. "route.legs[2].kind". Semantic checks
+ * numbers finite where they must be) and fills out only on success (but
+ * veer__wire_route_from_pb, which writes out as it goes: on failure out is
+ * unspecified); the diagnostic names the field, e.g. "route.legs[2].kind". Semantic checks
  * (geometry, limits > 0) are left to veer_drive_check, the planner and the
  * path builder. */
 veer_status veer__wire_drive_from_pb(const veer_v1_DriveDef *m, veer_drive_def *out, veer_diag *diag);

@@ -243,7 +243,8 @@ static void limits_out(const void *in, const limit_field *f, int n, void *msg) {
 }
 
 veer_status veer__wire_limits_from_pb(const veer_v1_Limits *m, int module_count, veer_limits *out, veer_diag *diag) {
-    veer_limits l = veer_default_limits();
+    veer_limits l;
+    veer__limits_init(&l);
     int n = (int)m->modules_count;
     if (n != 0 && n != 1 && n != module_count)
         return veer__fail_plain(
@@ -279,7 +280,7 @@ void veer__wire_limits_to_pb(const veer_limits *l, int module_count, veer_v1_Lim
     memset(m, 0, sizeof *m);
     int n = module_count < 0 ? 0 : module_count > VEER_MAX_MODULES ? VEER_MAX_MODULES : module_count;
     int all_same = 1, any = 0;
-    veer_module_limits unset = veer_default_limits().modules[0];
+    veer_module_limits unset = veer__default_module_limits();
     for (int i = 0; i < n; i++) {
         if (!same_module_limits(&l->modules[i], &l->modules[0])) all_same = 0;
         if (!same_module_limits(&l->modules[i], &unset)) any = 1;
@@ -311,16 +312,17 @@ veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, v
     if ((st = finite(m->start_x, "route.start_x", diag)) || (st = finite(m->start_y, "route.start_y", diag)) ||
         (st = finite(m->start_yaw, "route.start_yaw", diag)))
         return st;
-    veer_route r = veer_default_route(m->start_x, m->start_y, m->start_yaw);
+    veer_route *r = out; /* written in place: a veer_route is too large for a cart's stack */
+    veer__route_init(r, m->start_x, m->start_y, m->start_yaw);
     if (m->start_steer_count > 0) {
         if ((int)m->start_steer_count != module_count)
             return veer__fail_plain(diag, VEER_ERR_VALUE,
                                     "route.start_steer has %d angles; give none or one per module (%d)",
                                     (int)m->start_steer_count, module_count);
-        r.has_start_steer = 1;
+        r->has_start_steer = 1;
         for (int i = 0; i < module_count; i++) {
             if ((st = route_value(m->start_steer[i], "route.start_steer[%d]", i, diag))) return st;
-            r.start_steer[i] = m->start_steer[i];
+            r->start_steer[i] = m->start_steer[i];
         }
     }
     if (m->has_start_twist) {
@@ -328,18 +330,18 @@ veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, v
             (st = finite(m->start_twist.vy, "route.start_twist.vy", diag)) ||
             (st = finite(m->start_twist.wz, "route.start_twist.wz", diag)))
             return st;
-        r.has_start_twist = 1;
-        r.start_twist[0] = m->start_twist.vx;
-        r.start_twist[1] = m->start_twist.vy;
-        r.start_twist[2] = m->start_twist.wz;
+        r->has_start_twist = 1;
+        r->start_twist[0] = m->start_twist.vx;
+        r->start_twist[1] = m->start_twist.vy;
+        r->start_twist[2] = m->start_twist.wz;
     }
     if (m->legs_count > VEER_MAX_LEGS || m->waypoints_count > VEER_MAX_WAYPOINTS) /* nanopb enforces these */
         return veer__fail_plain(diag, VEER_ERR_CAPACITY, "route: too many legs or waypoints");
     if (m->legs_count == 0)
         return veer__fail_plain(diag, VEER_ERR_VALUE, "route.legs is empty");
-    r.leg_count = (int)m->legs_count;
+    r->leg_count = (int)m->legs_count;
     long used = 0;
-    for (int i = 0; i < r.leg_count; i++) {
+    for (int i = 0; i < r->leg_count; i++) {
         const veer_v1_Leg *ml = &m->legs[i];
         int kind = (int)ml->kind;
         if (kind < VEER_LEG_TRAVEL || kind > VEER_LEG_PIVOT)
@@ -391,14 +393,14 @@ veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, v
         l.angle = ml->angle;
         l.hold_yaw = ml->hold_yaw ? 1 : 0;
         l.dwell = ml->dwell;
-        r.legs[i] = l;
+        r->legs[i] = l;
     }
     if (used != (long)m->waypoints_count)
         return veer__fail(diag, VEER_ERR_VALUE, -1, (int)used, -1, -1.0, NONE_ID,
                           "route.waypoints has %d entries but the travel legs take %ld", (int)m->waypoints_count,
                           used);
-    r.waypoint_count = (int)m->waypoints_count;
-    for (int w = 0; w < r.waypoint_count; w++) {
+    r->waypoint_count = (int)m->waypoints_count;
+    for (int w = 0; w < r->waypoint_count; w++) {
         const veer_v1_Waypoint *mw = &m->waypoints[w];
         if ((st = route_value(mw->x, "route.waypoints[%d].x", w, diag)) ||
             (st = route_value(mw->y, "route.waypoints[%d].y", w, diag)) ||
@@ -415,9 +417,8 @@ veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, v
         wp.dwell = mw->dwell;
         wp.timed = mw->has_arrival ? 1 : 0;
         wp.arrival = mw->has_arrival ? mw->arrival : 0.0;
-        r.waypoints[w] = wp;
+        r->waypoints[w] = wp;
     }
-    *out = r;
     return VEER_OK;
 }
 
