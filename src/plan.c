@@ -330,6 +330,28 @@ static int midpoint_rows(const veer_plan *plan, int j, const veer_row_ctx *ctx, 
     return added;
 }
 
+/* timing.c's pace caps (body speed, yaw rate) as x-only bounds. A moving
+ * start cannot be slower than its hardest braking from the start speed
+ * (after the jerk window's hold of it): there the cap gives way to that
+ * braking curve, so the cart brakes down to the cap as hard as the limits
+ * allow rather than being refused for starting above it. Uses ws->K as
+ * scratch (the solve fills it afterwards). */
+static void pace_caps(const veer_plan *plan, int j, int n, double x_start, const veer_topp_problem *p,
+                      veer_workspace *ws) {
+    const veer_plan_segment *sg = &plan->segs[j];
+    if (x_start > 0.0) veer__topp_brake(p, x_start, sg->coast_k, ws->K);
+    for (int k = 0; k < n; k++) {
+        const double *xi = ws->xi + 3 * k;
+        double sp2 = xi[0] * xi[0] + xi[1] * xi[1], w2 = xi[2] * xi[2], c = VEER_UNLIMITED;
+        veer_limit_id id = veer__limit(VEER_LIMIT_BODY_SPEED, -1);
+        if (isfinite(sg->pace_speed) && sp2 > 0.0) c = sg->pace_speed * sg->pace_speed / sp2;
+        if (isfinite(sg->pace_yaw) && w2 > 0.0 && sg->pace_yaw * sg->pace_yaw / w2 < c)
+            c = sg->pace_yaw * sg->pace_yaw / w2, id = veer__limit(VEER_LIMIT_YAW_RATE, -1);
+        if (x_start > 0.0 && ws->K[k] > c) c = ws->K[k];
+        if (c < ws->xmax[k]) ws->xmax[k] = c, ws->xmax_id[k] = id;
+    }
+}
+
 veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx, double x_start, veer_workspace *ws,
                                 veer_diag *diag) {
     veer_plan_segment *sg = &plan->segs[j];
@@ -375,6 +397,7 @@ veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx,
         for (int k = 0; k <= sg->coast_k && k < n; k++) /* a moving start's hold for its jerk window */
             if (sg->coast_k > 0 && x_start < ws->xmax[k])
                 ws->xmax[k] = x_start, ws->xmax_id[k] = veer__limit(VEER_LIMIT_START_STATE, -1);
+        if (isfinite(sg->pace_speed) || isfinite(sg->pace_yaw)) pace_caps(plan, j, n, x_start, &p, ws);
         int bad = 0;
         veer_status st = veer__topp_solve(&p, x_start, x, ws->K, &bad);
         /* Limits broken between grid points: add those midpoints' rows and
@@ -856,6 +879,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
         sg->k1 = first[j + 1] - 1;
         if (sg->k1 - sg->k0 + 1 > longest) longest = sg->k1 - sg->k0 + 1;
         sg->dwell = path->segments[j].dwell;
+        sg->pace_speed = sg->pace_yaw = VEER_UNLIMITED;
     }
 
     veer_status st = start_state(plan, &plan->x_start, diag);

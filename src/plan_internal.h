@@ -130,6 +130,12 @@ veer_status veer__topp_solve(const veer_topp_problem *p, double x_start, double 
 veer_status veer__topp_resolve(const veer_topp_problem *p, double x_start, double *x, double *work,
                                unsigned char *marks, int *bad_index);
 
+/* The hardest braking from x_start into xb[n]: sdot^2 held at x_start up
+ * to point hold, then at each stage the least u its rows allow (the
+ * forward pass's lower bound), never below 0. The lowest profile a start
+ * at x_start can reach (Pham & Pham's forward reachable sets, lower ends). */
+void veer__topp_brake(const veer_topp_problem *p, double x_start, int hold, double *xb);
+
 /* The limit binding at point k of a solved profile (kind NONE if none within
  * a relative slack of 2e-3). */
 veer_limit_id veer__topp_binding(const veer_topp_problem *p, const double *x, int k);
@@ -167,6 +173,8 @@ typedef struct {
     double dwell;                 /* s at rest after the motion */
     int coast_k;                  /* moving start with a jerk window: the solve holds the start speed up to
                                      grid point k0 + coast_k (0: no such hold) */
+    double pace_speed, pace_yaw;  /* timing.c's caps pacing the segment to a timed arrival: body speed (m/s)
+                                     and yaw rate (rad/s); VEER_UNLIMITED: none */
     double steer_from[VEER_MAX_MODULES]; /* module angles when the re-steer phase starts */
     double steer_to[VEER_MAX_MODULES];   /* ... and when it ends (= steer at k0) */
 } veer_plan_segment;

@@ -6,6 +6,7 @@
  * uniformly; arriving late is refused with the lateness and the limit that
  * binds over most of the stretch.
  * SPDX-License-Identifier: MIT */
+#include <string.h>
 #include "plan_internal.h"
 
 /* When the motion of segment j ends (the cart comes to rest at its end). */
@@ -47,22 +48,58 @@ static veer_limit_id main_binding(const veer_plan *plan, int a, int b) {
 
 /* Re-solves segments a..b with body speed and yaw rate capped at lambda
  * times their peaks v0, w0 on the fastest plan (a cap of 0 peak is left
- * off); returns the arrival at the end of b. */
+ * off; the caps are the segments' pace_speed and pace_yaw, which a moving
+ * start brakes down to: plan.c, pace_caps); returns the arrival at the end
+ * of b. */
 static veer_status paced(veer_plan *plan, int a, int b, double lambda, double v0, double w0, veer_workspace *ws,
                          double *arrival, veer_diag *diag) {
-    veer_limits lim = plan->limits;
-    if (v0 > 0.0 && lambda * v0 < lim.body_speed) lim.body_speed = lambda * v0;
-    if (w0 > 0.0 && lambda * w0 < lim.yaw_rate) lim.yaw_rate = lambda * w0;
-    veer_row_ctx ctx;
-    veer__row_ctx_init(&ctx, &plan->drive, &lim, &plan->options);
     for (int j = a; j <= b; j++) {
-        plan->segs[j].tau = 0.0;
-        veer_status st = veer__solve_segment(plan, j, &ctx, j == 0 ? plan->x_start : 0.0, ws, diag);
-        if (st == VEER_OK) st = veer__shape_segment(plan, j, &lim, j == 0 ? plan->x_start : 0.0, ws, diag);
+        veer_plan_segment *sg = &plan->segs[j];
+        sg->pace_speed = v0 > 0.0 && lambda * v0 < plan->limits.body_speed ? lambda * v0 : VEER_UNLIMITED;
+        sg->pace_yaw = w0 > 0.0 && lambda * w0 < plan->limits.yaw_rate ? lambda * w0 : VEER_UNLIMITED;
+        sg->tau = 0.0;
+        veer_status st = veer__solve_segment(plan, j, &plan->rows, j == 0 ? plan->x_start : 0.0, ws, diag);
+        if (st == VEER_OK) st = veer__shape_segment(plan, j, &plan->limits, j == 0 ? plan->x_start : 0.0, ws, diag);
         if (st != VEER_OK) return st;
     }
     *arrival = arrival_of(plan, b);
     return VEER_OK;
+}
+
+/* With jerk limits the arrival can jump across T as lambda moves (the
+ * averaging window is fitted in steps, and a fit that fails re-solves 3 %
+ * lower), so the bisection may close on a jump instead of on T. Then the
+ * stretch is paced at lambda_hi, whose arrival is early, and the last
+ * window of the stretch that can grow (not a moving start's first, whose
+ * window sets its hold of the start speed) is lengthened by what is
+ * missing: the motion time grows by exactly that, and the longer average
+ * is kept only if the segment still holds every limit, jerk included, at
+ * 1 ms samples. Otherwise the timed stop cannot be met and is refused. */
+static veer_status settle(veer_plan *plan, int first, int j, int wpi, double lambda_hi, double v0, double w0,
+                          double T, veer_workspace *ws, double *arrival, veer_diag *diag) {
+    veer_status st = paced(plan, first, j, lambda_hi, v0, w0, ws, arrival, diag);
+    if (st != VEER_OK) return st;
+    double missing = T - *arrival;
+    const veer_path_segment *ps = &plan->path.segments[j];
+    for (int q = j; q >= first && missing > 0.0; q--) {
+        veer_plan_segment *sg = &plan->segs[q];
+        if (!(sg->tau > 0.0) || (q == 0 && plan->x_start > 0.0)) continue;
+        double tau = sg->tau, move = sg->move_time;
+        sg->tau = tau + missing;
+        sg->move_time = move + missing;
+        veer_check_report r;
+        memset(&r, 0, sizeof r);
+        veer__check_segment(plan, q, 1e-3, VEER__CHECK_LIMITS | VEER__CHECK_JERK, &r);
+        if (r.worst <= VEER__JERK_OTHERS) {
+            *arrival = arrival_of(plan, j);
+            return VEER_OK;
+        }
+        sg->tau = tau, sg->move_time = move;
+    }
+    return veer__fail(diag, VEER_ERR_INFEASIBLE, ps->leg, wpi, -1, ps->s_end, veer__limit(VEER_LIMIT_NONE, -1),
+                      "leg %d: %s at %.3f s cannot be met within 0.1 ms with the jerk limits: the nearest plans "
+                      "arrive %.3f s early or later than it",
+                      ps->leg, wpi >= 0 ? "the timed stop" : "the duration target", T, missing);
 }
 
 /* Timed stops and a duration target: each stretch of segments that ends at
@@ -80,6 +117,19 @@ veer_status veer__meet_arrivals(veer_plan *plan, veer_workspace *ws, veer_diag *
         if (!found)
             return veer__fail(diag, VEER_ERR_VALUE, -1, w, -1, -1.0, veer__limit(VEER_LIMIT_NONE, -1),
                               "waypoint %d is timed but the cart passes through it: make it a stop", w);
+    }
+    /* The end timed twice (a timed last stop and a duration target) must
+     * agree: one of them would be ignored otherwise. */
+    const veer_path_segment *end = &path->segments[path->segment_count - 1];
+    if (plan->options.duration_target > 0.0 && end->waypoint >= 0 && plan->route.waypoints[end->waypoint].timed) {
+        double want = plan->route.waypoints[end->waypoint].arrival + plan->segs[path->segment_count - 1].dwell;
+        if (fabs(want - plan->options.duration_target) > 1e-6)
+            return veer__fail(diag, VEER_ERR_VALUE, end->leg, end->waypoint, -1, -1.0,
+                              veer__limit(VEER_LIMIT_NONE, -1),
+                              "duration_target %.3f s disagrees with the timed last stop (waypoint %d at %.3f s, "
+                              "then %.3f s of dwell): give one of them, or both alike",
+                              plan->options.duration_target, end->waypoint,
+                              plan->route.waypoints[end->waypoint].arrival, plan->segs[path->segment_count - 1].dwell);
     }
     int first = 0;
     double last_target = -1.0;
@@ -130,7 +180,8 @@ veer_status veer__meet_arrivals(veer_plan *plan, veer_workspace *ws, veer_diag *
                 lo *= 0.5;
                 if ((st = paced(plan, first, j, lo, v0, w0, ws, &arr, diag))) return st;
             }
-            for (int it = 0; it < 60 && fabs(arr - T) > 1e-5; it++) {
+            /* (a bracket closed to 1e-9 holds a jump, not T: settle takes over) */
+            for (int it = 0; it < 60 && fabs(arr - T) > 1e-5 && hi - lo > 1e-9 * hi; it++) {
                 double mid = 0.5 * (lo + hi);
                 if ((st = paced(plan, first, j, mid, v0, w0, ws, &arr, diag))) return st;
                 if (arr > T)
@@ -138,6 +189,7 @@ veer_status veer__meet_arrivals(veer_plan *plan, veer_workspace *ws, veer_diag *
                 else
                     hi = mid;
             }
+            if (fabs(arr - T) > 1e-5 && (st = settle(plan, first, j, wpi, hi, v0, w0, T, ws, &arr, diag))) return st;
         }
         last_target = T;
         first = j + 1;

@@ -90,6 +90,33 @@ static double stage_upper(const veer_topp_problem *pr, int k, double hi_next, do
     return U;
 }
 
+/* The lower bound L(x) of stage k from its rows, as upper_row does for U
+ * (a row a u + b x <= c with a < 0 is u >= c / a - (b / a) x). */
+static inline void lower_row(double a, double b, double c, double x, double *L) {
+    if (!(a < 0.0) || x_only(a, b, c)) return;
+    double v = c / a + (-b / a) * x;
+    if (v > *L) *L = v;
+}
+
+void veer__topp_brake(const veer_topp_problem *pr, double x_start, int hold, double *xb) {
+    int n = pr->n;
+    for (int k = 0; k < n; k++) {
+        if (k == 0 || k <= hold) {
+            xb[k] = x_start;
+            continue;
+        }
+        int i = k - 1;
+        const veer_row *r0 = pr->rows + pr->row_at[i], *r1 = pr->rows + pr->row_at[i + 1];
+        int n0 = pr->row_at[i + 1] - pr->row_at[i], n1 = pr->row_at[i + 2] - pr->row_at[i + 1];
+        double d2 = 2.0 * (pr->s[i + 1] - pr->s[i]), x = xb[i];
+        double L = -x / d2; /* x_{k+1} >= 0 */
+        for (int j = 0; j < n0; j++) lower_row(r0[j].a, r0[j].b, r0[j].c, x, &L);
+        for (int j = 0; j < n1; j++) lower_row(r1[j].a + d2 * r1[j].b, r1[j].b, r1[j].c, x, &L);
+        double next = x + d2 * L;
+        xb[k] = next > 0.0 ? next : 0.0;
+    }
+}
+
 /* U(x) and L(x), and the bounds that define them (ties go to the steeper
  * piece to the right: the right derivative of F). */
 static void stage_eval(const stage *st, double x, double *U, const bound **bu, double *L, const bound **bl) {

@@ -314,6 +314,7 @@ stage_clang() {
 SANITIZE_FLAGS="-fsanitize=address,undefined -fno-sanitize-recover=all -fno-omit-frame-pointer"
 VALGRIND_PROPERTY_CASES=100 # of test_property's 2000 cases: memcheck is ~40 times slower
 VALGRIND_GARBAGE_ROUNDS=300 # of test_wire's 3000 rounds of random bytes, for the same reason
+VALGRIND_TIMING_CASES=4   # of test_timing's 30..50 random cases per drive kind, for the same reason
 FUZZ_TARGETS=(fuzz_plan_request fuzz_plan_decode fuzz_link_receiver)
 
 stage_sanitize() {
@@ -341,7 +342,7 @@ stage_sanitize() {
 valgrind_suite() {
     local exe=$1 logs=$2 name rc=0
     name=$(basename "$exe")
-    VEER_PROPERTY_CASES=$VALGRIND_PROPERTY_CASES VEER_GARBAGE_ROUNDS=$VALGRIND_GARBAGE_ROUNDS timeout "$CTEST_TIMEOUT" valgrind --error-exitcode=99 \
+    VEER_PROPERTY_CASES=$VALGRIND_PROPERTY_CASES VEER_GARBAGE_ROUNDS=$VALGRIND_GARBAGE_ROUNDS VEER_TIMING_CASES=$VALGRIND_TIMING_CASES timeout "$CTEST_TIMEOUT" valgrind --error-exitcode=99 \
         --leak-check=full --errors-for-leak-kinds=definite,indirect --show-leak-kinds=definite,indirect \
         --track-origins=yes --trace-children=yes --log-file="$logs/$name.%p.log" "$exe" --jobs 1 \
         >"$logs/$name.out" 2>&1 || rc=$?

@@ -70,7 +70,9 @@ typedef struct {
     int traction_polygon_sides; /* the same for each module's traction circle, default 16, even, 8..64 */
     /* s from the start to the end of the plan (dwells and re-steer phases
      * included); 0: as fast as the limits allow. Met like a timed stop at
-     * the end (see veer_waypoint.arrival). */
+     * the end (see veer_waypoint.arrival). With the route's last stop timed
+     * as well, the two must agree (its arrival plus the final dwell), else
+     * VEER_ERR_VALUE. */
     double duration_target;
 } veer_plan_options;
 
