@@ -71,6 +71,18 @@ void veer__diag_ok(veer_diag *diag) {
     diag->limit = veer__limit(VEER_LIMIT_NONE, -1);
 }
 
+/* Resets diag to a failure with status at a place (-1: does not apply). */
+static void fail_at(veer_diag *diag, veer_status status, int leg, int waypoint, int grid_index, double s,
+                    veer_limit_id limit) {
+    veer__diag_ok(diag);
+    diag->status = status;
+    diag->leg = leg;
+    diag->waypoint = waypoint;
+    diag->grid_index = grid_index;
+    diag->s = isfinite(s) ? s : -1.0;
+    diag->limit = limit;
+}
+
 #ifdef VEER_TERSE_DIAG
 #undef veer__fail
 #undef veer__fail_plain
@@ -80,10 +92,10 @@ int veer__fail_format(const char *fmt, ...) {
 }
 /* The status text as the message, copied: no printf-family function is
  * linked into a terse build for diagnostics. */
-veer_status veer__fail_plain_terse(veer_diag *diag, veer_status status) {
+veer_status veer__fail_terse(veer_diag *diag, veer_status status, int leg, int waypoint, int grid_index, double s,
+                             veer_limit_id limit) {
     if (!diag) return status;
-    veer__diag_ok(diag);
-    diag->status = status;
+    fail_at(diag, status, leg, waypoint, grid_index, s, limit);
     const char *text = veer_status_str(status);
     size_t n = strlen(text);
     if (n >= sizeof diag->message) n = sizeof diag->message - 1;
@@ -91,29 +103,15 @@ veer_status veer__fail_plain_terse(veer_diag *diag, veer_status status) {
     diag->message[n] = '\0';
     return status;
 }
-veer_status veer__fail_terse(veer_diag *diag, veer_status status, int leg, int waypoint, int grid_index, double s,
-                             veer_limit_id limit) {
-    if (!diag) return status;
-    veer__fail_plain_terse(diag, status);
-    diag->leg = leg;
-    diag->waypoint = waypoint;
-    diag->grid_index = grid_index;
-    diag->s = isfinite(s) ? s : -1.0;
-    diag->limit = limit;
-    return status;
+veer_status veer__fail_plain_terse(veer_diag *diag, veer_status status) {
+    return veer__fail_terse(diag, status, -1, -1, -1, -1.0, veer__limit(VEER_LIMIT_NONE, -1));
 }
 #endif
 
 veer_status veer__fail(veer_diag *diag, veer_status status, int leg, int waypoint, int grid_index, double s,
                        veer_limit_id limit, const char *fmt, ...) {
     if (!diag) return status;
-    veer__diag_ok(diag);
-    diag->status = status;
-    diag->leg = leg;
-    diag->waypoint = waypoint;
-    diag->grid_index = grid_index;
-    diag->s = isfinite(s) ? s : -1.0;
-    diag->limit = limit;
+    fail_at(diag, status, leg, waypoint, grid_index, s, limit);
     va_list ap;
     va_start(ap, fmt);
     vsnprintf(diag->message, sizeof diag->message, fmt, ap);
@@ -123,8 +121,7 @@ veer_status veer__fail(veer_diag *diag, veer_status status, int leg, int waypoin
 
 veer_status veer__fail_plain(veer_diag *diag, veer_status status, const char *fmt, ...) {
     if (!diag) return status;
-    veer__diag_ok(diag);
-    diag->status = status;
+    fail_at(diag, status, -1, -1, -1, -1.0, veer__limit(VEER_LIMIT_NONE, -1));
     va_list ap;
     va_start(ap, fmt);
     vsnprintf(diag->message, sizeof diag->message, fmt, ap);

@@ -6,6 +6,7 @@
 #include <stdint.h>
 #include <string.h>
 #include "internal.h"
+#include "diag_text.h"
 
 #define PI VEER_PI
 #define SENTINEL 12345.0
@@ -511,7 +512,7 @@ static void expect_check_fails(const veer_drive_def *d, veer_status want, const 
     cr_assert(diag.message[0] != '\0', "empty message");
     cr_assert(diag.leg == -1 && diag.waypoint == -1 && diag.grid_index == -1 && diag.s == -1.0);
     cr_assert(diag.limit.kind == VEER_LIMIT_NONE && diag.limit.module == -1);
-    if (needle) cr_assert(strstr(diag.message, needle) != NULL, "\"%s\" lacks \"%s\"", diag.message, needle);
+    if (needle) cr_assert(diag_says(&diag, needle), "\"%s\" lacks \"%s\"", diag.message, needle);
     /* the kinematics refuse the same drive and write nothing */
     double steer[VEER_MAX_MODULES], rate[VEER_MAX_MODULES], tw[3];
     fill(steer, VEER_MAX_MODULES, SENTINEL);

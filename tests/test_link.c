@@ -15,6 +15,7 @@
 #include <sodium.h>
 #include "link_internal.h"
 #include "wire_internal.h"
+#include "diag_text.h"
 
 /* ---- helpers ------------------------------------------------------------ */
 
@@ -595,7 +596,7 @@ Test(link, bad_definitions_and_arguments) {
     veer_link_def d = veer_default_link_def();
     veer_diag diag;
     cr_assert_eq(veer_link_def_check(&d, &diag), VEER_ERR_VALUE, "a zero key is refused");
-    cr_assert(strstr(diag.message, "key") != NULL);
+    cr_assert(diag_says(&diag, "key"));
     d = link_for(1, 1, VEER_LINK_FRAME_MIN - 1);
     cr_assert_eq(veer_link_def_check(&d, &diag), VEER_ERR_VALUE);
     d = link_for(1, 1, VEER_LINK_FRAME_MAX + 1);

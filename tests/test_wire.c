@@ -9,6 +9,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include "wire_internal.h"
+#include "diag_text.h"
 
 #define PI 3.14159265358979323846
 #define DEG (PI / 180.0)
@@ -378,7 +379,7 @@ Test(wire_roundtrip, limits_route_options_diag) {
     veer__wire_diag_to_pb(&dg, &md);
     veer_v1_Diagnostic *bd = roundtrip(veer_v1_Diagnostic_fields, &md, sizeof md);
     cr_expect_eq(bd->status, veer_v1_Status_STATUS_ERR_INFEASIBLE);
-    cr_expect_str_eq(bd->message, "no motion fits");
+    cr_expect(diag_text_is(bd->message, VEER_ERR_INFEASIBLE, "no motion fits"), "%s", bd->message);
     cr_expect_eq(bd->leg, 1);
     cr_expect_eq(bd->waypoint, 2);
     cr_expect_eq(bd->grid_index, 33);
@@ -504,7 +505,7 @@ Test(wire_values, every_limit_field_is_read_and_named) {
         cr_assert_eq(veer__wire_limits_from_pb(&ml, 4, &lim, &d), VEER_ERR_VALUE);
         char want[64];
         snprintf(want, sizeof want, "limits.modules[2].%s is nan", module_names[k]);
-        cr_expect_str_eq(d.message, want);
+        cr_expect(diag_is(&d, want), "%s", d.message);
     }
     for (int k = 0; k < 5; k++) {
         memset(&ml, 0, sizeof ml);
@@ -519,7 +520,7 @@ Test(wire_values, every_limit_field_is_read_and_named) {
         cr_assert_eq(veer__wire_limits_from_pb(&ml, 4, &lim, &d), VEER_ERR_VALUE);
         char want[64];
         snprintf(want, sizeof want, "limits.%s is -inf", body_names[k]);
-        cr_expect_str_eq(d.message, want);
+        cr_expect(diag_is(&d, want), "%s", d.message);
     }
     /* The steer range the wrong way round names the module. */
     memset(&ml, 0, sizeof ml);
@@ -528,7 +529,7 @@ Test(wire_values, every_limit_field_is_read_and_named) {
     ml.modules[1].steer_min = 1.0;
     ml.modules[1].steer_max = -1.0;
     cr_assert_eq(veer__wire_limits_from_pb(&ml, 4, &lim, &d), VEER_ERR_VALUE);
-    cr_expect_str_eq(d.message, "limits.modules[1]: steer_min 1 is above steer_max -1");
+    cr_expect(diag_is(&d, "limits.modules[1]: steer_min 1 is above steer_max -1"), "%s", d.message);
 }
 
 /* A drive's non-finite module position or geometry is named in the message. */
@@ -545,16 +546,16 @@ Test(wire_values, drive_fields_are_named) {
     cr_expect_eq(drive.modules[1].drive_angle, 1.0);
     md.modules[1].drive_angle = (double)NAN;
     cr_assert_eq(veer__wire_drive_from_pb(&md, &drive, &d), VEER_ERR_VALUE);
-    cr_expect_str_eq(d.message, "drive.modules[1].drive_angle is not finite (nan)");
+    cr_expect(diag_is(&d, "drive.modules[1].drive_angle is not finite (nan)"), "%s", d.message);
     md.modules[1].drive_angle = 1.0;
     md.modules[2].y = (double)INFINITY;
     cr_assert_eq(veer__wire_drive_from_pb(&md, &drive, &d), VEER_ERR_VALUE);
-    cr_expect_str_eq(d.message, "drive.modules[2].y is not finite (inf)");
+    cr_expect(diag_is(&d, "drive.modules[2].y is not finite (inf)"), "%s", d.message);
     md.modules[2].y = 0.2;
     md.has_wheel_radius = true;
     md.wheel_radius = -(double)INFINITY;
     cr_assert_eq(veer__wire_drive_from_pb(&md, &drive, &d), VEER_ERR_VALUE);
-    cr_expect_str_eq(d.message, "drive.wheel_radius is not finite (-inf)");
+    cr_expect(diag_is(&d, "drive.wheel_radius is not finite (-inf)"), "%s", d.message);
 }
 
 Test(wire_values, bad_values_are_named) {
@@ -563,14 +564,14 @@ Test(wire_values, bad_values_are_named) {
     veer_v1_DriveDef md = {0};
     md.kind = (veer_v1_DriveKind)9;
     cr_expect_eq(veer__wire_drive_from_pb(&md, &drive, &d), VEER_ERR_VALUE);
-    cr_expect(strstr(d.message, "drive.kind") != NULL, "%s", d.message);
+    cr_expect(diag_says(&d, "drive.kind"), "%s", d.message);
     md.kind = veer_v1_DriveKind_DRIVE_KIND_MECANUM;
     md.modules_count = 1;
     cr_expect_eq(veer__wire_drive_from_pb(&md, &drive, &d), VEER_ERR_VALUE);
     md.modules_count = 0;
     md.has_track_width = true;
     cr_expect_eq(veer__wire_drive_from_pb(&md, &drive, &d), VEER_ERR_VALUE);
-    cr_expect(strstr(d.message, "track_width") != NULL, "%s", d.message);
+    cr_expect(diag_says(&d, "track_width"), "%s", d.message);
     md.has_track_width = false;
     md.has_wheel_radius = true;
     md.wheel_radius = (double)NAN;
@@ -1347,7 +1348,7 @@ Test(wire_untrusted, version_and_path_model_mismatch) {
     cr_assert_eq(veer__wire_encode(veer_v1_Plan_fields, m, buf, sizeof buf, &n, &d), VEER_OK);
     veer_plan *p = NULL;
     cr_expect_eq(veer_plan_decode_pb(buf, n, &p, &d), VEER_ERR_DECODE);
-    cr_expect(strstr(d.message, "plan") != NULL, "%s", d.message);
+    cr_expect(diag_says(&d, "plan"), "%s", d.message);
     free(m);
     demo_free(w);
     free(w);
