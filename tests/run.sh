@@ -306,6 +306,24 @@ stage_clang() {
     note "$(clang --version | head -n 1)"
 }
 
+# The library as a cart's firmware may build it (VEER_TERSE_DIAG: messages
+# are the status text; bench/size_arm.sh measures this build's code) and the
+# suites of what a cart runs (drive, player with its receiver and decoder,
+# controlled stop, jerk-limited playback, bad input); the tests expect the
+# status text as the message there (tests/diag_text.h).
+CART_SUITES="test_drive|test_link|test_player|test_stop|test_wire|test_jerk|test_plan_input"
+stage_cart_terse() {
+    local dir=$BUILD_DIR/terse out=$TMP_ROOT/terse.out rc=0
+    fresh_dir "$dir"
+    # shellcheck disable=SC2086 # VEER_CMAKE_ARGS is a list of words on purpose
+    cmake -S "$REPO" -B "$dir" -DVEER_WERROR=ON -DVEER_TERSE_DIAG=ON -DVEER_BUILD_EXAMPLES=OFF ${VEER_CMAKE_ARGS:-}
+    cmake --build "$dir" -j "$JOBS"
+    (cd "$dir" && ctest --output-on-failure --no-tests=error -R "^($CART_SUITES)\$" -j "$JOBS" \
+        --timeout "$CTEST_TIMEOUT") 2>&1 | tee "$out" || rc=${PIPESTATUS[0]}
+    note "VEER_TERSE_DIAG: $(grep -E 'tests passed' "$out" | tail -n 1)"
+    return "$rc"
+}
+
 # ---- hardening (issue 7): sanitizers, valgrind, fuzzing ----
 # The whole C suite built with AddressSanitizer and UndefinedBehaviorSanitizer
 # (gcc), the normal build's suite under valgrind memcheck, and a bounded run of
@@ -501,6 +519,7 @@ main() {
     run_stage consumer-cmake stage_consumer_cmake install
     run_stage consumer-pkgconfig stage_consumer_pkgconfig install
     run_stage clang-werror stage_clang build
+    run_stage cart-terse stage_cart_terse deps
     run_stage sanitize stage_sanitize deps
     run_stage valgrind stage_valgrind build
     run_stage fuzz stage_fuzz deps
