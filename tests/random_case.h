@@ -249,7 +249,7 @@ static inline int random_route(rng *r, case_def *c) {
 
 typedef struct {
     double worst;
-    char what[48];
+    char what[64];
     double t;
 } worst_ratio;
 
@@ -260,7 +260,7 @@ static inline void note(worst_ratio *w, double value, double limit, const char *
         w->worst = q;
         w->t = t;
         if (module >= 0)
-            snprintf(w->what, sizeof w->what, "%s[%d]", what, module);
+            snprintf(w->what, sizeof w->what, "%.40s[%d]", what, module);
         else
             snprintf(w->what, sizeof w->what, "%s", what);
     }

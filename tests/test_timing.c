@@ -39,13 +39,13 @@
  * metre. Exactly 0 where the cart stands. */
 static double motion(const veer_plan *p, double t) {
     veer_sample s;
-    if (veer_plan_sample(p, t, &s) != VEER_OK || !sample_finite(&s)) return NAN;
+    if (veer_plan_sample(p, t, &s) != VEER_OK || !sample_finite(&s)) return (double)NAN;
     return hypot(s.twist_world[0], s.twist_world[1]) + fabs(s.twist_world[2]);
 }
 
 static double dist_to(const veer_plan *p, double t, double x, double y) {
     veer_sample s;
-    if (veer_plan_sample(p, t, &s) != VEER_OK) return NAN;
+    if (veer_plan_sample(p, t, &s) != VEER_OK) return (double)NAN;
     return hypot(s.pose[0] - x, s.pose[1] - y);
 }
 
