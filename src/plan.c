@@ -230,6 +230,53 @@ static int has_motor_curve(const veer_plan *plan) {
     return 0;
 }
 
+/* The solve's work buffers are one block per plan, sized for the longest
+ * segment: the per-point arrays, the row pool and the solver's keep room
+ * (veer__topp_keep_room for a full pool). One block that lasts through all
+ * of the plan's solves, instead of a few that come and go with each solve,
+ * lets an allocator hand the same pages to the next plan: glibc gives
+ * memory back to the system when more than twice its largest block is
+ * free at the top of its heap, and every plan then faulted in fresh zeroed
+ * pages (4000 faults per plan at 16000 grid points). ws_block makes the
+ * block with room for rows_cap rows, copying the arrays and the first
+ * `used` rows of the one before (ws->block NULL: none). */
+static size_t ws_array_bytes(int longest) {
+    size_t L = (size_t)longest;
+    size_t bytes = L * (9 * sizeof(double) + sizeof(veer_limit_id) + 4 * sizeof(int) + 1) + sizeof(int);
+    return (bytes + 15) / 16 * 16; /* the row pool follows */
+}
+
+static int ws_block(veer_workspace *ws, size_t rows_cap, size_t used) {
+    size_t L = (size_t)ws->longest, arrays = ws_array_bytes(ws->longest);
+    size_t keep_cap = veer__topp_keep_room(L, rows_cap);
+    size_t bytes = arrays + rows_cap * sizeof(veer_row) + keep_cap * sizeof(double);
+    char *b = veer__alloc(bytes);
+    if (!b) return 0;
+    if (ws->block) {
+        memcpy(b, ws->block, arrays);
+        if (used) memcpy(b + arrays, ws->rows, used * sizeof(veer_row));
+        veer__free(ws->block, ws->bytes);
+    }
+    ws->block = b;
+    ws->bytes = bytes;
+    ws->xmax = (double *)b;
+    ws->K = ws->xmax + L;
+    ws->xi = ws->K + L;
+    ws->dxi = ws->xi + 3 * L;
+    ws->x_prev = ws->dxi + 3 * L;
+    ws->xmax_id = (veer_limit_id *)(ws->x_prev + L);
+    ws->row_at = (int *)(ws->xmax_id + L);
+    ws->extra_at = ws->row_at + L + 1;
+    ws->extra_n = ws->extra_at + L;
+    ws->keep_at = ws->extra_n + L;
+    ws->extra_done = (unsigned char *)(ws->keep_at + L);
+    ws->rows = (veer_row *)(b + arrays);
+    ws->rows_cap = rows_cap;
+    ws->keep = (double *)(ws->rows + rows_cap);
+    ws->keep_cap = keep_cap;
+    return 1;
+}
+
 /* Room in the row pool for `need` rows (keeping the first `used`); it
  * doubles when it grows, and never beyond `most` (the worst case of the
  * rest of the segment). */
@@ -238,13 +285,7 @@ static int rows_room(veer_workspace *ws, size_t used, size_t need, size_t most) 
     size_t want = 2 * ws->rows_cap;
     if (want > most) want = most;
     if (want < need) want = need;
-    veer_row *pool = veer__alloc(want * sizeof *pool);
-    if (!pool) return 0;
-    if (used) memcpy(pool, ws->rows, used * sizeof *pool);
-    veer__free(ws->rows, ws->rows_cap * sizeof *ws->rows);
-    ws->rows = pool;
-    ws->rows_cap = want;
-    return 1;
+    return ws_block(ws, want, used);
 }
 
 /* Rows, solve and times of segment j with the limits behind ctx, starting at
@@ -359,12 +400,11 @@ veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx,
     int n = sg->k1 - sg->k0 + 1, m = ctx->m;
     double *s = plan->s + sg->k0, *x = plan->x + sg->k0;
     int passes = has_motor_curve(plan) ? 3 : 1;
-    veer_topp_problem p = {n, s, ws->xmax, ws->xmax_id, NULL, ws->row_at, NULL, NULL, NULL};
+    veer_topp_problem p;
     const veer_point_kin *kin = ws->kin ? ws->kin + sg->k0 : NULL;
     for (int pass = 0; pass < passes; pass++) {
         ws->extra_used = 0;
         memset(ws->extra_n, 0, (size_t)n * sizeof *ws->extra_n);
-        p.extra = NULL;
         size_t at = 0; /* rows so far, packed */
         for (int k = 0; k < n; k++) {
             if (!rows_room(ws, at, at + (size_t)m, at + (size_t)(n - k) * (size_t)m))
@@ -391,7 +431,9 @@ veer_status veer__solve_segment(veer_plan *plan, int j, const veer_row_ctx *ctx,
             at += (size_t)c;
         }
         ws->row_at[n] = (int)at;
-        p.rows = ws->rows;
+        /* (the block may have moved while the rows were written) */
+        p = (veer_topp_problem){n, s, ws->xmax, ws->xmax_id, ws->rows, ws->row_at, NULL, NULL, NULL,
+                                ws->keep, ws->keep_cap, ws->keep_at};
         if (plan->cap.cap) apply_speed_caps(plan, j, n, s, ws);
         if (plan->steered) steer_rate_bounds(plan, ctx, j, n, s, ws);
         for (int k = 0; k <= sg->coast_k && k < n; k++) /* a moving start's hold for its jerk window */
@@ -890,33 +932,18 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     }
 
     veer_workspace ws;
+    memset(&ws, 0, sizeof ws);
+    ws.longest = longest;
+    ws.kin = kin;
+    ws.slope = slope;
     int m = plan->rows.m;
     /* the row pool starts with room for half the most rows a point can have
      * (polygon faces that cannot bind are left out) and grows if need be */
-    ws.rows_cap = (size_t)longest * (size_t)((m + 3) / 4 + 8) + (size_t)m;
-    ws.rows = veer__alloc(ws.rows_cap * sizeof *ws.rows);
-    ws.bytes = (size_t)longest * (9 * sizeof(double) + sizeof(veer_limit_id) + 3 * sizeof(int) + 1) + sizeof(int);
-    char *w = ws.rows ? veer__alloc(ws.bytes) : NULL;
-    if (!w) {
-        veer__free(ws.rows, ws.rows_cap * sizeof *ws.rows);
+    if (!ws_block(&ws, (size_t)longest * (size_t)((m + 3) / 4 + 8) + (size_t)m, 0)) {
         veer__free(kin, kin_room);
         veer__free(slope, slope_room);
         return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
     }
-    ws.kin = kin;
-    ws.slope = slope;
-    ws.xmax = (double *)w;
-    ws.K = ws.xmax + longest;
-    ws.xi = ws.K + longest;
-    ws.dxi = ws.xi + 3 * (size_t)longest;
-    ws.x_prev = ws.dxi + 3 * (size_t)longest;
-    ws.xmax_id = (veer_limit_id *)(ws.x_prev + longest);
-    ws.row_at = (int *)(ws.xmax_id + longest);
-    ws.extra_at = ws.row_at + longest + 1;
-    ws.extra_n = ws.extra_at + longest;
-    ws.extra_done = (unsigned char *)(ws.extra_n + longest);
-    ws.extra = NULL;
-    ws.extra_used = ws.extra_cap = 0;
 
     double from[VEER_MAX_MODULES];
     for (int i = 0; i < M; i++) from[i] = plan->route.has_start_steer ? plan->route.start_steer[i] : 0.0;
@@ -929,8 +956,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     if (st == VEER_OK && plan->x_start > 0.0) plan->segs[0].resteer_time = 0.0; /* already pointing along the motion */
     if (st == VEER_OK) st = veer__meet_arrivals(plan, &ws, diag);
     veer__free(ws.extra, (size_t)ws.extra_cap * sizeof *ws.extra);
-    veer__free(w, ws.bytes);
-    veer__free(ws.rows, ws.rows_cap * sizeof *ws.rows);
+    veer__free(ws.block, ws.bytes);
     veer__free(kin, kin_room);
     veer__free(slope, slope_room);
     if (st != VEER_OK) return st;

@@ -110,7 +110,20 @@ typedef struct {
      * extra[extra_at[k] .. extra_at[k] + extra_n[k]). NULL: none. */
     const veer_row *extra;
     const int *extra_at, *extra_n;
+    /* Room for a full solve (no extra rows) to keep each stage's upper
+     * bounds from the backward pass for the forward pass: keep_cap doubles
+     * and keep_at [n] ints, written by the solve. With less room than
+     * veer__topp_keep_room (or NULL) the forward pass works from the rows
+     * again, to the same result. */
+    double *keep;
+    size_t keep_cap;
+    int *keep_at;
 } veer_topp_problem;
+
+/* Doubles of keep room that a segment of n points and `rows` u-rows can
+ * use at most: 2 per upper bound, 1 + the rows of points k and k + 1 at
+ * stage k. */
+#define veer__topp_keep_room(n, rows) (2 * ((size_t)(n) + 2 * (size_t)(rows)))
 
 /* Fills x[n] (sdot^2) with the time-optimal profile: backward controllable
  * sets, then the forward greedy pass (Pham & Pham, IEEE T-RO 2018), using the
@@ -204,18 +217,25 @@ struct veer_plan {
 
 /* ---- plan.c: segment solves, shared with timing.c ---------------------- */
 
-/* Work buffers for one segment's solve, sized for the longest segment. */
+/* Work buffers for one segment's solve, sized for the longest segment:
+ * one block (plan.c) with the per-point arrays, the row pool and the
+ * solver's keep room, which moves as a whole when the pool grows. */
 typedef struct {
+    void *block;            /* the allocation behind every array below but kin, slope and extra */
+    size_t bytes;           /* its size */
+    int longest;            /* points in the longest segment */
     veer_row *rows;         /* u-rows of the points, packed: point k's at row_at[k] .. row_at[k + 1] */
     int *row_at;            /* [longest + 1] */
     size_t rows_cap;        /* rows the pool has room for */
     double *xmax, *K, *xi, *dxi; /* xi, dxi: body twist per unit sdot and its s-derivative, 3 per point */
     double *x_prev;         /* [longest] the profile at the last between-grid-point check */
     veer_limit_id *xmax_id;
+    double *keep;           /* the solver's keep room (veer_topp_problem), keep_cap doubles */
+    size_t keep_cap;
+    int *keep_at;           /* [longest] */
     const veer_point_kin *kin; /* [plan->n] path kinematics at every grid point, NULL: computed when needed */
     const double *slope;    /* steered drives: [plan->n * 3 * modules] steer slope and module velocity at every grid point
                              * (plan.c's grid refinement), NULL: computed when needed */
-    size_t bytes;
     /* Midpoint rows added where the profile broke a limit between grid
      * points (plan.c): a pool and, per stage, where its rows are. */
     veer_row *extra;

@@ -14,6 +14,7 @@
  * piece each step and never overshoots the root, so a stage costs
  * O(m * steps) with steps typically 1 to 3: the solve is O(N m).
  * SPDX-License-Identifier: MIT */
+#include <limits.h>
 #include <string.h>
 #include "plan_internal.h"
 
@@ -194,18 +195,15 @@ static veer_status solve(const veer_topp_problem *p, double x_start, double *x, 
     stage st;
     /* A full solve without extra rows keeps each stage's upper bounds from
      * the backward pass for the forward pass (which would otherwise divide
-     * them out of the rows again): stage k's at kept + k + row_at[k] +
-     * row_at[k + 1] (relative to row_at[0]), room for its 1 + n0 + n1. If
-     * the room cannot be had, the forward pass works from the rows. */
-    bound *kept = NULL;
-    int *kept_n = NULL;
-    size_t kept_bytes = 0;
-    if (!marks && !p->extra && n >= 2) {
-        size_t r0 = (size_t)p->row_at[0];
-        size_t cnt = (size_t)(n - 1) + ((size_t)p->row_at[n - 1] - r0) + ((size_t)p->row_at[n] - r0);
-        kept_bytes = cnt * sizeof *kept + (size_t)n * sizeof *kept_n;
-        kept = veer__alloc(kept_bytes);
-        if (kept) kept_n = (int *)(kept + cnt);
+     * them out of the rows again), packed down from the end of p->keep:
+     * stage k's at keep_at[k] .. keep_at[k + 1]. Without room for the most
+     * the stages can have, the forward pass works from the rows. */
+    bound *keep = NULL;
+    int top = 0; /* where the stage kept last starts (backward pass), stage k starts (forward) */
+    if (!marks && !p->extra && p->keep && n >= 2 &&
+        veer__topp_keep_room(n, p->row_at[n] - p->row_at[0]) <= p->keep_cap && p->keep_cap / 2 <= INT_MAX) {
+        keep = (bound *)p->keep;
+        top = p->keep_at[n - 1] = (int)(p->keep_cap / 2);
     }
     /* Backward pass: controllable sets K_k = [0, K[k]], rest at the end. */
     K[n - 1] = 0.0;
@@ -219,10 +217,10 @@ static veer_status solve(const veer_topp_problem *p, double x_start, double *x, 
         }
         stage_build(p, k, K[k + 1], &st);
         double v = stage_max_x(&st);
-        if (kept) {
-            size_t at = (size_t)k + (size_t)(p->row_at[k] - p->row_at[0]) + (size_t)(p->row_at[k + 1] - p->row_at[0]);
-            memcpy(kept + at, st.up, (size_t)st.nup * sizeof *kept);
-            kept_n[k] = st.nup;
+        if (keep) {
+            top -= st.nup;
+            memcpy(keep + top, st.up, (size_t)st.nup * sizeof *keep);
+            p->keep_at[k] = top;
         }
         if (marks) {
             dirty = !(v == K[k]);
@@ -232,7 +230,6 @@ static veer_status solve(const veer_topp_problem *p, double x_start, double *x, 
     }
     /* A moving start must lie in the first controllable set: room to stop. */
     if (x_start > K[0] * (1.0 + 1e-9) + 1e-12) {
-        veer__free(kept, kept_bytes);
         if (bad_index) *bad_index = 0;
         return VEER_ERR_INFEASIBLE;
     }
@@ -242,9 +239,10 @@ static veer_status solve(const veer_topp_problem *p, double x_start, double *x, 
     for (int k = 0; k < n - 1; k++) {
         if (!dirty && !(marks[k] & VEER_TOPP_CHANGED) && !(marks[k + 1] & VEER_TOPP_K_CHANGED)) continue;
         double U;
-        if (kept) {
-            size_t at = (size_t)k + (size_t)(p->row_at[k] - p->row_at[0]) + (size_t)(p->row_at[k + 1] - p->row_at[0]);
-            U = kept_upper(kept + at, kept_n[k], x[k]);
+        if (keep) {
+            int end = p->keep_at[k + 1];
+            U = kept_upper(keep + top, end - top, x[k]);
+            top = end;
         } else {
             U = stage_upper(p, k, K[k + 1], x[k]);
         }
@@ -254,7 +252,6 @@ static veer_status solve(const veer_topp_problem *p, double x_start, double *x, 
         dirty = !marks || !(next == x[k + 1]);
         x[k + 1] = next;
     }
-    veer__free(kept, kept_bytes);
     x[n - 1] = 0.0;
     /* Interior points where nothing can move make the duration infinite. */
     for (int k = 1; k < n - 1; k++) {
