@@ -103,6 +103,7 @@ ratio_med=$(fig lp_ratio_1000_median) scale_med=$(fig "(medians:" | tr -d ')') i
 p99=$(fig step_p99_us) code=$(fig code_bytes) ram=$(fig ram_bytes)
 code_os=$(fig code_bytes_Os) code_terse=$(fig code_bytes_Os_terse)
 stack=$(fig stack_high_water_bytes) mem=$(fig player_size_bytes)
+ok() { awk "BEGIN {print ($1) ? 1 : 0}"; }
 m7=$(fig code_bytes_m7) m7_terse=$(fig code_bytes_m7_terse)
 kib() { awk "BEGIN {printf \"%.1f\", $1 / 1024}"; }
 if [[ -n $m7_terse ]]; then # the cart's own build: a Cortex-M controller, terse diagnostics
@@ -112,7 +113,6 @@ else
     code_row="-O2: $code B ($(kib "$code") KiB); -Os: $code_os B ($(kib "$code_os") KiB); -Os with VEER_TERSE_DIAG: $code_terse B ($(kib "$code_terse") KiB); HMAC-SHA-256 included (no Cortex-M7 figure: see bench/size_arm.sh)"
     code_ok=$(ok "$code_os < 49152")
 fi
-ok() { awk "BEGIN {print ($1) ? 1 : 0}"; }
 
 {
     echo "# veer benchmark results"
