@@ -33,7 +33,7 @@ command -v arm-none-eabi-gcc >/dev/null || {
 }
 NANOPB_INC=$(sed -n 's/^VEER_NANOPB_INCLUDE_DIR:PATH=//p' "$BUILD/CMakeCache.txt")
 OUT=$(mktemp -d)
-[[ -n ${KEEP_OUT:-} ]] || trap 'rm -rf "$OUT"' EXIT
+trap 'rm -rf "$OUT"' EXIT
 mkdir "$OUT/inc"
 cp "$NANOPB_INC"/pb.h "$NANOPB_INC"/pb_common.h "$NANOPB_INC"/pb_decode.h "$NANOPB_INC"/pb_encode.h "$OUT/inc/"
 FLAGS=(-std=c11 -Os -mthumb -mcpu=cortex-m7 -mfpu=fpv5-d16 -mfloat-abi=hard -ffunction-sections -fdata-sections

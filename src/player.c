@@ -323,19 +323,19 @@ static int plan_names_other_cart(const uint8_t *bytes, size_t size, const char *
 }
 
 /* Decodes bytes into the workspace and checks them against the cart: the
- * arming verdict (VEER_LINK_NONE when the plan is for this cart). */
+ * arming verdict; *out is the plan when it is VEER_LINK_NONE, else NULL. */
 static int load(veer_player *p, const uint8_t *bytes, size_t size, const veer_plan **out) {
     const veer_plan *plan = NULL;
     *out = NULL;
     if (veer_plan_load_pb(bytes, size, p->work, ALIGN16(veer_plan_workspace_size()), &plan, NULL) != VEER_OK ||
         !plan)
         return VEER_LINK_DECODE;
-    *out = plan;
     if (plan_names_other_cart(bytes, size, p->def.cart_name)) return VEER_LINK_CART_NAME;
     uint8_t dh[32], lh[32];
     if (config_hashes(&plan->drive, &plan->limits, dh, lh) != VEER_OK) return VEER_LINK_DECODE;
     if (memcmp(dh, p->drive_hash, 32) != 0) return VEER_LINK_DRIVE;
     if (memcmp(lh, p->limits_hash, 32) != 0) return VEER_LINK_LIMITS;
+    *out = plan;
     return VEER_LINK_NONE;
 }
 
@@ -353,10 +353,7 @@ static int arm(veer_player *p, double now) {
         /* The workspace held the armed (or last) plan: decode it again. It
          * passed every check before, so this cannot fail; if it did, the
          * player would hold no plan rather than a broken one. */
-        const veer_plan *again = NULL;
-        if (p->plan && load(p, p->armed, p->armed_size, &again) != VEER_LINK_NONE) again = NULL;
-        if (p->plan && !again) fault(p);
-        p->plan = again;
+        if (p->plan && load(p, p->armed, p->armed_size, &p->plan) != VEER_LINK_NONE) fault(p);
         return verdict;
     }
     memcpy(p->armed, bytes, size);

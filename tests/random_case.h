@@ -11,6 +11,7 @@
 #include <stdio.h>
 #include <string.h>
 #include <veer/veer.h>
+#include "plan_check.h"
 
 #define PI 3.14159265358979323846
 #define G0 9.80665 /* m/s^2, standard gravity (3rd CGPM, 1901) */
@@ -247,39 +248,8 @@ static inline int random_route(rng *r, case_def *c) {
 
 /* ---- independent checks from the samples -------------------------------- */
 
-typedef struct {
-    double worst;
-    char what[64];
-    double t;
-} worst_ratio;
-
-static inline void note(worst_ratio *w, double value, double limit, const char *what, int module, double t) {
-    if (!isfinite(limit)) return;
-    double q = fabs(value) / limit;
-    if (q > w->worst) {
-        w->worst = q;
-        w->t = t;
-        if (module >= 0)
-            snprintf(w->what, sizeof w->what, "%.40s[%d]", what, module);
-        else
-            snprintf(w->what, sizeof w->what, "%s", what);
-    }
-}
-
-static inline int finite3(const double *v) { return isfinite(v[0]) && isfinite(v[1]) && isfinite(v[2]); }
-
-static inline int sample_finite(const veer_sample *s) {
-    if (!isfinite(s->t) || !isfinite(s->s) || !isfinite(s->sdot) || !isfinite(s->sddot)) return 0;
-    if (!finite3(s->pose) || !finite3(s->twist_world) || !finite3(s->twist_body) || !finite3(s->accel_world) ||
-        !finite3(s->accel_body))
-        return 0;
-    for (int i = 0; i < s->module_count; i++) {
-        const veer_module_setpoint *m = &s->modules[i];
-        if (!isfinite(m->steer) || !isfinite(m->steer_rate) || !isfinite(m->wheel_rate) || !isfinite(m->wheel_accel))
-            return 0;
-    }
-    return 1;
-}
+/* The worst figure / limit is kept in plan_check.h's result (pc_note). */
+static inline int sample_finite(const veer_sample *s) { return isfinite(s->t) && pc_finite_sample(s); }
 
 /* Wheel rates (rad/s) of a fixed-wheel drive for a body twist, from the
  * textbook kinematics, written out here independently of src/drive_*.c:
@@ -343,7 +313,7 @@ static inline void contact(const veer_drive_def *d, int i, double p[2]) {
 }
 
 typedef struct {
-    worst_ratio limit;   /* largest figure / limit */
+    plan_check_result limit; /* largest figure / limit (worst, worst_name, worst_t) */
     double kin_err;      /* largest disagreement of wheel rate or steer with the textbook kinematics */
     double pose_err;     /* largest |d pose / dt - twist| (m/s, rad/s) beyond the trapezoid rule's error */
     double pose_t;
@@ -381,10 +351,10 @@ static inline dense_result dense_check(const veer_plan *p, const case_def *c) {
         }
         out.samples++;
         /* Body limits: the definitions in plan.h. */
-        note(&out.limit, hypot(s.twist_world[0], s.twist_world[1]), l->body_speed, "body_speed", -1, t);
-        note(&out.limit, hypot(s.accel_world[0], s.accel_world[1]), l->body_accel, "body_accel", -1, t);
-        note(&out.limit, s.twist_world[2], l->yaw_rate, "yaw_rate", -1, t);
-        note(&out.limit, s.accel_world[2], l->yaw_accel, "yaw_accel", -1, t);
+        pc_note(&out.limit, hypot(s.twist_world[0], s.twist_world[1]), l->body_speed, "body_speed", -1, t);
+        pc_note(&out.limit, hypot(s.accel_world[0], s.accel_world[1]), l->body_accel, "body_accel", -1, t);
+        pc_note(&out.limit, s.twist_world[2], l->yaw_rate, "yaw_rate", -1, t);
+        pc_note(&out.limit, s.accel_world[2], l->yaw_accel, "yaw_accel", -1, t);
         /* The body twist is the world twist turned into the body frame. */
         double cy = cos(s.pose[2]), sy = sin(s.pose[2]);
         double bx = cy * s.twist_world[0] + sy * s.twist_world[1], by = -sy * s.twist_world[0] + cy * s.twist_world[1];
@@ -399,13 +369,13 @@ static inline dense_result dense_check(const veer_plan *p, const case_def *c) {
                 /* a steered module's rate takes the sign of the reverse choice */
                 double k0 = d->kind == VEER_DRIVE_STEERED ? copysign(u[i], s.modules[i].wheel_rate) : u[i];
                 if (even >= 3)
-                    note(&out.limit, (k0 - 2.0 * k1[i] + k2[i]) / h2, l->modules[i].wheel_jerk,
+                    pc_note(&out.limit, (k0 - 2.0 * k1[i] + k2[i]) / h2, l->modules[i].wheel_jerk,
                          "wheel_jerk(kinematics, twice differenced)", i, t);
                 k2[i] = k1[i];
                 k1[i] = k0;
             }
             if (even >= 3)
-                note(&out.limit,
+                pc_note(&out.limit,
                      hypot(s.twist_world[0] - 2.0 * v1[0] + v2[0], s.twist_world[1] - 2.0 * v1[1] + v2[1]) / h2,
                      l->body_jerk, "body_jerk(velocity twice differenced)", -1, t);
             memcpy(v2, v1, sizeof v1);
@@ -422,16 +392,16 @@ static inline dense_result dense_check(const veer_plan *p, const case_def *c) {
                     double k = fabs(wrap(2.0 * (m->steer - dir[i]))) / 2.0;
                     if (k > e) e = k;
                 }
-                note(&out.limit, m->steer_rate, ml->steer_rate, "steer_rate", i, t);
+                pc_note(&out.limit, m->steer_rate, ml->steer_rate, "steer_rate", i, t);
                 if (m->steer > ml->steer_max + 1e-9 || m->steer < ml->steer_min - 1e-9)
-                    note(&out.limit, 2.0, 1.0, "steer_range", i, t);
+                    pc_note(&out.limit, 2.0, 1.0, "steer_range", i, t);
             } else {
                 e = fabs(m->wheel_rate - u[i]) / scale;
             }
             if (e > out.kin_err) out.kin_err = e;
-            note(&out.limit, u[i], ml->wheel_rate, "wheel_rate(kinematics)", i, t);
-            note(&out.limit, m->wheel_rate, ml->wheel_rate, "wheel_rate", i, t);
-            note(&out.limit, m->wheel_accel, ml->wheel_accel, "wheel_accel", i, t);
+            pc_note(&out.limit, u[i], ml->wheel_rate, "wheel_rate(kinematics)", i, t);
+            pc_note(&out.limit, m->wheel_rate, ml->wheel_rate, "wheel_rate", i, t);
+            pc_note(&out.limit, m->wheel_accel, ml->wheel_accel, "wheel_accel", i, t);
             if (isfinite(ml->traction_mu)) {
                 /* Contact point acceleration of a rigid body in the plane:
                  * a + alpha k x R r - w^2 R r (any dynamics text, e.g. Lynch
@@ -441,7 +411,7 @@ static inline dense_result dense_check(const veer_plan *p, const case_def *c) {
                 double rx = cy * rb[0] - sy * rb[1], ry = sy * rb[0] + cy * rb[1];
                 double w = s.twist_world[2], al = s.accel_world[2];
                 double ax = s.accel_world[0] - al * ry - w * w * rx, ay = s.accel_world[1] + al * rx - w * w * ry;
-                note(&out.limit, hypot(ax, ay), ml->traction_mu * G0, "traction", i, t);
+                pc_note(&out.limit, hypot(ax, ay), ml->traction_mu * G0, "traction", i, t);
             }
         }
         if (have && t > prev.t) {
@@ -451,19 +421,19 @@ static inline dense_result dense_check(const veer_plan *p, const case_def *c) {
             for (int i = 0; i < M; i++) {
                 const veer_module_limits *ml = &l->modules[i];
                 if (d->kind == VEER_DRIVE_STEERED)
-                    note(&out.limit, (s.modules[i].steer - prev.modules[i].steer) / h, ml->steer_rate,
+                    pc_note(&out.limit, (s.modules[i].steer - prev.modules[i].steer) / h, ml->steer_rate,
                          "steer_rate(differenced)", i, t);
-                note(&out.limit, (s.modules[i].wheel_rate - prev.modules[i].wheel_rate) / h, ml->wheel_accel,
+                pc_note(&out.limit, (s.modules[i].wheel_rate - prev.modules[i].wheel_rate) / h, ml->wheel_accel,
                      "wheel_accel(differenced)", i, t);
                 if (c->jerk)
-                    note(&out.limit, (s.modules[i].wheel_accel - prev.modules[i].wheel_accel) / h, ml->wheel_jerk,
+                    pc_note(&out.limit, (s.modules[i].wheel_accel - prev.modules[i].wheel_accel) / h, ml->wheel_jerk,
                          "wheel_jerk(differenced)", i, t);
             }
-            note(&out.limit, hypot(s.twist_world[0] - prev.twist_world[0], s.twist_world[1] - prev.twist_world[1]) / h,
+            pc_note(&out.limit, hypot(s.twist_world[0] - prev.twist_world[0], s.twist_world[1] - prev.twist_world[1]) / h,
                  l->body_accel, "body_accel(differenced)", -1, t);
-            note(&out.limit, (s.twist_world[2] - prev.twist_world[2]) / h, l->yaw_accel, "yaw_accel(differenced)", -1, t);
+            pc_note(&out.limit, (s.twist_world[2] - prev.twist_world[2]) / h, l->yaw_accel, "yaw_accel(differenced)", -1, t);
             if (c->jerk)
-                note(&out.limit,
+                pc_note(&out.limit,
                      hypot(s.accel_world[0] - prev.accel_world[0], s.accel_world[1] - prev.accel_world[1]) / h,
                      l->body_jerk, "body_jerk(differenced)", -1, t);
             /* The pose's derivative is the twist: the trapezoid rule over h

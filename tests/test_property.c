@@ -198,8 +198,8 @@ static void run_cases(veer_drive_kind kind, uint64_t seed, int full, tally *tl) 
         if (dr.limit.worst > 1.0 + TOL) {
             tl->over_dense++;
             broke = 1;
-            snprintf(why + strlen(why), sizeof why - strlen(why), " samples: %s %.4f at t=%.3f s;", dr.limit.what,
-                     dr.limit.worst, dr.limit.t);
+            snprintf(why + strlen(why), sizeof why - strlen(why), " samples: %s %.4f at t=%.3f s;", dr.limit.worst_name,
+                     dr.limit.worst, dr.limit.worst_t);
         }
         /* Kinematics: the module setpoints are the textbook ones for the
          * sampled twist (1e-6 of the wheel-rate limit, or 1e-6 rad). */

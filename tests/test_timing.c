@@ -209,8 +209,8 @@ static double check_plan(const veer_plan *p, const case_def *c, const char *wher
               rep.worst, rep.t);
     dense_result dr = dense_check(p, c);
     cr_assert_eq(dr.nan, 0, "%s: %d samples failed or had a NaN", where, dr.nan);
-    cr_expect(dr.limit.worst <= 1.0 + TOL, "%s: samples: %s at %.4f of its limit, t = %.3f s", where, dr.limit.what,
-              dr.limit.worst, dr.limit.t);
+    cr_expect(dr.limit.worst <= 1.0 + TOL, "%s: samples: %s at %.4f of its limit, t = %.3f s", where, dr.limit.worst_name,
+              dr.limit.worst, dr.limit.worst_t);
     cr_expect(dr.kin_err < 1e-6, "%s: setpoints off the textbook kinematics by %.3g", where, dr.kin_err);
     if (c->moving) {
         /* the moving start honoured: the plan starts where the cart is, with its twist */
