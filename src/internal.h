@@ -117,10 +117,16 @@ typedef struct {
     double yaw_p[12];   /* yaw-law parameters, private to path.c */
 } veer_path_piece;
 
-#define VEER_PATH_MAX_PIECES (2 * VEER_MAX_WAYPOINTS + 2 * VEER_MAX_LEGS + 4)
-/* Every stop of a travel leg ends a segment, and a tangent-heading stop that
- * turns adds a spin segment after it; spin and pivot legs are one each. */
-#define VEER_PATH_MAX_SEGMENTS (2 * VEER_MAX_WAYPOINTS + VEER_MAX_LEGS)
+/* The most pieces and rest-to-rest segments the path of a route with W
+ * waypoints and L legs can have. A travel leg gives each waypoint at most a
+ * line and a rounded corner (or, at a stop, the spin a turning tangent
+ * heading adds); spin and pivot legs are one piece each. Every stop of a
+ * travel leg ends a segment, and a tangent-heading stop that turns adds a
+ * spin segment after it; spin and pivot legs are one each. */
+#define VEER_PATH_PIECES_FOR(W, L) (2 * (W) + 2 * (L) + 4)
+#define VEER_PATH_SEGMENTS_FOR(W, L) (2 * (W) + (L))
+#define VEER_PATH_MAX_PIECES VEER_PATH_PIECES_FOR(VEER_MAX_WAYPOINTS, VEER_MAX_LEGS)
+#define VEER_PATH_MAX_SEGMENTS VEER_PATH_SEGMENTS_FOR(VEER_MAX_WAYPOINTS, VEER_MAX_LEGS)
 
 /* A rest-to-rest stretch of the path: the cart is at rest at s_begin and s_end. */
 typedef struct {
@@ -131,14 +137,28 @@ typedef struct {
     double dwell;           /* s to stand still after arriving at s_end */
 } veer_path_segment;
 
+/* A path. Its arrays are storage the owner attaches before building
+ * (veer__path_attach) and keeps alive as long as the path: the path does
+ * not own them, so a copy of the struct shares them. */
 typedef struct {
     double length;          /* total s */
     int piece_count;
-    veer_path_piece pieces[VEER_PATH_MAX_PIECES];
+    int piece_cap;          /* room in pieces */
+    veer_path_piece *pieces; /* [piece_cap] */
     int segment_count;
-    veer_path_segment segments[VEER_PATH_MAX_SEGMENTS];
+    int segment_cap;        /* room in segments */
+    veer_path_segment *segments; /* [segment_cap] */
     double end_pose[3];
 } veer_path;
+
+/* Attaches storage to an empty path (counts set to 0). */
+void veer__path_attach(veer_path *path, veer_path_piece *pieces, int piece_cap, veer_path_segment *segments,
+                       int segment_cap);
+/* The room the path of a route of waypoints waypoints and legs legs needs
+ * at most: VEER_PATH_*_FOR of the counts clamped to 0..VEER_MAX_WAYPOINTS and
+ * 0..VEER_MAX_LEGS (a route beyond them fails veer__path_build's checks
+ * before it makes any piece). */
+void veer__path_caps(int waypoints, int legs, int *piece_cap, int *segment_cap);
 
 /* What veer_default_limits returns, written into *l in place (no copy on a
  * cart's stack), and what it gives each module. */
@@ -151,8 +171,10 @@ void veer__route_init(veer_route *r, double x, double y, double yaw);
 
 /* Builds the path of a route: checks it (NaN, coincident waypoints, counts,
  * corners too sharp to round, heading intents that cannot start from the
- * pose the leg starts with) and fills out. On failure out is unspecified and
- * diag names the leg and waypoint. */
+ * pose the leg starts with) and fills out, in the storage attached to it
+ * (VEER_ERR_CAPACITY when the path needs more pieces or segments than it has
+ * room for; VEER_ERR_NULL when none is attached). On failure out is an empty
+ * path (storage kept) and diag names the leg and waypoint. */
 veer_status veer__path_build(const veer_route *route, veer_path *out, veer_diag *diag);
 
 /* q(s), q'(s), q''(s) within segment seg (s clamped to the segment), where

@@ -316,7 +316,7 @@ void veer__path_eval(const veer_path *path, int seg, double s, double q[3], doub
     if (!q) q = qq;
     if (!dq) dq = dd;
     if (!ddq) ddq = d2;
-    if (!path || path->segment_count <= 0 || path->segment_count > VEER_PATH_MAX_SEGMENTS) {
+    if (!path || path->segment_count <= 0 || path->segment_count > path->segment_cap) {
         for (int k = 0; k < 3; k++) q[k] = dq[k] = ddq[k] = 0.0;
         return;
     }
@@ -481,7 +481,7 @@ typedef struct {
 
 static veer_path_piece *new_piece(builder *b, int kind, int heading, double len) {
     veer_path *path = b->path;
-    if (path->piece_count >= VEER_PATH_MAX_PIECES) return NULL;
+    if (path->piece_count >= path->piece_cap) return NULL;
     veer_path_piece *pc = &path->pieces[path->piece_count++];
     memset(pc, 0, sizeof *pc);
     pc->kind = kind;
@@ -493,14 +493,14 @@ static veer_path_piece *new_piece(builder *b, int kind, int heading, double len)
 
 static veer_status piece_capacity(builder *b, int li) {
     return veer__fail(b->diag, VEER_ERR_CAPACITY, li, -1, -1, b->s, veer__limit(VEER_LIMIT_NONE, -1),
-                      "leg %d: the path needs more than %d pieces", li, VEER_PATH_MAX_PIECES);
+                      "leg %d: the path needs more than %d pieces", li, b->path->piece_cap);
 }
 
 static veer_status close_segment(builder *b, int li, int waypoint, double dwell) {
     veer_path *path = b->path;
-    if (path->segment_count >= VEER_PATH_MAX_SEGMENTS)
+    if (path->segment_count >= path->segment_cap)
         return veer__fail(b->diag, VEER_ERR_CAPACITY, li, waypoint, -1, b->s, veer__limit(VEER_LIMIT_NONE, -1),
-                          "leg %d: the path needs more than %d rest-to-rest segments", li, VEER_PATH_MAX_SEGMENTS);
+                          "leg %d: the path needs more than %d rest-to-rest segments", li, path->segment_cap);
     veer_path_segment *sg = &path->segments[path->segment_count++];
     sg->s_begin = b->seg_s;
     sg->s_end = b->s;
@@ -963,10 +963,33 @@ static veer_status build(const veer_route *route, veer_path *out, veer_diag *dia
     return VEER_OK;
 }
 
+void veer__path_attach(veer_path *path, veer_path_piece *pieces, int piece_cap, veer_path_segment *segments,
+                       int segment_cap) {
+    path->length = 0.0;
+    path->piece_count = 0;
+    path->piece_cap = pieces && piece_cap > 0 ? piece_cap : 0;
+    path->pieces = pieces;
+    path->segment_count = 0;
+    path->segment_cap = segments && segment_cap > 0 ? segment_cap : 0;
+    path->segments = segments;
+    path->end_pose[0] = path->end_pose[1] = path->end_pose[2] = 0.0;
+}
+
+void veer__path_caps(int waypoints, int legs, int *piece_cap, int *segment_cap) {
+    int w = waypoints, l = legs;
+    w = w < 0 ? 0 : w > VEER_MAX_WAYPOINTS ? VEER_MAX_WAYPOINTS : w;
+    l = l < 0 ? 0 : l > VEER_MAX_LEGS ? VEER_MAX_LEGS : l;
+    *piece_cap = VEER_PATH_PIECES_FOR(w, l);
+    *segment_cap = VEER_PATH_SEGMENTS_FOR(w, l);
+}
+
 veer_status veer__path_build(const veer_route *route, veer_path *out, veer_diag *diag) {
     if (!route || !out)
         return veer__fail(diag, VEER_ERR_NULL, -1, -1, -1, -1.0, veer__limit(VEER_LIMIT_NONE, -1),
                           "veer__path_build: %s is NULL", !route ? "route" : "out");
+    if (!out->pieces || !out->segments || out->piece_cap < 0 || out->segment_cap < 0)
+        return veer__fail(diag, VEER_ERR_NULL, -1, -1, -1, -1.0, veer__limit(VEER_LIMIT_NONE, -1),
+                          "veer__path_build: the path has no storage attached (veer__path_attach)");
     out->length = 0.0;
     out->piece_count = 0;
     out->segment_count = 0;

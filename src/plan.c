@@ -65,6 +65,23 @@ veer_status veer__plan_options_check(const veer_plan_options *o, veer_diag *diag
     return VEER_OK;
 }
 
+void veer__plan_attach(veer_plan *plan, int piece_cap, int segment_cap) {
+    if (piece_cap < 0) piece_cap = 0;
+    if (segment_cap < 0) segment_cap = 0;
+    char *at = (char *)plan + VEER__PLAN_ALIGN(sizeof *plan);
+    veer_path_piece *pieces = (veer_path_piece *)at;
+    at += VEER__PLAN_ALIGN((size_t)piece_cap * sizeof *pieces);
+    veer_path_segment *segments = (veer_path_segment *)at;
+    at += VEER__PLAN_ALIGN((size_t)segment_cap * sizeof *segments);
+    /* zeroed, as when they were inside the struct: the decoder sets only some segment fields and
+     * relies on the rest being 0 */
+    memset(pieces, 0, (size_t)(at - (char *)pieces) + (size_t)segment_cap * sizeof *plan->segs);
+    veer__path_attach(&plan->path, pieces, piece_cap, segments, segment_cap);
+    plan->segs = (veer_plan_segment *)at;
+    plan->segment_cap = segment_cap;
+    plan->segment_count = 0;
+}
+
 void veer_plan_destroy(veer_plan *plan) {
     if (!plan || plan->alloc_size == 0) return; /* NULL, or a plan in a caller's workspace (veer_plan_load_pb) */
     size_t grid_bytes = (size_t)plan->n * (3 * sizeof(double) + sizeof(veer_limit_id)) +
@@ -78,7 +95,7 @@ void veer_plan_destroy(veer_plan *plan) {
  * corners, spins and pivots get the points their quickly changing limits
  * need; every piece boundary is a grid point. */
 static void grid_layout(const veer_path *path, int points, int *piece_intervals) {
-    double weight[VEER_PATH_MAX_PIECES], total = 0.0;
+    double weight[VEER_PATH_MAX_PIECES], total = 0.0; /* a plan's piece_cap is at most the maximum (veer__path_caps) */
     for (int j = 0; j < path->segment_count; j++) {
         const veer_path_segment *ps = &path->segments[j];
         for (int p = ps->first_piece; p < ps->first_piece + ps->piece_count; p++) {
@@ -869,7 +886,7 @@ void veer__plan_timeline(veer_plan *plan) {
 
 static veer_status build(veer_plan *plan, veer_diag *diag) {
     const veer_path *path = &plan->path;
-    int intervals[VEER_PATH_MAX_PIECES], first[VEER_PATH_MAX_SEGMENTS + 1];
+    int intervals[VEER_PATH_MAX_PIECES], first[VEER_PATH_MAX_SEGMENTS + 1]; /* the caps are at most these */
     grid_layout(path, plan->options.grid_points, intervals);
     int base = path->segment_count;
     for (int p = 0; p < path->piece_count; p++) base += intervals[p];
@@ -998,9 +1015,14 @@ veer_status veer__plan_create_with(const veer_drive_def *drive, const veer_limit
             return veer__fail(diag, VEER_ERR_VALUE, -1, w, -1, -1.0, none,
                               "waypoint %d: arrival must be a time >= 0 s, got %g", w, wp->arrival);
     }
-    veer_plan *plan = veer__calloc(1, sizeof *plan);
+    /* one block: the plan and its path and segment arrays, sized for the route */
+    int piece_cap, segment_cap;
+    veer__path_caps(route->waypoint_count, route->leg_count, &piece_cap, &segment_cap);
+    size_t bytes = VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap);
+    veer_plan *plan = veer__calloc(1, bytes);
     if (!plan) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, none, "out of memory");
-    plan->alloc_size = sizeof *plan;
+    plan->alloc_size = bytes;
+    veer__plan_attach(plan, piece_cap, segment_cap);
     plan->drive = *drive;
     plan->limits = *limits;
     plan->options = opt;

@@ -208,12 +208,29 @@ struct veer_plan {
     double *steer;                /* [n * module_count] steer angle at each grid point (continuous) */
     veer_limit_id *binding;       /* [n] */
     int segment_count;
-    veer_plan_segment segs[VEER_PATH_MAX_SEGMENTS];
+    int segment_cap;              /* room in segs (= path.segment_cap) */
+    veer_plan_segment *segs;      /* [segment_cap], in the plan's block (veer__plan_attach) */
     int leg_count;
     veer_leg_summary legs[VEER_MAX_LEGS];
     double x_start;               /* sdot^2 at the start (re-planning on the move), 0 at rest */
     double duration;
 };
+
+/* A plan's block: the struct, then its path's pieces and segments and its
+ * own segments, each at a 16-byte offset, sized for piece_cap pieces and
+ * segment_cap segments (VEER_PATH_*_FOR the route: veer__path_caps). The
+ * struct does not own its arrays apart from the block, so a plan is never
+ * copied by value. */
+#define VEER__PLAN_ALIGN(n) (((size_t)(n) + 15u) & ~(size_t)15u)
+#define VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap)                                                             \
+    (VEER__PLAN_ALIGN(sizeof(veer_plan)) + VEER__PLAN_ALIGN((size_t)(piece_cap) * sizeof(veer_path_piece)) +     \
+     VEER__PLAN_ALIGN((size_t)(segment_cap) * sizeof(veer_path_segment)) +                                       \
+     VEER__PLAN_ALIGN((size_t)(segment_cap) * sizeof(veer_plan_segment)))
+/* Points the arrays of plan (at the start of a block of at least
+ * VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap) bytes, aligned for double)
+ * into the block behind the struct and zeroes them; the path is left empty,
+ * segment_count 0. The rest of the struct is not touched. */
+void veer__plan_attach(veer_plan *plan, int piece_cap, int segment_cap);
 
 /* ---- plan.c: segment solves, shared with timing.c ---------------------- */
 

@@ -97,14 +97,31 @@ veer_status veer__wire_plan_to_pb(const veer_plan *plan, const veer_v1_PlanReque
 /* SHA-256 of m's encoding with content_hash left empty (m is restored). */
 veer_status veer__wire_plan_hash(veer_v1_Plan *m, uint8_t digest[32]);
 
-/* Workspace of a plan rebuilt from a Plan message: the plan, its grid arrays
- * for VEER_WIRE_MAX_KNOTS knots and the body twists the steer tracking needs. */
+/* Workspace of a plan rebuilt from a Plan message: the plan's block (the
+ * struct and its path and segment arrays, VEER__PLAN_BLOCK_BYTES), its grid
+ * arrays for knot_cap knots of `modules` modules and the body twists the
+ * steer tracking needs. veer__wire_plan_layout gives the offsets; the
+ * macros give the same total as a constant. */
 #define VEER__WIRE_ALIGN(n) (((size_t)(n) + 15u) & ~(size_t)15u)
+#define VEER__WIRE_GRID_BYTES(knot_cap, modules)                                                                 \
+    ((size_t)(knot_cap) * ((3 + (size_t)(modules)) * sizeof(double) + sizeof(veer_limit_id)))
+#define VEER__WIRE_PLAN_BYTES(piece_cap, segment_cap, knot_cap, modules)                                         \
+    (VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap) + VEER__WIRE_ALIGN(VEER__WIRE_GRID_BYTES(knot_cap, modules)) + \
+     (size_t)(knot_cap) * 3 * sizeof(double))
+/* ... enough for any plan (the library's maxima). */
 #define VEER__WIRE_PLAN_WORK_BYTES                                                                              \
-    (VEER__WIRE_ALIGN(sizeof(veer_plan)) +                                                                     \
-     VEER__WIRE_ALIGN((size_t)VEER_WIRE_MAX_KNOTS *                                                            \
-                      ((3 + VEER_MAX_MODULES) * sizeof(double) + sizeof(veer_limit_id))) +                     \
-     (size_t)VEER_WIRE_MAX_KNOTS * 3 * sizeof(double))
+    VEER__WIRE_PLAN_BYTES(VEER_PATH_MAX_PIECES, VEER_PATH_MAX_SEGMENTS, VEER_WIRE_MAX_KNOTS, VEER_MAX_MODULES)
+
+/* Where the parts of a decoded plan's workspace are: byte offsets from its
+ * start (the plan struct is at 0). */
+typedef struct {
+    int piece_cap, segment_cap, knot_cap, modules; /* what it is sized for */
+    size_t grid;  /* s, x, t, steer, binding for knot_cap knots (lay_out in wire_plan.c) */
+    size_t xi;    /* 3 doubles per knot */
+    size_t total; /* bytes of the whole (VEER__WIRE_PLAN_BYTES) */
+} veer_wire_plan_layout;
+/* Fills out (may be NULL) for the given room and returns its total. */
+size_t veer__wire_plan_layout(int piece_cap, int segment_cap, int knot_cap, int modules, veer_wire_plan_layout *out);
 /* ... and the decoded message beside it (veer_plan_load_pb). */
 #define VEER__WIRE_WORK_BYTES (VEER__WIRE_PLAN_WORK_BYTES + VEER__WIRE_ALIGN(sizeof(veer_v1_Plan)))
 size_t veer__wire_plan_work_size(void);

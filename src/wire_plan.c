@@ -294,8 +294,10 @@ static veer_status jerk_windows(const veer_v1_Profile *pr, veer_plan *plan, veer
     return VEER_OK;
 }
 
-/* Everything but the profile: versions, drive, limits, route, path. */
-static veer_status load_head(const veer_v1_Plan *m, veer_plan *plan, veer_diag *diag) {
+/* Everything but the profile: versions, drive, limits, route, path. plan
+ * starts a block of VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap) bytes. */
+static veer_status load_head(const veer_v1_Plan *m, veer_plan *plan, int piece_cap, int segment_cap,
+                             veer_diag *diag) {
     if (m->schema_version != VEER_WIRE_SCHEMA_VERSION)
         return veer__fail_plain(diag, VEER_ERR_VERSION,
                                 "plan: schema version %u, this library reads version %d", (unsigned)m->schema_version,
@@ -309,6 +311,7 @@ static veer_status load_head(const veer_v1_Plan *m, veer_plan *plan, veer_diag *
             diag, VEER_ERR_VALUE, "plan: the %s is missing",
             !m->has_drive ? "drive" : !m->has_limits ? "limits" : !m->has_route ? "route" : "profile");
     memset(plan, 0, sizeof *plan);
+    veer__plan_attach(plan, piece_cap, segment_cap);
     veer_status st;
     if ((st = veer__wire_drive_from_pb(&m->drive, &plan->drive, diag))) return st;
     if ((st = veer_drive_check(&plan->drive, diag))) return st;
@@ -357,19 +360,33 @@ static veer_status check_tail(veer_v1_Plan *m, const veer_plan *plan, int check_
     return VEER_OK;
 }
 
+size_t veer__wire_plan_layout(int piece_cap, int segment_cap, int knot_cap, int modules, veer_wire_plan_layout *out) {
+    size_t total = VEER__WIRE_PLAN_BYTES(piece_cap, segment_cap, knot_cap, modules);
+    if (out) {
+        out->piece_cap = piece_cap, out->segment_cap = segment_cap;
+        out->knot_cap = knot_cap, out->modules = modules;
+        out->grid = VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap);
+        out->xi = out->grid + VEER__WIRE_ALIGN(VEER__WIRE_GRID_BYTES(knot_cap, modules));
+        out->total = total;
+    }
+    return total;
+}
+
 static veer_status load(veer_v1_Plan *m, void *work, size_t work_size, veer_plan **out, int check_hash,
                         veer_diag *diag) {
-    if (!work || work_size < VEER__WIRE_PLAN_WORK_BYTES || ((uintptr_t)work % sizeof(double)) != 0)
-        return veer__fail_plain(diag, VEER_ERR_VALUE, "plan workspace: needs %zu bytes aligned for double",
-                                (size_t)VEER__WIRE_PLAN_WORK_BYTES);
+    veer_wire_plan_layout lay; /* for now sized for any plan */
+    size_t need = veer__wire_plan_layout(VEER_PATH_MAX_PIECES, VEER_PATH_MAX_SEGMENTS, VEER_WIRE_MAX_KNOTS,
+                                         VEER_MAX_MODULES, &lay);
+    if (!work || work_size < need || ((uintptr_t)work % sizeof(double)) != 0)
+        return veer__fail_plain(diag, VEER_ERR_VALUE, "plan workspace: needs %zu bytes aligned for double", need);
     veer_plan *plan = (veer_plan *)work;
-    char *grid = (char *)work + VEER__WIRE_ALIGN(sizeof(veer_plan));
-    veer_status st = load_head(m, plan, diag);
+    char *grid = (char *)work + lay.grid;
+    veer_status st = load_head(m, plan, lay.piece_cap, lay.segment_cap, diag);
     int n = 0;
     if (st == VEER_OK) st = parse_profile(&m->profile, &plan->path, NULL, NULL, NULL, &n, diag);
     if (st != VEER_OK) return st;
     lay_out(plan, n, grid);
-    double *xi = (double *)(grid + VEER__WIRE_ALIGN(grid_bytes(VEER_WIRE_MAX_KNOTS, VEER_MAX_MODULES)));
+    double *xi = (double *)((char *)work + lay.xi);
     if ((st = parse_profile(&m->profile, &plan->path, plan->s, plan->x, plan->segs, &n, diag))) return st;
     plan->x_start = m->profile.start_sdot * m->profile.start_sdot;
     if ((st = jerk_windows(&m->profile, plan, diag))) return st;
@@ -390,14 +407,19 @@ veer_status veer__wire_plan_load(veer_v1_Plan *m, void *work, size_t work_size, 
 
 veer_status veer__wire_plan_decode_heap(veer_v1_Plan *m, veer_plan **out, veer_diag *diag) {
     *out = NULL;
-    veer_plan *plan = veer__calloc(1, sizeof *plan);
+    /* one block sized for the message's route (counts beyond the maxima fail in load_head) */
+    int piece_cap, segment_cap;
+    veer__path_caps(m->has_route ? (int)m->route.waypoints_count : 0, m->has_route ? (int)m->route.legs_count : 0,
+                    &piece_cap, &segment_cap);
+    size_t bytes = VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap);
+    veer_plan *plan = veer__calloc(1, bytes);
     if (!plan) return veer__fail_plain(diag, VEER_ERR_NO_MEMORY, "out of memory");
-    veer_status st = load_head(m, plan, diag);
-    plan->alloc_size = sizeof *plan;
+    veer_status st = load_head(m, plan, piece_cap, segment_cap, diag);
+    plan->alloc_size = bytes;
     int n = 0;
     if (st == VEER_OK) st = parse_profile(&m->profile, &plan->path, NULL, NULL, NULL, &n, diag);
     if (st != VEER_OK) {
-        veer__free(plan, sizeof *plan);
+        veer__free(plan, bytes);
         return st;
     }
     size_t gb = grid_bytes(n, plan->module_count), xb = (size_t)n * 3 * sizeof(double);
@@ -406,7 +428,7 @@ veer_status veer__wire_plan_decode_heap(veer_v1_Plan *m, veer_plan **out, veer_d
     if (!grid || !xi) {
         veer__free(grid, gb);
         veer__free(xi, xb);
-        veer__free(plan, sizeof *plan);
+        veer__free(plan, bytes);
         return veer__fail_plain(diag, VEER_ERR_NO_MEMORY, "out of memory");
     }
     lay_out(plan, n, grid);

@@ -13,7 +13,15 @@
 /* path.c opens a new unwrap reference every 2 rad of bearing sweep */
 #define TOWARD_REGION 2.0
 
-static veer_path g_path;
+/* The paths' storage at the library maxima (the path does not own it). The
+ * piece view shares g_path's pieces and has segments of its own. */
+static veer_path_piece g_pieces[VEER_PATH_MAX_PIECES];
+static veer_path_segment g_segments[VEER_PATH_MAX_SEGMENTS];
+static veer_path_segment g_view_segments[VEER_PATH_MAX_SEGMENTS];
+static veer_path g_path = {.pieces = g_pieces,
+                           .piece_cap = VEER_PATH_MAX_PIECES,
+                           .segments = g_segments,
+                           .segment_cap = VEER_PATH_MAX_SEGMENTS};
 static veer_path g_view;
 static veer_diag g_diag;
 
@@ -54,7 +62,9 @@ static void eval(int seg, double s, double q[3], double dq[3], double ddq[3]) {
  * evaluated at its own end (the left limit at a join). */
 static void make_piece_view(void) {
     cr_assert(g_path.piece_count <= VEER_PATH_MAX_SEGMENTS);
-    g_view = g_path;
+    g_view = g_path; /* shares the pieces */
+    g_view.segments = g_view_segments;
+    g_view.segment_cap = VEER_PATH_MAX_SEGMENTS;
     g_view.segment_count = g_path.piece_count;
     for (int j = 0; j < g_path.piece_count; j++) {
         veer_path_segment *sg = &g_view.segments[j];
@@ -1002,6 +1012,62 @@ Test(path_bad_input, null_pointers) {
     cr_expect_eq(veer__path_segment_at(NULL, 1.0), 0);
 }
 
+/* The path builds into the storage its owner attached and refuses, with a
+ * message and an empty path, to write past it. */
+Test(path_bad_input, attached_storage_is_the_limit) {
+    veer_route r = base_route();
+    build_ok(&r);
+    const int pieces = g_path.piece_count, segments = g_path.segment_count;
+    cr_assert_leq(pieces, VEER_PATH_PIECES_FOR(r.waypoint_count, r.leg_count));
+    cr_assert_leq(segments, VEER_PATH_SEGMENTS_FOR(r.waypoint_count, r.leg_count));
+    const double length = g_path.length;
+    static veer_path_piece pc[VEER_PATH_MAX_PIECES + 1];
+    static veer_path_segment sg[VEER_PATH_MAX_SEGMENTS + 1];
+    veer_path p;
+    char want[96];
+    /* exactly the room it needs: the same path */
+    veer__path_attach(&p, pc, pieces, sg, segments);
+    cr_assert_eq(veer__path_build(&r, &p, &g_diag), VEER_OK, "%s", g_diag.message);
+    cr_expect_eq(p.piece_count, pieces);
+    cr_expect_eq(p.segment_count, segments);
+    cr_expect_eq(p.length, length);
+    cr_expect(memcmp(pc, g_path.pieces, (size_t)pieces * sizeof *pc) == 0);
+    /* one piece short; the entry after the room keeps its marker */
+    memset(pc, 0x5a, sizeof pc);
+    veer__path_attach(&p, pc, pieces - 1, sg, segments);
+    cr_assert_eq(veer__path_build(&r, &p, &g_diag), VEER_ERR_CAPACITY);
+    snprintf(want, sizeof want, "the path needs more than %d pieces", pieces - 1);
+    cr_expect(strstr(g_diag.message, want) != NULL, "%s", g_diag.message);
+    cr_expect(p.piece_count == 0 && p.segment_count == 0 && p.length == 0.0);
+    cr_expect(p.pieces == pc && p.piece_cap == pieces - 1, "the storage stays attached");
+    const unsigned char *after = (const unsigned char *)&pc[pieces - 1];
+    for (size_t b = 0; b < sizeof *pc; b++) cr_assert_eq(after[b], 0x5a, "byte %zu past the room written", b);
+    /* one segment short */
+    memset(sg, 0x5a, sizeof sg);
+    veer__path_attach(&p, pc, pieces, sg, segments - 1);
+    cr_assert_eq(veer__path_build(&r, &p, &g_diag), VEER_ERR_CAPACITY);
+    snprintf(want, sizeof want, "the path needs more than %d rest-to-rest segments", segments - 1);
+    cr_expect(strstr(g_diag.message, want) != NULL, "%s", g_diag.message);
+    cr_expect(p.piece_count == 0 && p.segment_count == 0);
+    after = (const unsigned char *)&sg[segments - 1];
+    for (size_t b = 0; b < sizeof *sg; b++) cr_assert_eq(after[b], 0x5a, "byte %zu past the room written", b);
+    /* no storage */
+    veer__path_attach(&p, NULL, 0, NULL, 0);
+    cr_expect_eq(veer__path_build(&r, &p, &g_diag), VEER_ERR_NULL);
+    cr_expect(strstr(g_diag.message, "no storage") != NULL, "%s", g_diag.message);
+}
+
+/* The room veer__path_caps gives: the formulas, clamped to the maxima. */
+Test(path_bad_input, caps_for_a_route) {
+    int pc, sc;
+    veer__path_caps(3, 2, &pc, &sc);
+    cr_expect(pc == 2 * 3 + 2 * 2 + 4 && sc == 2 * 3 + 2, "%d %d", pc, sc);
+    veer__path_caps(-1, 1000, &pc, &sc);
+    cr_expect(pc == VEER_PATH_PIECES_FOR(0, VEER_MAX_LEGS) && sc == VEER_PATH_SEGMENTS_FOR(0, VEER_MAX_LEGS));
+    veer__path_caps(VEER_MAX_WAYPOINTS + 5, VEER_MAX_LEGS, &pc, &sc);
+    cr_expect(pc == VEER_PATH_MAX_PIECES && sc == VEER_PATH_MAX_SEGMENTS);
+}
+
 Test(path_bad_input, diag_cleared_on_success) {
     veer_route r = base_route();
     memset(&g_diag, 0x55, sizeof g_diag);
@@ -1073,6 +1139,9 @@ Test(path_random, never_crash_never_nan) {
             continue;
         }
         ok++;
+        /* the room a route's path needs at most (internal.h) */
+        cr_assert_leq(g_path.piece_count, VEER_PATH_PIECES_FOR(r.waypoint_count, r.leg_count), "trial %d", trial);
+        cr_assert_leq(g_path.segment_count, VEER_PATH_SEGMENTS_FOR(r.waypoint_count, r.leg_count), "trial %d", trial);
         double prev[3] = {r.start_x, r.start_y, r.start_yaw};
         for (int k = 0; k < g_path.segment_count; k++) {
             const veer_path_segment *sg = &g_path.segments[k];

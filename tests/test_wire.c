@@ -1081,6 +1081,82 @@ static void count_free(void *p, size_t size, void *ctx) {
     free(p);
 }
 
+/* An allocator whose fresh memory is full of a pattern, not zero. */
+static void *dirty_alloc(size_t size, void *ctx) {
+    (void)ctx;
+    void *p = malloc(size);
+    if (p) memset(p, 0xA5, size);
+    return p;
+}
+static void dirty_free(void *p, size_t size, void *ctx) {
+    (void)ctx;
+    (void)size;
+    free(p);
+}
+
+/* One plan of sc at grid_points made, encoded, decoded (heap) and encoded
+ * again, and loaded into a workspace whose bytes start as fill: the bytes
+ * of both encodings and samples of the loaded plan. */
+typedef struct {
+    uint8_t *bytes, *again;
+    size_t size, again_size;
+    veer_sample samples[8];
+} fresh_run;
+
+static void fresh_memory_run(const scenario *sc, int grid_points, int fill, fresh_run *r) {
+    veer_diag d;
+    veer_plan_options opt = veer_default_plan_options();
+    opt.grid_points = grid_points;
+    veer_plan *p = NULL, *dec = NULL;
+    cr_assert_eq(veer_plan_create(&sc->drive, &sc->limits, &sc->route, &opt, &p, &d), VEER_OK, "%s", d.message);
+    cr_assert_eq(veer_plan_encode_pb(p, NULL, 0, &r->size, NULL), VEER_ERR_BUFFER);
+    r->bytes = malloc(r->size);
+    cr_assert_eq(veer_plan_encode_pb(p, r->bytes, r->size, &r->size, &d), VEER_OK, "grid %d: %s", grid_points, d.message);
+    cr_assert_eq(veer_plan_decode_pb(r->bytes, r->size, &dec, &d), VEER_OK, "%s", d.message);
+    cr_assert_eq(veer_plan_encode_pb(dec, NULL, 0, &r->again_size, NULL), VEER_ERR_BUFFER);
+    r->again = malloc(r->again_size);
+    cr_assert_eq(veer_plan_encode_pb(dec, r->again, r->again_size, &r->again_size, &d), VEER_OK, "%s", d.message);
+    size_t ws = veer_plan_workspace_size();
+    void *work = aligned_alloc(16, (ws + 15) & ~(size_t)15);
+    memset(work, fill, ws);
+    const veer_plan *lp = NULL;
+    cr_assert_eq(veer_plan_load_pb(r->bytes, r->size, work, ws, &lp, &d), VEER_OK, "%s", d.message);
+    for (int i = 0; i < 8; i++)
+        cr_assert_eq(veer_plan_sample(lp, veer_plan_duration(lp) * i / 7.0, &r->samples[i]), VEER_OK);
+    free(work);
+    veer_plan_destroy(dec);
+    veer_plan_destroy(p);
+}
+
+/* A plan's arrays live behind its struct (plan and decoded plan alike):
+ * the planner, the encoder's trial decodes, the heap decoder and a cart's
+ * workspace must give the same bytes whatever the memory held before. */
+Test(wire_buffers, plans_do_not_depend_on_what_fresh_memory_holds, .timeout = 120) {
+    scenario sc = demo_scenario();
+    static const int grids[] = {1000, 4000};
+    for (int g = 0; g < 2; g++) {
+        fresh_run clean, dirty;
+        fresh_memory_run(&sc, grids[g], 0, &clean);
+        cr_assert_eq(veer_set_allocator(dirty_alloc, dirty_free, NULL), VEER_OK);
+        fresh_memory_run(&sc, grids[g], 0xA5, &dirty);
+        cr_assert_eq(veer_set_allocator(NULL, NULL, NULL), VEER_OK);
+        cr_expect(clean.size == dirty.size && memcmp(clean.bytes, dirty.bytes, clean.size) == 0,
+                  "grid %d: the encoded plan depends on fresh memory", grids[g]);
+        cr_expect(clean.again_size == dirty.again_size && memcmp(clean.again, dirty.again, clean.again_size) == 0,
+                  "grid %d: the re-encoded decoded plan depends on fresh memory", grids[g]);
+        for (int i = 0; i < 8; i++) {
+            const veer_sample *a = &clean.samples[i], *b = &dirty.samples[i];
+            int same = a->phase == b->phase && a->leg == b->leg && a->s == b->s && a->sdot == b->sdot &&
+                       a->sddot == b->sddot && a->module_count == b->module_count;
+            for (int k = 0; k < 3; k++) same = same && a->pose[k] == b->pose[k] && a->twist_body[k] == b->twist_body[k];
+            for (int m = 0; same && m < a->module_count; m++)
+                same = a->modules[m].steer == b->modules[m].steer && a->modules[m].wheel_rate == b->modules[m].wheel_rate;
+            cr_expect(same, "grid %d, sample %d: the loaded plan depends on what its workspace held", grids[g], i);
+        }
+        free(clean.bytes), free(clean.again), free(dirty.bytes), free(dirty.again);
+    }
+}
+
 Test(wire_buffers, sampling_plan_bytes_allocates_nothing_and_nothing_leaks) {
     wire_demo *w = malloc(sizeof *w);
     demo_over_wire(w, demo_scenario(), 0);
