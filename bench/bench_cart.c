@@ -347,6 +347,20 @@ static void seal(const veer_player_def *def, const veer_plan *p, uint64_t id, se
     veer_link_sender_destroy(tx);
 }
 
+/* def with the capacities the plan needs and no more (veer_plan_needs_pb). */
+static veer_player_def fitted(veer_player_def def, const veer_plan *p, veer_plan_needs *need) {
+    static uint8_t bytes[VEER_LINK_MAX_PLAN_BYTES];
+    size_t n;
+    veer_diag diag;
+    if (veer_plan_encode_pb(p, bytes, sizeof bytes, &n, &diag)) DIE("encode: %s", diag.message);
+    if (veer_plan_needs_pb(bytes, n, need, &diag)) DIE("needs: %s", diag.message);
+    def.link.max_plan_bytes = need->plan_bytes < VEER_LINK_MIN_PLAN_BYTES ? VEER_LINK_MIN_PLAN_BYTES : need->plan_bytes;
+    def.max_knots = need->knots;
+    def.max_waypoints = need->waypoints;
+    def.max_legs = need->legs;
+    return def;
+}
+
 static double player_mem[1 << 19]; /* 4 MiB, aligned for double */
 
 /* Arms and starts the plan; returns the player. */
@@ -549,15 +563,47 @@ static int cmd_stack(void) {
     veer_route r;
     if (kestrel_demo(&d, &l, &r) != VEER_OK) DIE("demo");
     veer_plan *p = make_plan(&d, &l, &r, 0);
-    stack_def = cart_def(&d, &l);
+    veer_player_def any = cart_def(&d, &l);
+    veer_plan_needs demo_need, patrol_need;
+    stack_def = fitted(any, p, &demo_need); /* the cart loop runs on a cart sized for the demo */
     seal(&stack_def, p, 1, &stack_plan);
+    /* Arming: the frame that completes the plan (tag, decode, checks), best of 50. */
+    double arm = 1.0;
+    for (int rep = 0; rep < 50; rep++) {
+        veer_player *pl = NULL;
+        veer_diag diag;
+        if (veer_player_init(player_mem, sizeof player_mem, &stack_def, &pl, &diag)) DIE("player: %s", diag.message);
+        veer_player_event ev;
+        for (int k = 0; k < stack_plan.count - 1; k++)
+            if (veer_player_frame(pl, stack_plan.frames[k], stack_plan.sizes[k], 0.0, &ev)) DIE("frame");
+        double t0 = now();
+        int last = stack_plan.count - 1;
+        if (veer_player_frame(pl, stack_plan.frames[last], stack_plan.sizes[last], 0.0, &ev) || !ev.armed)
+            DIE("not armed");
+        double t1 = now();
+        if (t1 - t0 < arm) arm = t1 - t0;
+    }
     veer_plan_destroy(p);
+    veer_drive_def pd;
+    veer_limits pl;
+    veer_route pr;
+    patrol(&pd, &pl, &pr);
+    veer_plan *pp = make_plan(&pd, &pl, &pr, 0);
+    veer_player_def patrol_def = fitted(cart_def(&pd, &pl), pp, &patrol_need);
+    veer_plan_destroy(pp);
     stack_base = aligned_alloc(4096, STACK_BYTES);
     printf("stack_high_water_bytes %zu\n", stack_used(cart_loop));
     /* Part of that is the C library's: the thread's descriptor and TLS sit
      * at the top of the stack it is given. */
     printf("stack_thread_overhead_bytes %zu\n", stack_used(no_loop));
     printf("player_size_bytes %zu\n", veer_player_size());
+    printf("player_size_cart_bytes %zu\n", veer_player_size_for(&any));
+    printf("player_size_demo_bytes %zu plan_bytes %u knots %u waypoints %u legs %u\n", veer_player_size_for(&stack_def),
+           demo_need.plan_bytes, demo_need.knots, demo_need.waypoints, demo_need.legs);
+    printf("player_size_patrol_bytes %zu plan_bytes %u knots %u waypoints %u legs %u\n",
+           veer_player_size_for(&patrol_def), patrol_need.plan_bytes, patrol_need.knots, patrol_need.waypoints,
+           patrol_need.legs);
+    printf("arm_demo_us %.1f\n", arm * 1e6);
     printf("receiver_size_bytes %zu\n", veer_link_receiver_size());
     printf("plan_workspace_bytes %zu\n", veer_plan_workspace_size());
     free(stack_base);

@@ -102,7 +102,8 @@ ratio=$(fig lp_ratio_1000) diff=$(fig lp_diff_1000) scale=$(fig scale_16000_over
 ratio_med=$(fig lp_ratio_1000_median) scale_med=$(fig "(medians:" | tr -d ')') instr=$(fig instr_16000_over_1000)
 p99=$(fig step_p99_us) code=$(fig code_bytes) ram=$(fig ram_bytes)
 code_os=$(fig code_bytes_Os) code_terse=$(fig code_bytes_Os_terse)
-stack=$(fig stack_high_water_bytes) mem=$(fig player_size_bytes)
+stack=$(fig stack_high_water_bytes) mem=$(fig player_size_demo_bytes)
+mem_patrol=$(fig player_size_patrol_bytes) mem_cart=$(fig player_size_cart_bytes) mem_any=$(fig player_size_bytes)
 ok() { awk "BEGIN {print ($1) ? 1 : 0}"; }
 m7=$(fig code_bytes_m7) m7_terse=$(fig code_bytes_m7_terse)
 kib() { awk "BEGIN {printf \"%.1f\", $1 / 1024}"; }
@@ -131,7 +132,7 @@ fi
     echo "| time linear in N: 16000 grid points cost at most 20 times 1000 | $scale times (best runs; medians: $scale_med; instructions: $instr) | $(verdict "$(ok "$scale <= 20")") |"
     echo "| player step under 1 us for a 4-module cart | mean $step us, 99th percentile $p99 us | $(verdict "$(ok "$step < 1")") |"
     echo "| receiver + player + decoder under 48 KiB of code | $code_row | $(verdict "$code_ok") |"
-    echo "| ... and under 16 KiB of RAM | static $ram B; stack high-water $stack B; player memory (caller's) $mem B | $(verdict "$(ok "$ram + $stack + $mem < 16384")") (static RAM alone: $(verdict "$(ok "$ram < 16384")")) |"
+    echo "| ... and under 16 KiB of RAM | static $ram B; stack high-water $stack B; player memory (caller's) for a cart sized for the demo plan $mem B (for the 5-minute patrol $mem_patrol B; for any plan on 4 modules $mem_cart B) | $(verdict "$(ok "$ram + $stack + $mem < 16384")") (static RAM alone: $(verdict "$(ok "$ram < 16384")")) |"
     echo
     for part in lp scaling instr player size size_os size_os_terse size_m7 size_m7_terse; do
         sed '/^summary /d' "$OUT/$part.md"
@@ -140,9 +141,13 @@ fi
     echo "### Cart-side memory"
     echo
     awk '
-        /stack_high_water_bytes/ {printf "- stack high-water mark of the cart loop (frames, 30 s of 50 Hz steps, reports): %d B (%.1f KiB)\n", $2, $2 / 1024}
+        /stack_high_water_bytes/ {printf "- stack high-water mark of the cart loop (a cart sized for the demo plan: frames, 30 s of 50 Hz steps, reports): %d B (%.1f KiB)\n", $2, $2 / 1024}
         /stack_thread_overhead_bytes/ {printf "  (of which %d B are the C library'"'"'s: the same measure for a thread that returns at once)\n", $2}
-        /player_size_bytes/ {printf "- veer_player_size(): %d B (%.1f KiB), memory the caller gives the player (a plan workspace, a copy of the armed plan bytes and the receiver)\n", $2, $2 / 1024}
+        /player_size_bytes/ {printf "- veer_player_size(): %d B (%.1f KiB), the memory a player for any plan on 8 modules needs (a plan workspace, a copy of the armed plan bytes and the receiver; the caller gives it)\n", $2, $2 / 1024}
+        /player_size_cart_bytes/ {printf "- veer_player_size_for() the demo cart (4 modules) for any plan: %d B (%.1f KiB)\n", $2, $2 / 1024}
+        /player_size_demo_bytes/ {printf "- ... sized for the demo plan (%d plan bytes, %d knots, %d waypoints, %d legs): %d B (%.1f KiB)\n", $4, $6, $8, $10, $2, $2 / 1024}
+        /player_size_patrol_bytes/ {printf "- ... sized for the 5-minute patrol (%d plan bytes, %d knots, %d waypoints, %d legs): %d B (%.1f KiB)\n", $4, $6, $8, $10, $2, $2 / 1024}
+        /arm_demo_us/ {printf "- arming the demo plan (the frame that completes it: tag, decode, checks), best of 50: %.1f us\n", $2}
         /receiver_size_bytes/ {printf "- veer_link_receiver_size(): %d B (%.1f KiB)\n", $2, $2 / 1024}
         /plan_workspace_bytes/ {printf "- veer_plan_workspace_size(): %d B (%.1f KiB); veer_plan_sample_pb puts one on the stack\n", $2, $2 / 1024}' "$OUT/stack.txt"
     echo

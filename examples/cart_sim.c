@@ -200,7 +200,7 @@ int main(int argc, char **argv) {
         return 2;
     }
     if (read_key(key_path, def.link.key) != 0) return fail("the key file must hold 64 hex digits");
-    size_t mem_size = veer_player_size();
+    size_t mem_size = veer_player_size_for(&def); /* sized by the config's capacities */
     void *mem = aligned_alloc(16, (mem_size + 15) / 16 * 16);
     if (!mem) return fail("out of memory");
     veer_player *player = NULL;
@@ -346,6 +346,7 @@ int main(int argc, char **argv) {
                 veer_link_reason_name(rep.last_rejection));
         fprintf(f, "  \"plan_id\": %llu,\n  \"accepted_plan_id\": %llu,\n", (unsigned long long)rep.plan_id,
                 (unsigned long long)rep.accepted_plan_id);
+        fprintf(f, "  \"player_memory_bytes\": %zu,\n", mem_size);
         fprintf(f, "  \"pose\": [%.9f, %.9f, %.9f],\n", pose[0], pose[1], pose[2]);
         fprintf(f, "  \"reported_pose\": [%.9f, %.9f, %.9f],\n", rep.pose[0], rep.pose[1], rep.pose[2]);
         fprintf(f, "  \"plan_end_pose\": [%.9f, %.9f, %.9f],\n", end.pose[0], end.pose[1], end.pose[2]);

@@ -9,14 +9,16 @@ examples/cart_sim), starts it and watches the cart until it stands.
                       [--hold-stopped S] [--deliver-only] [--summary FILE]
                       [--timeout S]
     ground_station.py --write-cart-config FILE [--cart 4] [--scenario FILE]
-                      [--frame-size 255] [--link-timeout S]
+                      [--frame-size 255] [--link-timeout S] [--fit-cart]
 
 The scenario defaults to examples/scenarios/*demo*.json. --lose-link-after S
 goes silent S seconds after the start (a lost link: the cart must stop on
 its own); --hold-stopped S keeps heartbeats going for S seconds after the
 stop, tries a START of the same plan again, and checks that the cart stays
 stopped. --write-cart-config writes the CartConfig (drive, limits, cart
-name) a cart with this scenario's drive is set up with, and exits. It
+name) a cart with this scenario's drive is set up with, and exits; with
+--fit-cart the cart is sized for this scenario's plan (its bytes, knots,
+waypoints and legs: the least cart memory, any larger plan refused). It
 prints the frames and bytes it put on the air; the summary (JSON) has them
 by kind, the plan's end pose and the cart's last report.
 
@@ -66,6 +68,7 @@ def main(argv=None):
     ap.add_argument("--deliver-only", action="store_true", help="stop once the cart has armed the plan")
     ap.add_argument("--write-cart-config")
     ap.add_argument("--link-timeout", type=float, default=1.0)
+    ap.add_argument("--fit-cart", action="store_true", help="size the cart config for this scenario's plan")
     ap.add_argument("--heartbeat-period", type=float, default=0.1)
     a = ap.parse_args(argv)
 
@@ -74,7 +77,8 @@ def main(argv=None):
     data = plan.to_bytes()
     if a.write_cart_config:
         with open(a.write_cart_config, "wb") as f:
-            f.write(vl.cart_config(plan.request, a.cart, a.frame_size, a.link_timeout))
+            cap = vl.cart_capacity(data) if a.fit_cart else {}
+            f.write(vl.cart_config(plan.request, a.cart, a.frame_size, a.link_timeout, **cap))
         return 0
     if not a.to or not a.key_file:
         ap.error("--to and --key-file are needed to talk to a cart")

@@ -58,6 +58,10 @@ veer_status veer_link_def_check(const veer_link_def *def, veer_diag *diag) {
     uint8_t any = 0;
     for (int i = 0; i < VEER_LINK_KEY_BYTES; i++) any |= def->key[i];
     if (!any) return LINK_FAIL(diag, VEER_ERR_VALUE, "link key is all zero: set the cart's pre-shared key");
+    if (def->max_plan_bytes != 0 &&
+        (def->max_plan_bytes < VEER_LINK_MIN_PLAN_BYTES || def->max_plan_bytes > VEER_LINK_MAX_PLAN_BYTES))
+        return LINK_FAIL(diag, VEER_ERR_VALUE, "link max_plan_bytes %u is outside %d..%d bytes (0: the largest)",
+                         (unsigned)def->max_plan_bytes, VEER_LINK_MIN_PLAN_BYTES, VEER_LINK_MAX_PLAN_BYTES);
     veer__diag_ok(diag);
     return VEER_OK;
 }
@@ -224,9 +228,9 @@ veer_status veer_link_sender_create(const veer_link_def *def, uint64_t plan_id, 
     veer_status st = veer_link_def_check(def, diag);
     if (st != VEER_OK) return st;
     if (!plan) return LINK_FAIL(diag, VEER_ERR_NULL, "plan bytes are NULL");
-    if (plan_size == 0 || plan_size > VEER_LINK_MAX_PLAN_BYTES)
-        return LINK_FAIL(diag, VEER_ERR_CAPACITY, "plan of %zu bytes: the link carries 1..%d bytes", plan_size,
-                         VEER_LINK_MAX_PLAN_BYTES);
+    if (plan_size == 0 || plan_size > veer__link_max_plan(def))
+        return LINK_FAIL(diag, VEER_ERR_CAPACITY, "plan of %zu bytes: the link carries 1..%u bytes%s", plan_size,
+                         (unsigned)veer__link_max_plan(def), def->max_plan_bytes ? " (the cart's max_plan_bytes)" : "");
     if (plan_id == 0) return LINK_FAIL(diag, VEER_ERR_VALUE, "plan_id 0 is never accepted: counters start at 1");
     uint32_t sealed = (uint32_t)plan_size + VEER_LINK_PLAN_TAG_BYTES, count = 0, chunk = 0;
     if (!veer__link_chunking(def->cart, plan_id, sealed, def->frame_size, &count, &chunk))

@@ -11,8 +11,10 @@
 #include "veer/player.h"
 #include "veer/v1/link.pb.h"
 
-/* Bytes of a sealed plan at most: Plan bytes and the plan tag. */
-#define VEER__LINK_MAX_SEALED (VEER_LINK_MAX_PLAN_BYTES + VEER_LINK_PLAN_TAG_BYTES)
+/* Plan bytes a link's cart takes at most (max_plan_bytes, 0: the largest). */
+static inline uint32_t veer__link_max_plan(const veer_link_def *def) {
+    return def->max_plan_bytes ? def->max_plan_bytes : (uint32_t)VEER_LINK_MAX_PLAN_BYTES;
+}
 /* Encoded tag field at a frame's end: key 15 / wire type 2, length 16, tag. */
 #define VEER__LINK_TAG_FIELD_BYTES (2 + VEER_LINK_FRAME_TAG_BYTES)
 
@@ -74,7 +76,8 @@ struct veer_link_receiver {
     uint32_t last_count;
     int last_verdict;
     uint32_t counts[VEER_LINK_REASON_COUNT];
-    uint8_t buf[VEER__LINK_MAX_SEALED];
+    uint32_t capacity;          /* sealed bytes buf holds: max_plan_bytes + tag */
+    uint8_t buf[];              /* [capacity] the plan in reassembly */
 };
 
 /* Sets up a receiver in place (def already checked). */

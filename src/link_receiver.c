@@ -4,7 +4,7 @@
  * heap; per frame: one CRC and decode of at most VEER_LINK_FRAME_MAX bytes,
  * one copy of at most that many, bitmap work of at most
  * VEER_LINK_MAX_CHUNKS / 8 bytes; the frame that completes a plan adds one
- * HMAC over at most VEER_LINK_MAX_PLAN_BYTES bytes.
+ * HMAC over at most the link's max_plan_bytes.
  * SPDX-License-Identifier: MIT */
 #include <string.h>
 #include "link_internal.h"
@@ -19,12 +19,23 @@ _Static_assert(sizeof(((veer_v1_PlanChunk *)0)->data.bytes) >= VEER_LINK_FRAME_M
 _Static_assert(sizeof(((veer_v1_GapReport *)0)->missing.bytes) == VEER_LINK_MAX_CHUNKS / 8,
                "link.options: GapReport.missing");
 
-size_t veer_link_receiver_size(void) { return sizeof(veer_link_receiver); }
+#define ALIGN16(n) (((size_t)(n) + 15u) & ~(size_t)15u)
+
+size_t veer_link_receiver_size_for(const veer_link_def *def) {
+    if (!def) return 0;
+    return ALIGN16(sizeof(veer_link_receiver) + veer__link_max_plan(def) + VEER_LINK_PLAN_TAG_BYTES);
+}
+
+size_t veer_link_receiver_size(void) {
+    veer_link_def d = veer_default_link_def();
+    return veer_link_receiver_size_for(&d);
+}
 
 void veer__link_receiver_setup(veer_link_receiver *rx, const veer_link_def *def, uint64_t accepted,
                                uint64_t command_seq) {
     memset(rx, 0, offsetof(veer_link_receiver, buf));
     rx->def = *def;
+    rx->capacity = veer__link_max_plan(def) + VEER_LINK_PLAN_TAG_BYTES;
     rx->accepted = accepted;
     rx->command_seq = command_seq;
     rx->last_verdict = VEER_LINK_NONE;
@@ -35,11 +46,12 @@ veer_status veer_link_receiver_init(void *memory, size_t size, const veer_link_d
     if (!out) return LINK_FAIL(diag, VEER_ERR_NULL, "out is NULL");
     *out = NULL;
     if (!memory) return LINK_FAIL(diag, VEER_ERR_NULL, "receiver memory is NULL");
-    if (size < sizeof(veer_link_receiver) || ((uintptr_t)memory % sizeof(double)) != 0)
-        return LINK_FAIL(diag, VEER_ERR_VALUE, "receiver memory: needs %zu bytes aligned for double",
-                         sizeof(veer_link_receiver));
     veer_status st = veer_link_def_check(def, diag);
     if (st != VEER_OK) return st;
+    if (size < veer_link_receiver_size_for(def) || ((uintptr_t)memory % sizeof(double)) != 0)
+        return LINK_FAIL(diag, VEER_ERR_VALUE,
+                         "receiver memory: needs %zu bytes aligned for double (veer_link_receiver_size_for())",
+                         veer_link_receiver_size_for(def));
     veer_link_receiver *rx = memory;
     veer__link_receiver_setup(rx, def, accepted_plan_id, command_seq);
     *out = rx;
@@ -58,13 +70,26 @@ static void drop(veer_link_receiver *rx) {
 static int take_chunk(veer_link_receiver *rx, const veer_v1_PlanChunk *c, veer_link_event *ev) {
     ev->plan_id = c->plan_id;
     if (c->plan_id == 0 || c->count == 0 || c->count > VEER_LINK_MAX_CHUNKS ||
-        c->sealed_size <= VEER_LINK_PLAN_TAG_BYTES || c->sealed_size > VEER__LINK_MAX_SEALED ||
-        c->index >= c->count)
+        c->sealed_size <= VEER_LINK_PLAN_TAG_BYTES ||
+        c->sealed_size > VEER_LINK_MAX_PLAN_BYTES + VEER_LINK_PLAN_TAG_BYTES || c->index >= c->count)
         return VEER_LINK_CHUNK_RANGE;
     uint32_t d = veer__link_chunk_bytes(c->count, c->sealed_size);
     if (!d || d > (uint32_t)rx->def.frame_size ||
         c->data.size != veer__link_chunk_length(c->index, c->count, c->sealed_size))
         return VEER_LINK_CHUNK_RANGE;
+    if (c->sealed_size > rx->capacity) {
+        /* A plan larger than this cart takes: say so in the gap report (as
+         * a settled plan's verdict) so the ground station stops sending it,
+         * unless another plan is coming in. Nothing else changes. */
+        if (c->plan_id <= rx->accepted) return VEER_LINK_REPLAY;
+        if (!rx->active) {
+            rx->last_plan_id = c->plan_id;
+            rx->last_count = c->count;
+            rx->last_verdict = VEER_LINK_CAPACITY;
+            ev->gaps_due = 1;
+        }
+        return VEER_LINK_CAPACITY;
+    }
     /* The plan the cart settled last: tell the ground station again (a plan
      * whose tag failed may come again: it starts over below). */
     if (!rx->active && rx->last_plan_id && c->plan_id == rx->last_plan_id && rx->last_verdict != VEER_LINK_PLAN_TAG) {

@@ -289,7 +289,8 @@ double veer__steer_near(double dir, double ref);
  * module angles in from[], choosing for each module the shorter steer motion
  * or the reverse choice its steer range allows; fills the segment's
  * re-steer phase. xi holds the body twist per unit sdot (3 per point) at
- * the segment's grid points. VEER_ERR_INFEASIBLE with diag when a module would leave
+ * the segment's grid points, or is NULL: computed from the path at each
+ * (a decoded plan keeps no such array). VEER_ERR_INFEASIBLE with diag when a module would leave
  * its steer range. */
 veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, const double *xi, veer_diag *diag);
 

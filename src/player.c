@@ -31,8 +31,10 @@ struct veer_player {
     int state, stop_reason, last_rejection;
     uint64_t plan_id;          /* armed, running or last plan */
     const veer_plan *plan;     /* in work; NULL before the first */
-    unsigned char *work;       /* the plan workspace */
-    uint8_t *armed;            /* [VEER_LINK_MAX_PLAN_BYTES] the bytes plan was decoded from */
+    veer__plan_cap cap;        /* the largest plan the cart takes */
+    unsigned char *work;       /* the plan workspace, work_size bytes */
+    size_t work_size;
+    uint8_t *armed;            /* [link max_plan_bytes] the bytes plan was decoded from */
     size_t armed_size;
     double last_now;           /* latest time a call saw (the clock must not go back) */
     int seen_time;
@@ -43,7 +45,7 @@ struct veer_player {
     double s, sdot, sddot, stop_clock, stop_t0, stop_clock0;
     veer_sample last;          /* latest output */
     uint32_t report_seq;
-    veer_link_receiver rx;
+    veer_link_receiver *rx;    /* in the player's memory, after the armed plan's bytes */
 };
 
 /* ---- names -------------------------------------------------------------- */
@@ -130,8 +132,40 @@ veer_player_def veer_default_player_def(void) {
     return d;
 }
 
+/* The decoded-plan capacity of def (0 when a capacity is out of range). */
+static int plan_cap(const veer_player_def *def, veer__plan_cap *cap) {
+    int modules = veer_drive_module_count(&def->drive);
+    if (modules <= 0 || def->max_knots > VEER_WIRE_MAX_KNOTS || def->max_waypoints > VEER_MAX_WAYPOINTS ||
+        def->max_legs > VEER_MAX_LEGS)
+        return 0;
+    cap->modules = modules;
+    cap->knots = def->max_knots ? (int)def->max_knots : VEER_WIRE_MAX_KNOTS;
+    cap->waypoints = def->max_waypoints ? (int)def->max_waypoints : VEER_MAX_WAYPOINTS;
+    cap->legs = def->max_legs ? (int)def->max_legs : VEER_MAX_LEGS;
+    return 1;
+}
+
+/* The player's memory: the struct, the plan workspace, the armed plan's
+ * bytes, the receiver. */
+static size_t layout(const veer_player_def *def, const veer__plan_cap *cap, size_t *work, size_t *armed) {
+    *work = ALIGN16(veer__wire_work_bytes_for(cap));
+    *armed = ALIGN16(veer__link_max_plan(&def->link));
+    return ALIGN16(sizeof(veer_player)) + *work + *armed + veer_link_receiver_size_for(&def->link);
+}
+
+size_t veer_player_size_for(const veer_player_def *def) {
+    veer__plan_cap cap;
+    size_t work, armed;
+    uint32_t mp = def ? def->link.max_plan_bytes : 0;
+    if (!def || !plan_cap(def, &cap) || (mp && (mp < VEER_LINK_MIN_PLAN_BYTES || mp > VEER_LINK_MAX_PLAN_BYTES)))
+        return 0;
+    return layout(def, &cap, &work, &armed);
+}
+
 size_t veer_player_size(void) {
-    return ALIGN16(sizeof(veer_player)) + ALIGN16(veer_plan_workspace_size()) + ALIGN16(VEER_LINK_MAX_PLAN_BYTES);
+    veer_player_def d = veer_default_player_def();
+    d.drive.module_count = VEER_MAX_MODULES;
+    return veer_player_size_for(&d);
 }
 
 /* The body at rest: the latest pose, zero rates, steer angles held. */
@@ -151,13 +185,20 @@ veer_status veer_player_init(void *memory, size_t size, const veer_player_def *d
     if (!out) return PLAYER_FAIL(diag, VEER_ERR_NULL, "out is NULL");
     *out = NULL;
     if (!memory || !def) return PLAYER_FAIL(diag, VEER_ERR_NULL, "%s is NULL", !memory ? "memory" : "def");
-    if (size < veer_player_size() || ((uintptr_t)memory % sizeof(double)) != 0)
-        return PLAYER_FAIL(diag, VEER_ERR_VALUE, "player memory: needs %zu bytes aligned for double "
-                                                 "(veer_player_size())",
-                           veer_player_size());
     veer_status st;
     if ((st = veer_link_def_check(&def->link, diag))) return st;
     if ((st = veer_drive_check(&def->drive, diag))) return st;
+    veer__plan_cap cap;
+    if (!plan_cap(def, &cap))
+        return PLAYER_FAIL(diag, VEER_ERR_VALUE,
+                           "capacity: max_knots %u, max_waypoints %u, max_legs %u: at most %d, %d, %d (0: the most)",
+                           (unsigned)def->max_knots, (unsigned)def->max_waypoints, (unsigned)def->max_legs,
+                           VEER_WIRE_MAX_KNOTS, VEER_MAX_WAYPOINTS, VEER_MAX_LEGS);
+    size_t work_size, armed_size, need = layout(def, &cap, &work_size, &armed_size);
+    if (size < need || ((uintptr_t)memory % sizeof(double)) != 0)
+        return PLAYER_FAIL(diag, VEER_ERR_VALUE, "player memory: needs %zu bytes aligned for double "
+                                                 "(veer_player_size_for())",
+                           need);
     if ((st = veer__limits_check(&def->drive, &def->limits, diag))) return st;
     if (!memchr(def->cart_name, 0, sizeof def->cart_name) || !veer__wire_utf8_ok(def->cart_name))
         return PLAYER_FAIL(diag, VEER_ERR_VALUE, "cart_name must be UTF-8 of at most %zu bytes",
@@ -168,8 +209,9 @@ veer_status veer_player_init(void *memory, size_t size, const veer_player_def *d
     if ((st = config_hashes(&def->drive, &def->limits, dh, lh)))
         return PLAYER_FAIL(diag, st, "the cart's drive and limits do not encode");
     veer_player *p = memory;
-    memset(p, 0, offsetof(veer_player, rx));
+    memset(p, 0, sizeof *p);
     p->memory_size = size;
+    p->cap = cap;
     p->def = *def;
     memcpy(p->drive_hash, dh, 32);
     memcpy(p->limits_hash, lh, 32);
@@ -179,12 +221,14 @@ veer_status veer_player_init(void *memory, size_t size, const veer_player_def *d
     p->last_rejection = VEER_LINK_NONE;
     unsigned char *base = (unsigned char *)memory + ALIGN16(sizeof(veer_player));
     p->work = base;
-    p->armed = base + ALIGN16(veer_plan_workspace_size());
+    p->work_size = work_size;
+    p->armed = base + work_size;
+    p->rx = (veer_link_receiver *)(p->armed + armed_size);
     memset(&p->last, 0, sizeof p->last);
     p->last.module_count = p->module_count;
     p->last.leg = -1;
     rest_sample(&p->last);
-    veer__link_receiver_setup(&p->rx, &def->link, def->accepted_plan_id, def->command_seq);
+    veer__link_receiver_setup(p->rx, &def->link, def->accepted_plan_id, def->command_seq);
     *out = p;
     veer__diag_ok(diag);
     return VEER_OK;
@@ -327,9 +371,9 @@ static int plan_names_other_cart(const uint8_t *bytes, size_t size, const char *
 static int load(veer_player *p, const uint8_t *bytes, size_t size, const veer_plan **out) {
     const veer_plan *plan = NULL;
     *out = NULL;
-    if (veer_plan_load_pb(bytes, size, p->work, ALIGN16(veer_plan_workspace_size()), &plan, NULL) != VEER_OK ||
-        !plan)
-        return VEER_LINK_DECODE;
+    veer_status st = veer__wire_load_pb_cap(bytes, size, p->work, p->work_size, &p->cap, &plan, NULL);
+    if (st == VEER_ERR_CAPACITY) return VEER_LINK_CAPACITY;
+    if (st != VEER_OK || !plan) return VEER_LINK_DECODE;
     if (plan_names_other_cart(bytes, size, p->def.cart_name)) return VEER_LINK_CART_NAME;
     uint8_t dh[32], lh[32];
     if (config_hashes(&plan->drive, &plan->limits, dh, lh) != VEER_OK) return VEER_LINK_DECODE;
@@ -343,10 +387,10 @@ static int arm(veer_player *p, double now) {
     const uint8_t *bytes;
     size_t size;
     uint64_t id;
-    if (veer_link_receiver_plan(&p->rx, &bytes, &size, &id) != VEER_OK) return VEER_LINK_STATE;
+    if (veer_link_receiver_plan(p->rx, &bytes, &size, &id) != VEER_OK) return VEER_LINK_STATE;
     if (p->state == VEER_PLAYER_RUNNING || p->state == VEER_PLAYER_STOPPING) return VEER_LINK_BUSY;
     if (p->state == VEER_PLAYER_FAULT) return VEER_LINK_STATE;
-    if (size > VEER_LINK_MAX_PLAN_BYTES) return VEER_LINK_DECODE; /* the receiver takes no larger plan */
+    if (size > veer__link_max_plan(&p->def.link)) return VEER_LINK_CAPACITY; /* the receiver takes no larger plan */
     const veer_plan *plan;
     int verdict = load(p, bytes, size, &plan);
     if (verdict != VEER_LINK_NONE) {
@@ -414,12 +458,12 @@ veer_status veer_player_frame(veer_player *p, const uint8_t *frame, size_t size,
     veer_player_event e;
     memset(&e, 0, sizeof e);
     if (watchdog(p, now)) e.stopped = 1;
-    veer_status st = veer_link_receive(&p->rx, frame, size, &e.link);
+    veer_status st = veer_link_receive(p->rx, frame, size, &e.link);
     if (st != VEER_OK) return st; /* cannot happen: every ready plan is settled below */
     e.reason = e.link.reason;
     if (e.link.plan_ready) {
         int verdict = arm(p, now);
-        st = veer_link_receiver_settle(&p->rx, verdict);
+        st = veer_link_receiver_settle(p->rx, verdict);
         (void)st; /* the plan is ready and the verdict a valid reason */
         e.reason = verdict;
         e.armed = verdict == VEER_LINK_NONE;
@@ -482,8 +526,8 @@ veer_status veer_player_status(const veer_player *p, veer_link_report *out) {
     r.leg = p->plan ? p->last.leg : -1;
     r.stop_reason = p->stop_reason;
     r.last_rejection = p->last_rejection;
-    r.accepted_plan_id = p->rx.accepted;
-    r.command_seq = p->rx.command_seq;
+    r.accepted_plan_id = p->rx->accepted;
+    r.command_seq = p->rx->command_seq;
     for (int k = 0; k < 3; k++) r.pose[k] = p->last.pose[k];
     r.report_seq = p->report_seq;
     *out = r;
@@ -513,8 +557,8 @@ veer_status veer_player_report_pb(const veer_player *p, uint8_t *out, size_t cap
 
 veer_status veer_player_gap_frame(const veer_player *p, uint8_t *out, size_t capacity, size_t *size) {
     if (!p) return VEER_ERR_NULL;
-    return veer_link_gap_frame(&p->rx, out, capacity, size);
+    return veer_link_gap_frame(p->rx, out, capacity, size);
 }
 
 const veer_plan *veer_player_plan(const veer_player *p) { return p ? p->plan : NULL; }
-const veer_link_receiver *veer_player_receiver(const veer_player *p) { return p ? &p->rx : NULL; }
+const veer_link_receiver *veer_player_receiver(const veer_player *p) { return p ? p->rx : NULL; }

@@ -34,6 +34,10 @@ veer_status veer_player_def_from_pb(const uint8_t *config, size_t size, veer_pla
                                     (unsigned)m.frame_size, VEER_LINK_FRAME_MAX);
         d.link.frame_size = (int)m.frame_size;
     }
+    d.link.max_plan_bytes = m.max_plan_bytes;
+    d.max_knots = m.max_knots;
+    d.max_waypoints = m.max_waypoints;
+    d.max_legs = m.max_legs;
     *out = d;
     veer__diag_ok(diag);
     return VEER_OK;

@@ -58,7 +58,7 @@ static int follow(veer_plan *plan, int j, int i, const double *xi, double a0, do
     for (int k = sg->k0; k <= sg->k1; k++) {
         if (k > sg->k0) {
             double d = 0.0;
-            int h = dir_of(&plan->drive, i, xi + 3 * (k - sg->k0), &d);
+            int h = xi ? dir_of(&plan->drive, i, xi + 3 * (k - sg->k0), &d) : module_dir(plan, j, i, plan->s[k], &d);
             track(plan, j, i, plan->s[k - 1], plan->s[k], h, d, &ref, 0);
         }
         if (ref < lo - 1e-9 || ref > hi + 1e-9) {

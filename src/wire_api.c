@@ -134,16 +134,33 @@ size_t veer_plan_reply_size_bound(int grid_points) {
 /* ---- Plan bytes -> plan ------------------------------------------------- */
 
 /* The workspace of veer_plan_load_pb: plan first, decoded message behind it. */
-static veer_status load_pb(const uint8_t *bytes, size_t size, void *work, size_t work_size, veer_plan **out,
-                           veer_diag *diag) {
-    if (!work || work_size < VEER__WIRE_WORK_BYTES || ((uintptr_t)work % sizeof(double)) != 0)
+size_t veer__wire_work_bytes_for(const veer__plan_cap *cap) {
+    return VEER__WIRE_ALIGN(veer__wire_plan_bytes_for(cap)) + VEER__WIRE_ALIGN(sizeof(veer_v1_Plan));
+}
+
+static veer_status load_pb(const uint8_t *bytes, size_t size, void *work, size_t work_size,
+                           const veer__plan_cap *cap, veer_plan **out, veer_diag *diag) {
+    veer__plan_cap max = veer__plan_cap_max();
+    if (!cap) cap = &max;
+    size_t need = veer__wire_work_bytes_for(cap), at = VEER__WIRE_ALIGN(veer__wire_plan_bytes_for(cap));
+    if (!work || work_size < need || ((uintptr_t)work % sizeof(double)) != 0)
         return veer__fail_plain(diag, VEER_ERR_VALUE,
                                 "plan workspace: needs %zu bytes aligned for double (veer_plan_workspace_size())",
-                                (size_t)VEER__WIRE_WORK_BYTES);
-    veer_v1_Plan *m = (veer_v1_Plan *)((char *)work + VEER__WIRE_PLAN_WORK_BYTES);
+                                need);
+    veer_v1_Plan *m = (veer_v1_Plan *)((char *)work + at);
     veer_status st = veer__wire_decode(veer_v1_Plan_fields, m, bytes, size, "plan", diag);
     if (st != VEER_OK) return st;
-    return veer__wire_plan_load(m, work, VEER__WIRE_PLAN_WORK_BYTES, out, diag);
+    return veer__wire_plan_load(m, work, at, cap, out, diag);
+}
+
+veer_status veer__wire_load_pb_cap(const uint8_t *bytes, size_t size, void *work, size_t work_size,
+                                   const veer__plan_cap *cap, const veer_plan **out, veer_diag *diag) {
+    veer__diag_ok(diag);
+    *out = NULL;
+    veer_plan *p = NULL;
+    veer_status st = load_pb(bytes, size, work, work_size, cap, &p, diag);
+    if (st == VEER_OK) *out = p;
+    return st;
 }
 
 veer_status veer_plan_load_pb(const uint8_t *plan, size_t plan_size, void *work, size_t work_size,
@@ -152,7 +169,7 @@ veer_status veer_plan_load_pb(const uint8_t *plan, size_t plan_size, void *work,
     if (!out) return veer__fail_plain(diag, VEER_ERR_NULL, "out is NULL");
     *out = NULL;
     veer_plan *p = NULL;
-    veer_status st = load_pb(plan, plan_size, work, work_size, &p, diag);
+    veer_status st = load_pb(plan, plan_size, work, work_size, NULL, &p, diag);
     if (st == VEER_OK) *out = p;
     return st;
 }
@@ -166,7 +183,7 @@ veer_status veer_plan_sample_pb(const uint8_t *plan, size_t plan_size, double t,
         unsigned char bytes[VEER__WIRE_WORK_BYTES];
     } work;
     veer_plan *p = NULL;
-    veer_status st = load_pb(plan, plan_size, &work, sizeof work, &p, NULL);
+    veer_status st = load_pb(plan, plan_size, &work, sizeof work, NULL, &p, NULL);
     if (st != VEER_OK) return st;
     return veer_plan_sample(p, t, out);
 }
@@ -238,7 +255,7 @@ veer_status veer_plan_table_pb(const uint8_t *plan, size_t plan_size, double rat
     void *work = veer__alloc(wb);
     if (!work) return VEER_ERR_NO_MEMORY;
     veer_plan *p = NULL;
-    veer_status st = load_pb(plan, plan_size, work, wb, &p, NULL);
+    veer_status st = load_pb(plan, plan_size, work, wb, NULL, &p, NULL);
     size_t rows = 0;
     if (st == VEER_OK) {
         st = veer_plan_table(p, rate_hz, NULL, 0, &rows);
@@ -248,7 +265,7 @@ veer_status veer_plan_table_pb(const uint8_t *plan, size_t plan_size, double rat
         veer__free(work, wb);
         return st;
     }
-    const veer_v1_Plan *m = (const veer_v1_Plan *)((char *)work + VEER__WIRE_PLAN_WORK_BYTES);
+    const veer_v1_Plan *m = (const veer_v1_Plan *)((char *)work + VEER__WIRE_ALIGN(VEER__WIRE_PLAN_WORK_BYTES));
     int M = p->module_count;
     /* Sizes. */
     size_t module_body = 0;
@@ -310,5 +327,23 @@ veer_status veer_plan_table_pb(const uint8_t *plan, size_t plan_size, double rat
         }
     }
     veer__free(work, wb);
+    return VEER_OK;
+}
+
+/* ---- what a cart needs ---------------------------------------------------- */
+
+veer_status veer_plan_needs_pb(const uint8_t *plan, size_t plan_size, veer_plan_needs *out, veer_diag *diag) {
+    if (!out) return veer__fail_plain(diag, VEER_ERR_NULL, "out is NULL");
+    veer_plan *p = NULL;
+    veer_status st = veer_plan_decode_pb(plan, plan_size, &p, diag);
+    if (st != VEER_OK) return st;
+    veer_plan_needs n;
+    n.plan_bytes = (uint32_t)plan_size;
+    n.knots = (uint32_t)p->n;
+    n.waypoints = (uint32_t)p->route.waypoint_count;
+    n.legs = (uint32_t)p->route.leg_count;
+    n.modules = (uint32_t)p->module_count;
+    veer_plan_destroy(p);
+    *out = n;
     return VEER_OK;
 }

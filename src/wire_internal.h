@@ -97,39 +97,44 @@ veer_status veer__wire_plan_to_pb(const veer_plan *plan, const veer_v1_PlanReque
 /* SHA-256 of m's encoding with content_hash left empty (m is restored). */
 veer_status veer__wire_plan_hash(veer_v1_Plan *m, uint8_t digest[32]);
 
+/* The largest plan a decoded-plan workspace takes (a cart's capacity,
+ * veer_player_def; the library's maxima for veer_plan_load_pb). */
+typedef struct {
+    int knots, waypoints, legs, modules;
+} veer__plan_cap;
+/* The library's maxima. */
+veer__plan_cap veer__plan_cap_max(void);
+
 /* Workspace of a plan rebuilt from a Plan message: the plan's block (the
- * struct and its path and segment arrays, VEER__PLAN_BLOCK_BYTES), its grid
- * arrays for knot_cap knots of `modules` modules and the body twists the
- * steer tracking needs. veer__wire_plan_layout gives the offsets; the
- * macros give the same total as a constant. */
+ * struct and its path and segment arrays, VEER__PLAN_BLOCK_BYTES), then its
+ * grid arrays (s, x, t, steer, binding) for knot_cap knots of `modules`
+ * modules; veer_plan_load_pb puts the decoded message behind them. The
+ * macros give the totals at the maxima as constants. */
 #define VEER__WIRE_ALIGN(n) (((size_t)(n) + 15u) & ~(size_t)15u)
 #define VEER__WIRE_GRID_BYTES(knot_cap, modules)                                                                 \
     ((size_t)(knot_cap) * ((3 + (size_t)(modules)) * sizeof(double) + sizeof(veer_limit_id)))
 #define VEER__WIRE_PLAN_BYTES(piece_cap, segment_cap, knot_cap, modules)                                         \
-    (VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap) + VEER__WIRE_ALIGN(VEER__WIRE_GRID_BYTES(knot_cap, modules)) + \
-     (size_t)(knot_cap) * 3 * sizeof(double))
-/* ... enough for any plan (the library's maxima). */
+    (VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap) + VEER__WIRE_ALIGN(VEER__WIRE_GRID_BYTES(knot_cap, modules)))
 #define VEER__WIRE_PLAN_WORK_BYTES                                                                              \
     VEER__WIRE_PLAN_BYTES(VEER_PATH_MAX_PIECES, VEER_PATH_MAX_SEGMENTS, VEER_WIRE_MAX_KNOTS, VEER_MAX_MODULES)
-
-/* Where the parts of a decoded plan's workspace are: byte offsets from its
- * start (the plan struct is at 0). */
-typedef struct {
-    int piece_cap, segment_cap, knot_cap, modules; /* what it is sized for */
-    size_t grid;  /* s, x, t, steer, binding for knot_cap knots (lay_out in wire_plan.c) */
-    size_t xi;    /* 3 doubles per knot */
-    size_t total; /* bytes of the whole (VEER__WIRE_PLAN_BYTES) */
-} veer_wire_plan_layout;
-/* Fills out (may be NULL) for the given room and returns its total. */
-size_t veer__wire_plan_layout(int piece_cap, int segment_cap, int knot_cap, int modules, veer_wire_plan_layout *out);
-/* ... and the decoded message beside it (veer_plan_load_pb). */
 #define VEER__WIRE_WORK_BYTES (VEER__WIRE_PLAN_WORK_BYTES + VEER__WIRE_ALIGN(sizeof(veer_v1_Plan)))
-size_t veer__wire_plan_work_size(void);
+
+/* Bytes of the plan part of a workspace for plans within cap
+ * (VEER__WIRE_PLAN_BYTES of its path caps, knots and modules). */
+size_t veer__wire_plan_bytes_for(const veer__plan_cap *cap);
+/* ... and with the decoded message behind it (veer__wire_load_pb_cap). */
+size_t veer__wire_work_bytes_for(const veer__plan_cap *cap);
+/* veer_plan_load_pb for plans within cap (NULL: the maxima), in work of
+ * veer__wire_work_bytes_for(cap) bytes: a plan beyond the cap gives
+ * VEER_ERR_CAPACITY (diag says which) and changes nothing but work. */
+veer_status veer__wire_load_pb_cap(const uint8_t *bytes, size_t size, void *work, size_t work_size,
+                                   const veer__plan_cap *cap, const veer_plan **out, veer_diag *diag);
 
 /* Rebuilds a plan from a decoded Plan message (checks everything: version,
- * path model, hash, values, profile) inside work (VEER__WIRE_PLAN_WORK_BYTES,
- * aligned for double); *out points into work. No heap. */
-veer_status veer__wire_plan_load(veer_v1_Plan *m, void *work, size_t work_size, veer_plan **out, veer_diag *diag);
+ * path model, hash, values, profile) inside work (veer__wire_plan_bytes_for
+ * cap, NULL: the maxima; aligned for double); *out points into work. No heap. */
+veer_status veer__wire_plan_load(veer_v1_Plan *m, void *work, size_t work_size, const veer__plan_cap *cap,
+                                 veer_plan **out, veer_diag *diag);
 /* The same into a new heap plan for veer_plan_destroy. */
 veer_status veer__wire_plan_decode_heap(veer_v1_Plan *m, veer_plan **out, veer_diag *diag);
 

@@ -105,7 +105,16 @@ veer_status veer__wire_plan_hash(veer_v1_Plan *m, uint8_t digest[32]) {
 
 /* ---- rebuilding a plan from knots --------------------------------------- */
 
-size_t veer__wire_plan_work_size(void) { return VEER__WIRE_PLAN_WORK_BYTES; }
+veer__plan_cap veer__plan_cap_max(void) {
+    veer__plan_cap c = {VEER_WIRE_MAX_KNOTS, VEER_MAX_WAYPOINTS, VEER_MAX_LEGS, VEER_MAX_MODULES};
+    return c;
+}
+
+size_t veer__wire_plan_bytes_for(const veer__plan_cap *cap) {
+    int pieces, segments;
+    veer__path_caps(cap->waypoints, cap->legs, &pieces, &segments);
+    return VEER__WIRE_PLAN_BYTES(pieces, segments, cap->knots, cap->modules);
+}
 
 /* One knot interval: length h, sdot^2 from xa to xb, sdot^2 = xa + b sigma +
  * c sigma^2, split into r pieces. */
@@ -246,7 +255,7 @@ static veer_status parse_profile(const veer_v1_Profile *pr, const veer_path *pat
 
 /* The plan's timeline from its knots: times, steer angles, re-steer phases,
  * dwells, leg summaries (the same steps as the planner after its solve). */
-static veer_status timeline(veer_plan *plan, double *xi, veer_diag *diag) {
+static veer_status timeline(veer_plan *plan, veer_diag *diag) {
     const veer_path *path = &plan->path;
     int M = plan->module_count;
     double from[VEER_MAX_MODULES];
@@ -256,9 +265,6 @@ static veer_status timeline(veer_plan *plan, double *xi, veer_diag *diag) {
         sg->dwell = path->segments[j].dwell;
         double t = 0.0;
         for (int k = sg->k0; k <= sg->k1; k++) {
-            veer_point_kin pk;
-            veer__point_kin(path, j, plan->s[k], &pk);
-            memcpy(xi + 3 * (k - sg->k0), pk.xi, 3 * sizeof(double));
             if (k > sg->k0) t += 2.0 * (plan->s[k] - plan->s[k - 1]) / (sqrt(plan->x[k - 1]) + sqrt(plan->x[k]));
             plan->t[k] = t;
             plan->binding[k] = NONE_ID;
@@ -268,7 +274,7 @@ static veer_status timeline(veer_plan *plan, double *xi, veer_diag *diag) {
                               path->segments[j].s_begin, NONE_ID, "plan.profile: segment %d has no finite time", j);
         sg->raw_time = t;
         sg->move_time = t + sg->tau - veer__segment_lead(plan, j); /* tau: the profile's jerk window, 0 without */
-        veer_status st = veer__steer_segment(plan, j, from, xi, diag);
+        veer_status st = veer__steer_segment(plan, j, from, NULL, diag); /* twists from the path: no array */
         if (st != VEER_OK) return st;
         if (j == 0 && plan->x_start > 0.0) sg->resteer_time = 0.0; /* already pointing along the motion */
         for (int i = 0; i < M; i++) from[i] = plan->steer[(size_t)sg->k1 * (size_t)M + (size_t)i];
@@ -329,7 +335,7 @@ static veer_status load_head(const veer_v1_Plan *m, veer_plan *plan, int piece_c
 }
 
 /* Lays the grid arrays out as plan.c does (s, x, t, steer, binding in one
- * block, so veer_plan_destroy can free it) in grid; xi follows them. */
+ * block, so veer_plan_destroy can free it) in grid. */
 static size_t grid_bytes(int n, int M) {
     return (size_t)n * (3 * sizeof(double) + sizeof(veer_limit_id)) + (size_t)n * (size_t)M * sizeof(double);
 }
@@ -360,47 +366,48 @@ static veer_status check_tail(veer_v1_Plan *m, const veer_plan *plan, int check_
     return VEER_OK;
 }
 
-size_t veer__wire_plan_layout(int piece_cap, int segment_cap, int knot_cap, int modules, veer_wire_plan_layout *out) {
-    size_t total = VEER__WIRE_PLAN_BYTES(piece_cap, segment_cap, knot_cap, modules);
-    if (out) {
-        out->piece_cap = piece_cap, out->segment_cap = segment_cap;
-        out->knot_cap = knot_cap, out->modules = modules;
-        out->grid = VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap);
-        out->xi = out->grid + VEER__WIRE_ALIGN(VEER__WIRE_GRID_BYTES(knot_cap, modules));
-        out->total = total;
-    }
-    return total;
+/* A plan beyond the workspace's capacity: VEER_ERR_CAPACITY, saying which. */
+static veer_status over_cap(const char *what, int n, int cap, veer_diag *diag) {
+    return veer__fail_plain(diag, VEER_ERR_CAPACITY, "plan: %d %s, this cart takes at most %d", n, what, cap);
 }
 
-static veer_status load(veer_v1_Plan *m, void *work, size_t work_size, veer_plan **out, int check_hash,
-                        veer_diag *diag) {
-    veer_wire_plan_layout lay; /* for now sized for any plan */
-    size_t need = veer__wire_plan_layout(VEER_PATH_MAX_PIECES, VEER_PATH_MAX_SEGMENTS, VEER_WIRE_MAX_KNOTS,
-                                         VEER_MAX_MODULES, &lay);
+static veer_status load(veer_v1_Plan *m, void *work, size_t work_size, const veer__plan_cap *cap, veer_plan **out,
+                        int check_hash, veer_diag *diag) {
+    veer__plan_cap max = veer__plan_cap_max();
+    if (!cap) cap = &max;
+    size_t need = veer__wire_plan_bytes_for(cap);
     if (!work || work_size < need || ((uintptr_t)work % sizeof(double)) != 0)
         return veer__fail_plain(diag, VEER_ERR_VALUE, "plan workspace: needs %zu bytes aligned for double", need);
+    if (m->has_route && (int)m->route.waypoints_count > cap->waypoints)
+        return over_cap("waypoints", (int)m->route.waypoints_count, cap->waypoints, diag);
+    if (m->has_route && (int)m->route.legs_count > cap->legs)
+        return over_cap("legs", (int)m->route.legs_count, cap->legs, diag);
+    int pieces, segments;
+    veer__path_caps(cap->waypoints, cap->legs, &pieces, &segments);
     veer_plan *plan = (veer_plan *)work;
-    char *grid = (char *)work + lay.grid;
-    veer_status st = load_head(m, plan, lay.piece_cap, lay.segment_cap, diag);
+    char *grid = (char *)work + VEER__PLAN_BLOCK_BYTES(pieces, segments);
+    veer_status st = load_head(m, plan, pieces, segments, diag);
     int n = 0;
+    if (st == VEER_OK && plan->module_count > cap->modules)
+        st = over_cap("modules", plan->module_count, cap->modules, diag);
     if (st == VEER_OK) st = parse_profile(&m->profile, &plan->path, NULL, NULL, NULL, &n, diag);
+    if (st == VEER_OK && n > cap->knots) st = over_cap("knots", n, cap->knots, diag);
     if (st != VEER_OK) return st;
     lay_out(plan, n, grid);
-    double *xi = (double *)((char *)work + lay.xi);
     if ((st = parse_profile(&m->profile, &plan->path, plan->s, plan->x, plan->segs, &n, diag))) return st;
     plan->x_start = m->profile.start_sdot * m->profile.start_sdot;
     if ((st = jerk_windows(&m->profile, plan, diag))) return st;
-    if ((st = timeline(plan, xi, diag))) return st;
+    if ((st = timeline(plan, diag))) return st;
     if ((st = check_tail(m, plan, check_hash, diag))) return st;
     plan->alloc_size = 0; /* lives in the caller's workspace */
     *out = plan;
     return VEER_OK;
 }
 
-veer_status veer__wire_plan_load(veer_v1_Plan *m, void *work, size_t work_size, veer_plan **out,
-                                 veer_diag *diag) {
+veer_status veer__wire_plan_load(veer_v1_Plan *m, void *work, size_t work_size, const veer__plan_cap *cap,
+                                 veer_plan **out, veer_diag *diag) {
     *out = NULL;
-    veer_status st = load(m, work, work_size, out, 1, diag);
+    veer_status st = load(m, work, work_size, cap, out, 1, diag);
     if (st == VEER_OK) veer__diag_ok(diag);
     return st;
 }
@@ -422,12 +429,9 @@ veer_status veer__wire_plan_decode_heap(veer_v1_Plan *m, veer_plan **out, veer_d
         veer__free(plan, bytes);
         return st;
     }
-    size_t gb = grid_bytes(n, plan->module_count), xb = (size_t)n * 3 * sizeof(double);
+    size_t gb = grid_bytes(n, plan->module_count);
     char *grid = veer__alloc(gb);
-    double *xi = veer__alloc(xb);
-    if (!grid || !xi) {
-        veer__free(grid, gb);
-        veer__free(xi, xb);
+    if (!grid) {
         veer__free(plan, bytes);
         return veer__fail_plain(diag, VEER_ERR_NO_MEMORY, "out of memory");
     }
@@ -435,9 +439,8 @@ veer_status veer__wire_plan_decode_heap(veer_v1_Plan *m, veer_plan **out, veer_d
     st = parse_profile(&m->profile, &plan->path, plan->s, plan->x, plan->segs, &n, diag);
     plan->x_start = m->profile.start_sdot * m->profile.start_sdot;
     if (st == VEER_OK) st = jerk_windows(&m->profile, plan, diag);
-    if (st == VEER_OK) st = timeline(plan, xi, diag);
+    if (st == VEER_OK) st = timeline(plan, diag);
     if (st == VEER_OK) st = check_tail(m, plan, 1, diag);
-    veer__free(xi, xb);
     if (st != VEER_OK) {
         veer_plan_destroy(plan);
         return st;
@@ -795,7 +798,7 @@ veer_status veer__wire_plan_to_pb(const veer_plan *plan, const veer_v1_PlanReque
     for (size_t L = 0; L < sizeof levels / sizeof levels[0]; L++) {
         st = write_profile(plan, levels[L], tmp, &m->profile, diag);
         if (st != VEER_OK) break; /* capacity: a finer level only needs more */
-        st = load(m, work, wb, &dec, 0, &d2);
+        st = load(m, work, wb, NULL, &dec, 0, &d2);
         if (st != VEER_OK) {
             if (diag) *diag = d2;
             break;

@@ -37,7 +37,7 @@ static veer_link_def link_for(uint32_t cart, uint8_t key_byte, int frame_size) {
 }
 
 static veer_link_receiver *new_receiver(const veer_link_def *d, uint64_t accepted, void **mem) {
-    size_t n = veer_link_receiver_size();
+    size_t n = veer_link_receiver_size_for(d);
     *mem = aligned_alloc(16, (n + 15) / 16 * 16);
     cr_assert_not_null(*mem);
     veer_link_receiver *rx = NULL;
@@ -687,5 +687,64 @@ Test(link, link_def_layout) {
     cr_assert_eq(offsetof(veer_link_def, cart), 0u);
     cr_assert_eq(offsetof(veer_link_def, key), 4u);
     cr_assert_eq(offsetof(veer_link_def, frame_size), 36u);
-    cr_assert_eq(sizeof(veer_link_def), 40u);
+    cr_assert_eq(offsetof(veer_link_def, max_plan_bytes), 40u);
+    cr_assert_eq(sizeof(veer_link_def), 44u);
+}
+
+/* A cart given a plan capacity (max_plan_bytes): its receiver needs that
+ * much buffer and no more; the sender with the same definition refuses a
+ * larger plan before it goes on the air; a larger plan's chunks (from a
+ * ground station that does not know) are refused with CAPACITY, leave a
+ * plan in reassembly alone, and the gap report says so as a settled
+ * verdict; a plan that fits still comes through. */
+Test(link, plan_capacity) {
+    veer_link_def big = link_for(9, 0x21, VEER_LINK_FRAME_DEFAULT), small = big;
+    small.max_plan_bytes = 1000;
+    size_t nb = veer_link_receiver_size_for(&big), ns = veer_link_receiver_size_for(&small);
+    cr_log_info("receiver memory: %zu B for any plan, %zu B for plans up to 1000 B", nb, ns);
+    cr_assert_eq(nb, veer_link_receiver_size());
+    cr_assert(ns >= 1000 + VEER_LINK_PLAN_TAG_BYTES && ns < 2000, "%zu", ns);
+    cr_assert_eq(veer_link_receiver_size_for(NULL), 0u);
+    veer_diag diag;
+    veer_link_def bad = small;
+    bad.max_plan_bytes = VEER_LINK_MIN_PLAN_BYTES - 1;
+    cr_assert_eq(veer_link_def_check(&bad, &diag), VEER_ERR_VALUE);
+    bad.max_plan_bytes = VEER_LINK_MAX_PLAN_BYTES + 1;
+    cr_assert_eq(veer_link_def_check(&bad, &diag), VEER_ERR_VALUE);
+    void *mem = aligned_alloc(16, (nb + 15) / 16 * 16);
+    veer_link_receiver *rx = NULL;
+    cr_assert_eq(veer_link_receiver_init(mem, ns - 1, &small, 0, 0, &rx, &diag), VEER_ERR_VALUE);
+    cr_assert_null(rx);
+    cr_assert_eq(veer_link_receiver_init(mem, ns, &small, 0, 0, &rx, &diag), VEER_OK);
+    static uint8_t plan[1001];
+    for (size_t i = 0; i < sizeof plan; i++) plan[i] = (uint8_t)(i * 7 + 3);
+    veer_link_sender *s = NULL;
+    cr_assert_eq(veer_link_sender_create(&small, 1, plan, 1001, &s, &diag), VEER_ERR_CAPACITY);
+    cr_assert_null(s);
+    /* a fitting plan half in, then a larger plan's chunks (sent under the
+     * big definition): refused, the first plan still completes */
+    frame_buf *fit = NULL, *over = NULL;
+    int nf = make_frames(&small, 2, plan, 1000, &fit), no = make_frames(&big, 3, plan, 1001, &over);
+    for (int i = 0; i < nf / 2; i++) cr_assert_eq(take(rx, fit[i].bytes, fit[i].size).reason, VEER_LINK_NONE);
+    for (int i = 0; i < no; i++) cr_assert_eq(take(rx, over[i].bytes, over[i].size).reason, VEER_LINK_CAPACITY);
+    veer_link_event ev;
+    memset(&ev, 0, sizeof ev);
+    for (int i = nf / 2; i < nf; i++) ev = take(rx, fit[i].bytes, fit[i].size);
+    cr_assert(ev.plan_ready && ev.reason == VEER_LINK_NONE);
+    const uint8_t *got;
+    size_t n;
+    cr_assert_eq(veer_link_receiver_plan(rx, &got, &n, NULL), VEER_OK);
+    cr_assert(n == 1000 && memcmp(got, plan, n) == 0);
+    cr_assert_eq(veer_link_receiver_settle(rx, VEER_LINK_NONE), VEER_OK);
+    /* with nothing in reassembly the gap report names the refused plan */
+    ev = take(rx, over[0].bytes, over[0].size);
+    cr_assert(ev.reason == VEER_LINK_CAPACITY && ev.gaps_due);
+    veer_link_gaps g;
+    cr_assert_eq(veer_link_receiver_gaps(rx, &g), VEER_OK);
+    cr_assert(g.complete && g.plan_id == 3 && g.verdict == VEER_LINK_CAPACITY);
+    cr_assert_eq(veer_link_receiver_accepted(rx), 2u);
+    cr_assert_eq(veer_link_receiver_count(rx, VEER_LINK_CAPACITY), (uint32_t)no + 1);
+    free(fit);
+    free(over);
+    free(mem);
 }

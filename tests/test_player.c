@@ -137,7 +137,7 @@ static blob plan_bytes(const veer_drive_def *d, const veer_limits *l, const veer
 }
 
 static veer_player *new_player(const veer_player_def *def, void **mem) {
-    size_t n = (veer_player_size() + 15) / 16 * 16;
+    size_t n = (veer_player_size_for(def) + 15) / 16 * 16;
     *mem = aligned_alloc(16, n);
     cr_assert_not_null(*mem);
     veer_player *p = NULL;
@@ -778,6 +778,11 @@ Test(player, definition_from_cart_config) {
     m.link_timeout = 0.75;
     m.has_frame_size = true;
     m.frame_size = 200;
+    m.has_max_plan_bytes = m.has_max_knots = m.has_max_waypoints = m.has_max_legs = true;
+    m.max_plan_bytes = 2048;
+    m.max_knots = 300;
+    m.max_waypoints = 12;
+    m.max_legs = 5;
     uint8_t buf[veer_v1_CartConfig_size];
     pb_ostream_t os = pb_ostream_from_buffer(buf, sizeof buf);
     cr_assert(pb_encode(&os, veer_v1_CartConfig_fields, &m));
@@ -786,6 +791,10 @@ Test(player, definition_from_cart_config) {
     cr_assert_eq(veer_player_def_from_pb(buf, os.bytes_written, &got, &diag), VEER_OK, "%s", diag.message);
     cr_assert_eq(got.link.cart, 4u);
     cr_assert_eq(got.link.frame_size, 200);
+    cr_assert_eq(got.link.max_plan_bytes, 2048u);
+    cr_assert_eq(got.max_knots, 300u);
+    cr_assert_eq(got.max_waypoints, 12u);
+    cr_assert_eq(got.max_legs, 5u);
     cr_assert_float_eq(got.link_timeout, 0.75, 0.0);
     cr_assert_str_eq(got.cart_name, want.cart_name);
     cr_assert(memcmp(&got.drive, &want.drive, sizeof got.drive) == 0);
@@ -844,4 +853,141 @@ Test(player, report_fits_the_smallest_frame) {
     cr_assert_eq(veer_player_init(mem, veer_player_size(), &def, &q, NULL), VEER_ERR_VALUE);
     free(b.bytes);
     free(mem);
+}
+
+/* ---- capacity ------------------------------------------------------------ */
+
+/* The knots a Plan message's profile gives (Profile.knot_count). */
+static int plan_knots(blob b) {
+    veer_v1_Plan *m = calloc(1, sizeof *m);
+    pb_istream_t in = pb_istream_from_buffer(b.bytes, b.size);
+    cr_assert(pb_decode(&in, veer_v1_Plan_fields, m));
+    int n = (int)m->profile.knot_count;
+    free(m);
+    return n;
+}
+
+/* A cart sized for its plans (plan bytes, knots, waypoints, legs, its own
+ * module count) needs a fraction of the memory of one sized for any plan,
+ * plays a plan that fits exactly as that one does (every setpoint equal, bit
+ * for bit), and refuses a plan beyond any one capacity with reason CAPACITY,
+ * keeping the armed plan. */
+Test(player, capacity_sizes_memory_and_refuses_larger_plans) {
+    veer_player_def full = cart_def();
+    veer_route r = corner_route();
+    blob b = plan_bytes(&full.drive, &full.limits, &r, full.cart_name);
+    int knots = plan_knots(b);
+    cr_assert(b.size > VEER_LINK_MIN_PLAN_BYTES && knots > 2, "%zu bytes, %d knots", b.size, knots);
+    /* what the plan needs: the message's own knot count, the route's two waypoints and one leg */
+    veer_plan_needs need;
+    veer_diag diag;
+    cr_assert_eq(veer_plan_needs_pb(b.bytes, b.size, &need, &diag), VEER_OK, "%s", diag.message);
+    cr_assert(need.plan_bytes == b.size && need.knots == (uint32_t)knots && need.waypoints == 2 && need.legs == 1 &&
+              need.modules == 4);
+    veer_plan_needs untouched = need;
+    cr_assert_eq(veer_plan_needs_pb(b.bytes, b.size - 1, &untouched, &diag), VEER_ERR_DECODE);
+    cr_assert(memcmp(&untouched, &need, sizeof need) == 0);
+    cr_assert_eq(veer_plan_needs_pb(b.bytes, b.size, NULL, &diag), VEER_ERR_NULL);
+    veer_player_def small = full;
+    small.link.max_plan_bytes = need.plan_bytes;
+    small.max_knots = need.knots;
+    small.max_waypoints = need.waypoints;
+    small.max_legs = need.legs;
+    size_t n_full = veer_player_size_for(&full), n_small = veer_player_size_for(&small);
+    cr_log_info("player memory: any plan %zu B (8 modules: %zu B), this plan on 4 modules %zu B", n_full,
+                veer_player_size(), n_small);
+    cr_assert(n_small > 0 && n_small < n_full / 4 && n_full <= veer_player_size());
+    /* sizes and bounds */
+    cr_assert_eq(veer_player_size_for(NULL), 0u);
+    veer_player_def bad = small;
+    bad.max_knots = VEER_WIRE_MAX_KNOTS + 1;
+    cr_assert_eq(veer_player_size_for(&bad), 0u);
+    void *mem = aligned_alloc(16, (n_full + 15) / 16 * 16);
+    veer_player *q = NULL;
+    cr_assert_eq(veer_player_init(mem, n_full, &bad, &q, &diag), VEER_ERR_VALUE);
+    cr_assert(diag_says(&diag, "max_knots") && !q);
+    bad = small;
+    bad.link.max_plan_bytes = VEER_LINK_MIN_PLAN_BYTES - 1;
+    cr_assert_eq(veer_player_init(mem, n_full, &bad, &q, &diag), VEER_ERR_VALUE);
+    cr_assert(diag_says(&diag, "max_plan_bytes"));
+    cr_assert_eq(veer_player_init(mem, n_small - 1, &small, &q, &diag), VEER_ERR_VALUE);
+    cr_assert(diag_says(&diag, "player memory") && !q);
+    free(mem);
+    /* a plan that fits plays as on the full cart */
+    void *mf, *ms;
+    veer_player *pf = new_player(&full, &mf), *ps = new_player(&small, &ms);
+    double now = 10.0;
+    cr_assert(send_plan(pf, &full.link, 1, b, now).armed);
+    veer_player_event ev = send_plan(ps, &small.link, 1, b, now);
+    cr_assert(ev.armed, "%s", veer_link_reason_name(ev.reason));
+    cr_assert(command(pf, &full.link, VEER_LINK_COMMAND_START, 1, now).started);
+    cr_assert(command(ps, &small.link, VEER_LINK_COMMAND_START, 1, now).started);
+    double dt = 1.0 / RATE, T = veer_plan_duration(veer_player_plan(ps));
+    int steps = 0;
+    for (int k = 0; k * dt <= T + 0.5; k++, steps++) {
+        double t = now + k * dt;
+        if (k % 10 == 0) {
+            command(pf, &full.link, VEER_LINK_COMMAND_HEARTBEAT, 0, t);
+            command(ps, &small.link, VEER_LINK_COMMAND_HEARTBEAT, 0, t);
+        }
+        veer_sample a, c;
+        cr_assert_eq(veer_player_step(pf, t, &a), VEER_OK);
+        cr_assert_eq(veer_player_step(ps, t, &c), VEER_OK);
+        cr_assert(memcmp(&a, &c, sizeof a) == 0, "setpoints differ at t = %g s", k * dt);
+    }
+    cr_assert_eq(status(ps).stop_reason, VEER_STOP_END_OF_PLAN);
+    cr_log_info("%d steps equal", steps);
+    /* beyond one capacity: refused, the armed plan kept */
+    veer_route r3 = corner_route();
+    veer_waypoint w = veer_default_waypoint(5.0, 2.0);
+    cr_assert_eq(veer_route_add_waypoint(&r3, &w), VEER_OK);
+    blob more_wp = plan_bytes(&full.drive, &full.limits, &r3, full.cart_name);
+    veer_route r4 = corner_route();
+    veer_leg spin = veer_default_leg(VEER_LEG_SPIN);
+    spin.yaw = 1.0;
+    cr_assert_eq(veer_route_add_leg(&r4, &spin), VEER_OK);
+    blob more_leg = plan_bytes(&full.drive, &full.limits, &r4, full.cart_name);
+    struct {
+        const char *what;
+        blob plan;
+        veer_player_def def;
+    } cases[4];
+    /* waypoints and legs beyond the cart's, everything else with room */
+    veer_player_def roomy = small;
+    roomy.link.max_plan_bytes = 0;
+    roomy.max_knots = 0;
+    cases[0].what = "more waypoints", cases[0].plan = more_wp, cases[0].def = roomy;
+    cases[1].what = "more legs", cases[1].plan = more_leg, cases[1].def = roomy;
+    /* the first plan, with one knot or one byte of room too few */
+    cases[2].what = "more knots", cases[2].plan = b, cases[2].def = small;
+    cases[2].def.max_knots = (uint32_t)knots - 1;
+    cases[3].what = "more bytes", cases[3].plan = b, cases[3].def = small;
+    cases[3].def.link.max_plan_bytes = (uint32_t)b.size - 1;
+    for (int c = 0; c < 4; c++) {
+        const veer_player_def *d = &cases[c].def;
+        void *m2;
+        veer_player *p2 = new_player(d, &m2);
+        int armed_first = c < 2;
+        veer_link_def ground = d->link; /* a ground station that does not know the cart's capacity */
+        ground.max_plan_bytes = 0;
+        if (armed_first) cr_assert(send_plan(p2, &ground, 5, b, 1.0).armed, "%s: the fitting plan arms", cases[c].what);
+        ev = send_plan(p2, &ground, 6, cases[c].plan, 2.0);
+        cr_assert(!ev.armed && ev.reason == VEER_LINK_CAPACITY, "%s: %s", cases[c].what,
+                  veer_link_reason_name(ev.reason));
+        veer_link_report rep = status(p2);
+        cr_assert_eq(rep.last_rejection, VEER_LINK_CAPACITY, "%s: the report names it", cases[c].what);
+        cr_assert_eq(rep.state, armed_first ? VEER_PLAYER_ARMED : VEER_PLAYER_IDLE, "%s: nothing changed",
+                     cases[c].what);
+        cr_assert_eq(rep.plan_id, armed_first ? 5u : 0u);
+        veer_link_gaps g;
+        cr_assert_eq(veer_link_receiver_gaps(veer_player_receiver(p2), &g), VEER_OK);
+        cr_assert(g.complete && g.plan_id == 6 && g.verdict == VEER_LINK_CAPACITY,
+                  "%s: the gap report tells the ground station", cases[c].what);
+        free(m2);
+    }
+    free(more_wp.bytes);
+    free(more_leg.bytes);
+    free(b.bytes);
+    free(mf);
+    free(ms);
 }

@@ -48,6 +48,7 @@ extern "C" {
 #define VEER_LINK_FRAME_MIN 160      /* smallest frame size a link may be set to (a player report fits) */
 #define VEER_LINK_FRAME_MAX 1024     /* largest (link.options: PlanChunk.data) */
 #define VEER_LINK_MAX_PLAN_BYTES 32768 /* Plan bytes a cart receives at most (any Plan message fits) */
+#define VEER_LINK_MIN_PLAN_BYTES 256   /* smallest plan capacity a cart may be given (veer_link_def.max_plan_bytes) */
 #define VEER_LINK_MAX_CHUNKS 2048    /* chunks a sealed plan may have (link.options: GapReport.missing * 8) */
 
 /* Why a frame or a plan was refused: one table builds the enum,
@@ -76,7 +77,8 @@ extern "C" {
     X(LIMITS, 19, "the plan was made for other limits than this cart's")                             \
     X(BUSY, 20, "no plan is armed while the cart moves")                                             \
     X(STATE, 21, "the command does not fit the player's state")                                      \
-    X(NOT_ARMED, 22, "START names a plan that is not the armed one")
+    X(NOT_ARMED, 22, "START names a plan that is not the armed one")                                \
+    X(CAPACITY, 23, "the plan is larger than this cart takes (plan bytes, knots, waypoints or legs)")
 
 typedef enum {
 #define VEER_LINK_REASON_ENUM_(name, value, text) VEER_LINK_##name = value,
@@ -108,13 +110,19 @@ typedef struct {
     uint32_t cart;                    /* the cart's number on the range */
     uint8_t key[VEER_LINK_KEY_BYTES]; /* its pre-shared key; all zero is refused */
     int frame_size;                   /* bytes per frame, checksum included, VEER_LINK_FRAME_MIN..MAX */
+    /* Plan bytes the cart takes at most (the receiver's buffer, the
+     * player's copy of the armed plan): VEER_LINK_MIN_PLAN_BYTES..
+     * VEER_LINK_MAX_PLAN_BYTES, 0 for VEER_LINK_MAX_PLAN_BYTES. The sender
+     * refuses a larger plan; the receiver refuses its chunks (CAPACITY). */
+    uint32_t max_plan_bytes;
 } veer_link_def;
 
-/* Cart 0, a zero key (which must be replaced), VEER_LINK_FRAME_DEFAULT. */
+/* Cart 0, a zero key (which must be replaced), VEER_LINK_FRAME_DEFAULT,
+ * max_plan_bytes 0 (VEER_LINK_MAX_PLAN_BYTES). */
 VEER_API veer_link_def veer_default_link_def(void);
 
-/* Checks a link definition: ERR_NULL, ERR_VALUE (frame size out of range,
- * all-zero key). */
+/* Checks a link definition: ERR_NULL, ERR_VALUE (frame size or plan
+ * capacity out of range, all-zero key). */
 VEER_API VEER_NODISCARD veer_status veer_link_def_check(const veer_link_def *def, veer_diag *diag);
 
 /* CRC-32 of IEEE 802.3 (reflected, polynomial 0x04C11DB7, initial value and
@@ -207,17 +215,20 @@ VEER_API VEER_NODISCARD veer_status veer_link_parse(const veer_link_def *def, co
 
 /* ---- cart side: receiving ----------------------------------------------- */
 
-/* The cart's receiver: one plan in reassembly (fixed buffer of
- * VEER_LINK_MAX_PLAN_BYTES + tag), the highest plan counter and command
- * sequence accepted, and a count of frames per reason. Lives in memory the
- * caller provides; allocates nothing. */
+/* The cart's receiver: one plan in reassembly (a buffer of the link's
+ * max_plan_bytes + tag), the highest plan counter and command sequence
+ * accepted, and a count of frames per reason. Lives in memory the caller
+ * provides; allocates nothing. */
 typedef struct veer_link_receiver veer_link_receiver;
 
-/* Bytes of memory a receiver needs (aligned for double). */
+/* Bytes of memory a receiver for def needs (aligned for double): about
+ * 520 + def->max_plan_bytes; 0 for a NULL def. */
+VEER_API size_t veer_link_receiver_size_for(const veer_link_def *def);
+/* The same for the largest capacity (VEER_LINK_MAX_PLAN_BYTES): enough for any def. */
 VEER_API size_t veer_link_receiver_size(void);
 
-/* Sets up a receiver in memory (size >= veer_link_receiver_size(), aligned
- * for double). accepted_plan_id and command_seq are the highest plan
+/* Sets up a receiver in memory (size >= veer_link_receiver_size_for(def),
+ * aligned for double). accepted_plan_id and command_seq are the highest plan
  * counter and command sequence this cart accepted before (kept in
  * non-volatile memory across restarts, so that old plans and commands
  * cannot be replayed after a reboot; 0 for a new cart). */

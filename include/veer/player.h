@@ -26,8 +26,9 @@
  *
  * Time: `now` is the cart's monotonic clock in seconds; every call takes
  * it and it must not go backwards. The player allocates nothing; its memory
- * (veer_player_size(): one veer_plan_workspace_size(), VEER_LINK_MAX_PLAN_BYTES
- * for the armed plan's bytes, and the receiver) is the caller's. Calls on one
+ * (veer_player_size_for(): the receiver, a copy of the armed plan's bytes and
+ * one workspace for a decoded plan, each sized by the cart's capacity: its
+ * module count and the largest plan it takes) is the caller's. Calls on one
  * player must not run concurrently.
  * SPDX-License-Identifier: MIT */
 #ifndef VEER_PLAYER_H
@@ -90,10 +91,18 @@ typedef struct {
     double link_timeout;         /* s without an authenticated frame before a running cart stops; default 1.0, 0.05..60 */
     uint64_t accepted_plan_id;   /* highest plan counter accepted before (non-volatile memory), 0 for none */
     uint64_t command_seq;        /* highest command sequence accepted before, 0 for none */
+    /* The largest plan the cart takes, which sizes its memory
+     * (veer_player_size_for) with link.max_plan_bytes and the drive's module
+     * count: the profile's knots (a plan's knot count: veer_plan_encode_pb
+     * reports it, the ground station's plan summary shows it), the route's
+     * waypoints and legs. 0: the library's maxima (VEER_WIRE_MAX_KNOTS,
+     * VEER_MAX_WAYPOINTS, VEER_MAX_LEGS). A larger plan is refused with
+     * reason CAPACITY and changes nothing. */
+    uint32_t max_knots, max_waypoints, max_legs;
 } veer_player_def;
 
 /* veer_default_link_def(), a steered default drive, unset limits, no
- * name, 1 s timeout, counters 0. */
+ * name, 1 s timeout, counters 0, capacities 0 (the maxima). */
 VEER_API veer_player_def veer_default_player_def(void);
 
 /* A player definition from CartConfig message bytes (link.proto): cart
@@ -107,12 +116,15 @@ VEER_API VEER_NODISCARD veer_status veer_player_def_from_pb(const uint8_t *confi
 
 typedef struct veer_player veer_player;
 
-/* Bytes of memory a player needs (aligned for double); fixed. */
+/* Bytes of memory a player for def needs (aligned for double); 0 for a
+ * NULL def or capacities out of range (veer_player_init says which). */
+VEER_API size_t veer_player_size_for(const veer_player_def *def);
+/* The same for 8 modules and every capacity at its maximum: enough for any def. */
 VEER_API size_t veer_player_size(void);
 
-/* Sets up a player in memory (size >= veer_player_size(), aligned for
- * double): checks the definition (link, drive, limits, name, timeout) and
- * starts IDLE. On failure *out is NULL and diag says why. */
+/* Sets up a player in memory (size >= veer_player_size_for(def), aligned
+ * for double): checks the definition (link, drive, limits, name, timeout,
+ * capacities) and starts IDLE. On failure *out is NULL and diag says why. */
 VEER_API VEER_NODISCARD veer_status veer_player_init(void *memory, size_t size, const veer_player_def *def,
                                                      veer_player **out, veer_diag *diag);
 

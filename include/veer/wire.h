@@ -106,6 +106,23 @@ VEER_API VEER_NODISCARD veer_status veer_plan_encode_pb(const veer_plan *plan, u
 VEER_API VEER_NODISCARD veer_status veer_plan_table_pb(const uint8_t *plan, size_t plan_size, double rate_hz,
                                                        uint8_t *out, size_t capacity, size_t *size);
 
+/* What a cart needs to take a plan: the capacities of veer_player_def
+ * (player.h) it must have at least. */
+typedef struct {
+    uint32_t plan_bytes; /* the Plan message's size (link.max_plan_bytes; at least VEER_LINK_MIN_PLAN_BYTES) */
+    uint32_t knots;      /* the profile's grid points (max_knots) */
+    uint32_t waypoints;  /* the route's waypoints (max_waypoints) */
+    uint32_t legs;       /* the route's legs (max_legs) */
+    uint32_t modules;    /* the drive's modules (the cart's drive must be the plan's) */
+} veer_plan_needs;
+
+/* Reads a plan's needs off its Plan bytes, checked as veer_plan_decode_pb
+ * checks them (ground side: allocates). A cart set up with the largest
+ * needs of the plans it will run takes every one of them in the least
+ * memory (veer_player_size_for). out untouched on failure. */
+VEER_API VEER_NODISCARD veer_status veer_plan_needs_pb(const uint8_t *plan, size_t plan_size, veer_plan_needs *out,
+                                                       veer_diag *diag);
+
 #ifdef __cplusplus
 }
 #endif

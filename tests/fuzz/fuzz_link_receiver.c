@@ -17,6 +17,11 @@
  *   op 4  control ticks at 50 Hz, op 5 a jump in time;
  *   op 6  a local stop; op 7 the cart's reports, parsed by the ground side.
  *
+ * The first byte picks the frame size and the cart: one that takes any
+ * plan, or one sized for the two real plans (veer_plan_needs_pb), which
+ * refuses larger ones (reason CAPACITY) from a ground station that sends
+ * them anyway.
+ *
  * The tags are made with the cart's key, as the ground station would, so
  * no check is bypassed. Findings: a crash, a sanitizer report, any
  * allocation by the player or the receiver, a status other than OK for a
@@ -37,11 +42,12 @@
 #define TICK 0.02 /* s: 50 Hz control rate */
 
 static double player_mem[4 << 17]; /* 4 MiB, aligned for double; checked against veer_player_size() */
-static double rx_mem[(sizeof(veer_link_receiver) + 64) / sizeof(double) + 1];
+static double rx_mem[(VEER_LINK_MAX_PLAN_BYTES + 4096) / sizeof(double)]; /* checked against veer_link_receiver_size() */
 static uint8_t plans[2][VEER_LINK_MAX_PLAN_BYTES];
 static size_t plan_size[2];
 static uint8_t scratch[VEER_LINK_MAX_PLAN_BYTES];
-static veer_player_def cart;
+static veer_player_def cart, cart_any, cart_fit;
+static veer_link_def ground; /* the ground station's view of the link: it does not know the cart's capacity */
 
 /* Two real plans for the cart: the demo route and a short spin. */
 static void make_plans(void) {
@@ -69,6 +75,18 @@ static void make_plans(void) {
         if (veer_plan_encode_pb(p, plans[k], sizeof plans[k], &plan_size[k], &diag) != VEER_OK)
             FUZZ_FAIL("encode %d: %s", k, diag.message);
         veer_plan_destroy(p);
+    }
+    cart_any = cart_fit = cart;
+    cart_fit.link.max_plan_bytes = VEER_LINK_MIN_PLAN_BYTES;
+    cart_fit.max_knots = cart_fit.max_waypoints = cart_fit.max_legs = 1;
+    for (int k = 0; k < 2; k++) {
+        veer_plan_needs n;
+        veer_diag diag;
+        if (veer_plan_needs_pb(plans[k], plan_size[k], &n, &diag) != VEER_OK) FUZZ_FAIL("needs %d: %s", k, diag.message);
+        if (n.plan_bytes > cart_fit.link.max_plan_bytes) cart_fit.link.max_plan_bytes = n.plan_bytes;
+        if (n.knots > cart_fit.max_knots) cart_fit.max_knots = n.knots;
+        if (n.waypoints > cart_fit.max_waypoints) cart_fit.max_waypoints = n.waypoints;
+        if (n.legs > cart_fit.max_legs) cart_fit.max_legs = n.legs;
     }
 }
 
@@ -214,7 +232,7 @@ static void send_plan(run *u, fuzz_reader *r) {
     uint64_t id = id_step < 250 ? u->plan_id + 1 + id_step % 3 : (id_step == 250 ? u->plan_id : (uint64_t)id_step - 250);
     veer_link_sender *tx = NULL;
     veer_diag d;
-    if (veer_link_sender_create(&cart.link, id, plan, n, &tx, &d) != VEER_OK) return;
+    if (veer_link_sender_create(&ground, id, plan, n, &tx, &d) != VEER_OK) return;
     u->plan_id = id;
     int count = veer_link_sender_chunk_count(tx);
     FUZZ_CHECK(count >= 1 && count <= VEER_LINK_MAX_CHUNKS, "chunk count %d", count);
@@ -293,7 +311,11 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size) {
     fuzz_reader r = {data, size, 0};
     static const int frame_sizes[4] = {VEER_LINK_FRAME_DEFAULT, VEER_LINK_FRAME_MIN, (VEER_LINK_FRAME_MIN + VEER_LINK_FRAME_DEFAULT) / 2,
                                        VEER_LINK_FRAME_MAX};
-    cart.link.frame_size = frame_sizes[fuzz_u8(&r) % 4];
+    unsigned pick = fuzz_u8(&r);
+    cart = (pick >> 2) & 1 ? cart_fit : cart_any;
+    cart.link.frame_size = frame_sizes[pick % 4];
+    ground = cart.link;
+    ground.max_plan_bytes = 0;
     run u;
     memset(&u, 0, sizeof u);
     veer_diag d;

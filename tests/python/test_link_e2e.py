@@ -95,7 +95,7 @@ def read_trace(path):
 
 
 def run_link(tmp_path, drop=0.30, duplicate=0.05, reorder=0.20, corrupt=0.01, seed=11, frame_size=255,
-             ground_args=(), exit_after_stop=1.0, deliver_only=False):
+             ground_args=(), exit_after_stop=1.0, deliver_only=False, fit_cart=False):
     """One run: cart simulator, channel, ground station. Returns the three summaries and the trace."""
     env = dict(os.environ)
     key = tmp_path / "cart.key"
@@ -103,7 +103,8 @@ def run_link(tmp_path, drop=0.30, duplicate=0.05, reorder=0.20, corrupt=0.01, se
     cfg = tmp_path / "cart.cfg"
     gs = [sys.executable, str(EXAMPLES / "ground_station.py")]
     subprocess.run(gs + ["--write-cart-config", str(cfg), "--cart", str(CART), "--scenario", str(DEMO),
-                         "--frame-size", str(frame_size), "--link-timeout", "1.0"],
+                         "--frame-size", str(frame_size), "--link-timeout", "1.0"]
+                   + (["--fit-cart"] if fit_cart else []),
                    check=True, timeout=60, env=env)
     sim = subprocess.Popen([str(cart_sim()), "--config", str(cfg), "--key-file", str(key),
                             "--summary", str(tmp_path / "sim.json"), "--trace", str(tmp_path / "trace.csv"),
@@ -209,6 +210,24 @@ def test_demo_plan_clean_link_figures(veer, tmp_path):
                                      "whole_run": {k: ground["total"][k] for k in
                                                    ("frames_sent", "bytes_sent", "frames_received",
                                                     "bytes_received")}})
+
+
+def test_demo_on_a_cart_sized_for_it(veer, tmp_path):
+    """A cart configured with the demo plan's own capacity (ground_station
+    --fit-cart: its bytes, knots, waypoints and legs) takes the plan over a
+    lossy link and runs it to the end like the default cart, in a fraction of
+    the memory (the default cart sizes for any plan)."""
+    sim, ground, _, trace = run_link(tmp_path, drop=0.1, seed=5, fit_cart=True)
+    assert sim["state"] == "STOPPED" and sim["stop_reason"] == "END_OF_PLAN", sim
+    got, want = sim["pose"], ground["plan_end_pose"]
+    assert math.hypot(got[0] - want[0], got[1] - want[1]) < 0.01
+    default_tmp = tmp_path / "default"
+    default_tmp.mkdir()
+    sim_default, _, _, _ = run_link(default_tmp, drop=0.0, duplicate=0.0, reorder=0.0, corrupt=0.0, deliver_only=True)
+    assert sim["player_memory_bytes"] * 4 < sim_default["player_memory_bytes"], (sim["player_memory_bytes"],
+                                                                                  sim_default["player_memory_bytes"])
+    record_figure("cart_sized_for_demo", {"player_memory_bytes": sim["player_memory_bytes"],
+                                          "default_player_memory_bytes": sim_default["player_memory_bytes"]})
 
 
 def test_small_frames_selective_repeat(veer, tmp_path):

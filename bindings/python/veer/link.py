@@ -44,7 +44,8 @@ TRUNCATED, CRC, MALFORMED, WRONG_DIRECTION, STALE, REPLAY, PLAN_TAG = 2, 3, 4, 6
 
 class LinkDef(ctypes.Structure):
     """Mirrors veer_link_def (include/veer/link.h); tests/test_link.c pins its layout."""
-    _fields_ = [("cart", ctypes.c_uint32), ("key", ctypes.c_uint8 * KEY_BYTES), ("frame_size", ctypes.c_int)]
+    _fields_ = [("cart", ctypes.c_uint32), ("key", ctypes.c_uint8 * KEY_BYTES), ("frame_size", ctypes.c_int),
+                ("max_plan_bytes", ctypes.c_uint32)]
 
 
 _MESSAGE_BYTES = 8192  # room for veer_link_message (about 700 bytes) and any growth
@@ -196,16 +197,35 @@ def frame_body(frame):
     return frame[i:i + n]
 
 
-def cart_config(request, cart, frame_size=FRAME_DEFAULT, link_timeout=None):
+def cart_config(request, cart, frame_size=FRAME_DEFAULT, link_timeout=None, max_plan_bytes=0, max_knots=0,
+                max_waypoints=0, max_legs=0):
     """CartConfig bytes (link.proto) for a cart that drives what `request`
     (a veer.v1.PlanRequest, or a Plan's .request) describes: its drive,
-    limits and cart name. The key is not in it."""
-    m = link_pb2().CartConfig(cart=int(cart), cart_name=request.cart_id, frame_size=int(frame_size))
+    limits and cart name, and the largest plan it takes (0: the library's
+    maxima; they size the cart's memory, see veer_player_def). The key is
+    not in it."""
+    m = link_pb2().CartConfig(cart=int(cart), cart_name=request.cart_id, frame_size=int(frame_size),
+                              max_plan_bytes=int(max_plan_bytes), max_knots=int(max_knots),
+                              max_waypoints=int(max_waypoints), max_legs=int(max_legs))
     m.drive.CopyFrom(request.drive)
     m.limits.CopyFrom(request.limits)
     if link_timeout is not None:
         m.link_timeout = float(link_timeout)
     return m.SerializeToString()
+
+
+PLAN_BYTES_MIN = 256  # VEER_LINK_MIN_PLAN_BYTES
+
+
+def cart_capacity(plan_bytes):
+    """The smallest capacity a cart needs to take this plan (Plan bytes):
+    cart_config's max_plan_bytes, max_knots, max_waypoints and max_legs, as
+    a dict. A cart sized so needs the least memory that holds the plan
+    (veer_player_size_for); any larger plan is refused (reason CAPACITY)."""
+    plan_bytes = bytes(plan_bytes)
+    m = _pb.modules()["plan"].Plan.FromString(plan_bytes)
+    return {"max_plan_bytes": max(len(plan_bytes), PLAN_BYTES_MIN), "max_knots": int(m.profile.knot_count),
+            "max_waypoints": len(m.route.waypoints), "max_legs": len(m.route.legs)}
 
 
 # ---- frames ------------------------------------------------------------------
@@ -216,9 +236,11 @@ GapReport or PlayerReport, and the frame's bytes."""
 
 
 class Link:
-    """One cart's link: its number, pre-shared key and frame size."""
+    """One cart's link: its number, pre-shared key and frame size, and the
+    most Plan bytes the cart takes (0: the library's maximum; a larger plan
+    is refused before it goes on the air)."""
 
-    def __init__(self, cart, key, frame_size=FRAME_DEFAULT):
+    def __init__(self, cart, key, frame_size=FRAME_DEFAULT, max_plan_bytes=0):
         key = bytes(key)
         if len(key) != KEY_BYTES:
             raise ValueError("a cart key has %d bytes, got %d" % (KEY_BYTES, len(key)))
@@ -226,6 +248,7 @@ class Link:
         self._def.cart = int(cart)
         ctypes.memmove(self._def.key, key, KEY_BYTES)
         self._def.frame_size = int(frame_size)
+        self._def.max_plan_bytes = int(max_plan_bytes)
         diag = _lib.out_struct(_lib.Diag)
         if _c().veer_link_def_check(ctypes.byref(self._def), ctypes.byref(diag)) != 0:
             raise ValueError(diag.message.decode("utf-8", "replace"))
