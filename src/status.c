@@ -147,6 +147,7 @@ size_t veer_sizeof(const char *type_name) {
         {"veer_route", sizeof(veer_route)},       {"veer_leg", sizeof(veer_leg)},
         {"veer_waypoint", sizeof(veer_waypoint)}, {"veer_sample", sizeof(veer_sample)},
         {"veer_leg_summary", sizeof(veer_leg_summary)}, {"veer_stop_info", sizeof(veer_stop_info)},
+        {"veer_plan_needs", sizeof(veer_plan_needs)},
     };
     if (!type_name) return 0;
     for (size_t i = 0; i < sizeof sizes / sizeof sizes[0]; i++)

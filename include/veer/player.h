@@ -93,11 +93,11 @@ typedef struct {
     uint64_t command_seq;        /* highest command sequence accepted before, 0 for none */
     /* The largest plan the cart takes, which sizes its memory
      * (veer_player_size_for) with link.max_plan_bytes and the drive's module
-     * count: the profile's knots (a plan's knot count: veer_plan_encode_pb
-     * reports it, the ground station's plan summary shows it), the route's
-     * waypoints and legs. 0: the library's maxima (VEER_WIRE_MAX_KNOTS,
-     * VEER_MAX_WAYPOINTS, VEER_MAX_LEGS). A larger plan is refused with
-     * reason CAPACITY and changes nothing. */
+     * count: the profile's knots (Profile.knot_count, plan.proto), the
+     * route's waypoints and legs. 0: the library's maxima (VEER_WIRE_MAX_KNOTS,
+     * VEER_MAX_WAYPOINTS, VEER_MAX_LEGS). A larger plan (or one for more
+     * modules than the drive has) is refused with reason CAPACITY and
+     * changes nothing. veer_plan_needs_pb (wire.h) reads a plan's needs. */
     uint32_t max_knots, max_waypoints, max_legs;
 } veer_player_def;
 

@@ -147,3 +147,20 @@ def test_table_rows_are_samples(veer):
     for k in range(0, len(tab), 13):
         smp = p.sample(float(tab.t[k]))
         assert np.array_equal(tab.pose[k], smp.pose) and np.array_equal(tab.wheel_rate[k], smp.wheel_rate)
+
+
+@pytest.mark.parametrize("name,request_", CASES, ids=IDS)
+def test_cart_capacity_matches_the_message(veer, name, request_):
+    """What a cart needs for a plan (veer_plan_needs_pb through
+    veer.link.cart_capacity) against the Plan message read by Debian's
+    python3-protobuf: its size, Profile.knot_count and the route's counts."""
+    from veer import _pb
+    import veer.link as vl
+
+    data = veer.plan(request_).to_bytes()
+    msg = _pb.message("Plan").FromString(data)
+    cap = vl.cart_capacity(data)
+    assert cap == {"max_plan_bytes": max(len(data), vl.PLAN_BYTES_MIN), "max_knots": msg.profile.knot_count,
+                   "max_waypoints": len(msg.route.waypoints), "max_legs": len(msg.route.legs)}
+    with pytest.raises(ValueError):
+        vl.cart_capacity(data[:-1])

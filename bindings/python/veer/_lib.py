@@ -205,6 +205,12 @@ class Sample(ctypes.Structure):
     ]
 
 
+class PlanNeeds(ctypes.Structure):
+    """Mirrors veer_plan_needs (include/veer/wire.h)."""
+    _fields_ = [("plan_bytes", ctypes.c_uint32), ("knots", ctypes.c_uint32), ("waypoints", ctypes.c_uint32),
+                ("legs", ctypes.c_uint32), ("modules", ctypes.c_uint32)]
+
+
 def out_struct(cls, slack=512):
     """An instance of cls for the C side to write into, with spare room after
     it, so that a library built from newer headers (a field appended to
@@ -228,6 +234,7 @@ STRUCTS = {
     "veer_leg_summary": LegSummary,
     "veer_module_setpoint": ModuleSetpoint,
     "veer_sample": Sample,
+    "veer_plan_needs": PlanNeeds,
 }
 
 _c_double_p = ctypes.POINTER(ctypes.c_double)
@@ -282,6 +289,8 @@ _PROTOTYPES = {
                                          ctypes.POINTER(ctypes.c_void_p), ctypes.POINTER(Diag)]),
     "veer_plan_encode_pb": (ctypes.c_int, [ctypes.c_void_p, ctypes.c_void_p, ctypes.c_size_t, _c_size_p,
                                            ctypes.POINTER(Diag)]),
+    "veer_plan_needs_pb": (ctypes.c_int, [_c_ubyte_p, ctypes.c_size_t, ctypes.POINTER(PlanNeeds),
+                                          ctypes.POINTER(Diag)]),
 }
 
 

@@ -218,14 +218,20 @@ PLAN_BYTES_MIN = 256  # VEER_LINK_MIN_PLAN_BYTES
 
 
 def cart_capacity(plan_bytes):
-    """The smallest capacity a cart needs to take this plan (Plan bytes):
-    cart_config's max_plan_bytes, max_knots, max_waypoints and max_legs, as
-    a dict. A cart sized so needs the least memory that holds the plan
-    (veer_player_size_for); any larger plan is refused (reason CAPACITY)."""
+    """The smallest capacity a cart needs to take this plan (Plan bytes,
+    checked as a cart checks them: veer_plan_needs_pb): cart_config's
+    max_plan_bytes, max_knots, max_waypoints and max_legs, as a dict. A cart
+    sized so needs the least memory that holds the plan
+    (veer_player_size_for); any larger plan is refused (reason CAPACITY).
+    Raises ValueError for bytes that are not a valid plan."""
     plan_bytes = bytes(plan_bytes)
-    m = _pb.modules()["plan"].Plan.FromString(plan_bytes)
-    return {"max_plan_bytes": max(len(plan_bytes), PLAN_BYTES_MIN), "max_knots": int(m.profile.knot_count),
-            "max_waypoints": len(m.route.waypoints), "max_legs": len(m.route.legs)}
+    lib = _lib.load()
+    need = _lib.out_struct(_lib.PlanNeeds)
+    diag = _lib.out_struct(_lib.Diag)
+    if lib.veer_plan_needs_pb(plan_bytes, len(plan_bytes), ctypes.byref(need), ctypes.byref(diag)) != 0:
+        raise ValueError(diag.message.decode("utf-8", "replace") or "veer_plan_needs_pb failed")
+    return {"max_plan_bytes": max(need.plan_bytes, PLAN_BYTES_MIN), "max_knots": need.knots,
+            "max_waypoints": need.waypoints, "max_legs": need.legs}
 
 
 # ---- frames ------------------------------------------------------------------
