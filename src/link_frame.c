@@ -58,8 +58,7 @@ veer_status veer_link_def_check(const veer_link_def *def, veer_diag *diag) {
     uint8_t any = 0;
     for (int i = 0; i < VEER_LINK_KEY_BYTES; i++) any |= def->key[i];
     if (!any) return LINK_FAIL(diag, VEER_ERR_VALUE, "link key is all zero: set the cart's pre-shared key");
-    if (def->max_plan_bytes != 0 &&
-        (def->max_plan_bytes < VEER_LINK_MIN_PLAN_BYTES || def->max_plan_bytes > VEER_LINK_MAX_PLAN_BYTES))
+    if (!veer__link_max_plan_ok(def->max_plan_bytes))
         return LINK_FAIL(diag, VEER_ERR_VALUE, "link max_plan_bytes %u is outside %d..%d bytes (0: the largest)",
                          (unsigned)def->max_plan_bytes, VEER_LINK_MIN_PLAN_BYTES, VEER_LINK_MAX_PLAN_BYTES);
     veer__diag_ok(diag);

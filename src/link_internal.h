@@ -11,9 +11,13 @@
 #include "veer/player.h"
 #include "veer/v1/link.pb.h"
 
-/* Plan bytes a link's cart takes at most (max_plan_bytes, 0: the largest). */
+/* Plan bytes a link's cart takes at most (max_plan_bytes, 0: the largest),
+ * and whether a max_plan_bytes is in range. */
 static inline uint32_t veer__link_max_plan(const veer_link_def *def) {
     return def->max_plan_bytes ? def->max_plan_bytes : (uint32_t)VEER_LINK_MAX_PLAN_BYTES;
+}
+static inline int veer__link_max_plan_ok(uint32_t v) {
+    return v == 0 || (v >= VEER_LINK_MIN_PLAN_BYTES && v <= VEER_LINK_MAX_PLAN_BYTES);
 }
 /* Encoded tag field at a frame's end: key 15 / wire type 2, length 16, tag. */
 #define VEER__LINK_TAG_FIELD_BYTES (2 + VEER_LINK_FRAME_TAG_BYTES)

@@ -156,9 +156,7 @@ static size_t layout(const veer_player_def *def, const veer__plan_cap *cap, size
 size_t veer_player_size_for(const veer_player_def *def) {
     veer__plan_cap cap;
     size_t work, armed;
-    uint32_t mp = def ? def->link.max_plan_bytes : 0;
-    if (!def || !plan_cap(def, &cap) || (mp && (mp < VEER_LINK_MIN_PLAN_BYTES || mp > VEER_LINK_MAX_PLAN_BYTES)))
-        return 0;
+    if (!def || !plan_cap(def, &cap) || !veer__link_max_plan_ok(def->link.max_plan_bytes)) return 0;
     return layout(def, &cap, &work, &armed);
 }
 
