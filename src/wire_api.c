@@ -133,16 +133,21 @@ size_t veer_plan_reply_size_bound(int grid_points) {
 
 /* ---- Plan bytes -> plan ------------------------------------------------- */
 
-/* The workspace of veer_plan_load_pb: plan first, decoded message behind it. */
+/* The cart's workspace (veer__wire_load_pb_cap): the plan, its submessages
+ * decoded where its grid arrays go (they are read before the grid is
+ * written), so the larger of the two. */
 size_t veer__wire_work_bytes_for(const veer__plan_cap *cap) {
-    return VEER__WIRE_ALIGN(veer__wire_plan_bytes_for(cap)) + VEER__WIRE_ALIGN(sizeof(veer_v1_Plan));
+    size_t plan = VEER__WIRE_ALIGN(veer__wire_plan_bytes_for(cap));
+    size_t msgs = veer__wire_plan_grid_at(cap) + VEER__WIRE_ALIGN(sizeof(veer__plan_msgs));
+    return plan > msgs ? plan : msgs;
 }
 
+/* The workspace of veer_plan_load_pb: plan first, decoded message behind it. */
 static veer_status load_pb(const uint8_t *bytes, size_t size, void *work, size_t work_size,
                            const veer__plan_cap *cap, veer_plan **out, veer_diag *diag) {
     veer__plan_cap max = veer__plan_cap_max();
     if (!cap) cap = &max;
-    size_t need = veer__wire_work_bytes_for(cap), at = VEER__WIRE_ALIGN(veer__wire_plan_bytes_for(cap));
+    size_t at = VEER__WIRE_ALIGN(veer__wire_plan_bytes_for(cap)), need = at + VEER__WIRE_ALIGN(sizeof(veer_v1_Plan));
     if (!work || work_size < need || ((uintptr_t)work % sizeof(double)) != 0)
         return veer__fail_plain(diag, VEER_ERR_VALUE,
                                 "plan workspace: needs %zu bytes aligned for double (veer_plan_workspace_size())",
@@ -157,8 +162,16 @@ veer_status veer__wire_load_pb_cap(const uint8_t *bytes, size_t size, void *work
                                    const veer__plan_cap *cap, const veer_plan **out, veer_diag *diag) {
     veer__diag_ok(diag);
     *out = NULL;
+    veer__plan_cap max = veer__plan_cap_max();
+    if (!cap) cap = &max;
+    size_t need = veer__wire_work_bytes_for(cap);
+    if (!work || work_size < need || ((uintptr_t)work % sizeof(double)) != 0)
+        return veer__fail_plain(diag, VEER_ERR_VALUE, "plan workspace: needs %zu bytes aligned for double", need);
+    veer__plan_msgs *msgs = (veer__plan_msgs *)((char *)work + veer__wire_plan_grid_at(cap));
+    veer__plan_in in;
+    veer_status st = veer__wire_plan_read(bytes, size, msgs, &in, diag);
     veer_plan *p = NULL;
-    veer_status st = load_pb(bytes, size, work, work_size, cap, &p, diag);
+    if (st == VEER_OK) st = veer__wire_plan_load_in(&in, work, work_size, cap, &p, diag);
     if (st == VEER_OK) *out = p;
     return st;
 }
@@ -168,10 +181,12 @@ veer_status veer_plan_load_pb(const uint8_t *plan, size_t plan_size, void *work,
     veer__diag_ok(diag);
     if (!out) return veer__fail_plain(diag, VEER_ERR_NULL, "out is NULL");
     *out = NULL;
-    veer_plan *p = NULL;
-    veer_status st = load_pb(plan, plan_size, work, work_size, NULL, &p, diag);
-    if (st == VEER_OK) *out = p;
-    return st;
+    /* The documented room (the cart's reader below needs less: veer__wire_work_bytes_for). */
+    if (!work || work_size < VEER__WIRE_WORK_BYTES || ((uintptr_t)work % sizeof(double)) != 0)
+        return veer__fail_plain(diag, VEER_ERR_VALUE,
+                                "plan workspace: needs %zu bytes aligned for double (veer_plan_workspace_size())",
+                                (size_t)VEER__WIRE_WORK_BYTES);
+    return veer__wire_load_pb_cap(plan, plan_size, work, work_size, NULL, out, diag);
 }
 
 veer_status veer_plan_sample_pb(const uint8_t *plan, size_t plan_size, double t, veer_sample *out) {

@@ -122,13 +122,86 @@ veer__plan_cap veer__plan_cap_max(void);
 /* Bytes of the plan part of a workspace for plans within cap
  * (VEER__WIRE_PLAN_BYTES of its path caps, knots and modules). */
 size_t veer__wire_plan_bytes_for(const veer__plan_cap *cap);
-/* ... and with the decoded message behind it (veer__wire_load_pb_cap). */
+/* ... and with room for the submessages veer__wire_load_pb_cap decodes
+ * (veer__plan_msgs, overlapping the grid arrays). */
 size_t veer__wire_work_bytes_for(const veer__plan_cap *cap);
 /* veer_plan_load_pb for plans within cap (NULL: the maxima), in work of
  * veer__wire_work_bytes_for(cap) bytes: a plan beyond the cap gives
- * VEER_ERR_CAPACITY (diag says which) and changes nothing but work. */
+ * VEER_ERR_CAPACITY (diag says which) and changes nothing but work. Reads
+ * the bytes with veer__wire_plan_read (no veer_v1_Plan); the plan keeps
+ * no pointer into them. */
 veer_status veer__wire_load_pb_cap(const uint8_t *bytes, size_t size, void *work, size_t work_size,
                                    const veer__plan_cap *cap, const veer_plan **out, veer_diag *diag);
+
+/* A Plan message's contents as the rebuild (wire_plan.c) reads them, from
+ * either source: a decoded veer_v1_Plan (veer__wire_plan_in_from_msg) or
+ * the Plan bytes read field by field (veer__wire_plan_read, wire_cart.c).
+ * The pointers are borrowed: into the decoded message, or into the bytes
+ * and the submessages decoded beside them; they must stay valid while the
+ * rebuild runs (the cart's submessages only until the head is loaded: see
+ * veer__wire_plan_read). Absent submessages are NULL. */
+typedef struct {
+    double s_step, sdot_step, sddot_step, sddot_split, start_sdot; /* Profile fields 1, 2, 6, 7, 8 */
+    uint32_t knot_count, grid_points;
+    const uint8_t *knots; /* the knots' bytes (Profile.knots) */
+    size_t knots_size;
+    size_t jerk_count;              /* jerk windows, s */
+    const double *jerk;             /* ... as doubles (decoded message), or */
+    const uint8_t *jerk_packed;     /* ... as 8-byte little-endian doubles (the wire's form) */
+} veer__profile_in;
+
+typedef struct {
+    uint32_t schema_version, library_version, path_model;
+    const veer_v1_DriveDef *drive;
+    const veer_v1_Limits *limits;
+    const veer_v1_Route *route;
+    const veer_v1_PlanOptions *options;
+    int has_profile;
+    veer__profile_in profile;
+    double duration, length;
+    const uint8_t *content_hash; /* as received; its size must be 32 */
+    size_t content_hash_size;
+    /* The hash of the contents the check compares content_hash with: the
+     * decoded message's (veer__wire_plan_hash re-encodes it, so the message
+     * is not const) when msg is set, else digest (digest_ok 0: the contents
+     * could not be encoded). */
+    veer_v1_Plan *msg;
+    uint8_t digest[32];
+    int digest_ok;
+} veer__plan_in;
+
+/* Points in at m's contents (in->msg = m). */
+void veer__wire_plan_in_from_msg(veer_v1_Plan *m, veer__plan_in *in);
+
+/* ---- wire_cart.c: Plan bytes -> veer__plan_in, no veer_v1_Plan ------------ */
+
+/* The submessages the cart decodes with nanopb (drive, limits, route,
+ * options); the profile, the largest part, stays in the bytes. */
+typedef struct {
+    veer_v1_DriveDef drive;
+    veer_v1_Limits limits;
+    veer_v1_Route route;
+    veer_v1_PlanOptions options;
+} veer__plan_msgs;
+
+/* Reads Plan bytes as veer_v1_Plan's decoder would (the same statuses for
+ * malformed bytes, a field over its capacity VEER_ERR_CAPACITY), decoding
+ * the submessages into msgs and pointing in at them and into bytes, and
+ * hashes the contents as veer__wire_plan_hash does (in->digest), so that
+ * msgs is needed only until the plan's head is loaded. The one difference:
+ * jerk_window must come in one field (packed, as every encoder writes it,
+ * or a single unpacked value); in pieces it is refused (VEER_ERR_DECODE). */
+veer_status veer__wire_plan_read(const uint8_t *bytes, size_t size, veer__plan_msgs *msgs, veer__plan_in *in,
+                                 veer_diag *diag);
+
+/* Offset of the grid arrays in a workspace for cap: veer__wire_load_pb_cap
+ * decodes the submessages there, which the grid overwrites only after the
+ * plan's head has been loaded from them. */
+size_t veer__wire_plan_grid_at(const veer__plan_cap *cap);
+
+/* veer__wire_plan_load from in (which outlives the call; see above). */
+veer_status veer__wire_plan_load_in(const veer__plan_in *in, void *work, size_t work_size, const veer__plan_cap *cap,
+                                    veer_plan **out, veer_diag *diag);
 
 /* Rebuilds a plan from a decoded Plan message (checks everything: version,
  * path model, hash, values, profile) inside work (veer__wire_plan_bytes_for

@@ -174,7 +174,7 @@ static double arrival_time(double h, double va, double vb, double du, int r) {
 
 /* Parses the profile against the path's segments. With s, x NULL only counts
  * the grid points (*count); otherwise fills them and the segments' k0, k1. */
-static veer_status parse_profile(const veer_v1_Profile *pr, const veer_path *path, double *s, double *x,
+static veer_status parse_profile(const veer__profile_in *pr, const veer_path *path, double *s, double *x,
                                  veer_plan_segment *segs, int *count, veer_diag *diag) {
     if (!(pr->s_step >= 1e-9 && pr->s_step <= 1.0) || !(pr->sdot_step >= 1e-9 && pr->sdot_step <= 1.0) ||
         !(pr->sddot_step >= 1e-12 && pr->sddot_step <= 1e3) ||
@@ -183,7 +183,7 @@ static veer_status parse_profile(const veer_v1_Profile *pr, const veer_path *pat
         return veer__fail_plain(diag, VEER_ERR_VALUE,
                                 "plan.profile: steps s %g, sdot %g, sddot %g, split %g are out of range", pr->s_step,
                                 pr->sdot_step, pr->sddot_step, pr->sddot_split);
-    rbuf b = {pr->knots.bytes, pr->knots.size, 0};
+    rbuf b = {pr->knots, pr->knots_size, 0};
     int k = 0;
     for (int j = 0; j < path->segment_count; j++) {
         const veer_path_segment *ps = &path->segments[j];
@@ -284,14 +284,23 @@ static veer_status timeline(veer_plan *plan, veer_diag *diag) {
 }
 
 /* The segments' jerk-limiting windows: none, or one per segment. */
-static veer_status jerk_windows(const veer_v1_Profile *pr, veer_plan *plan, veer_diag *diag) {
-    if (pr->jerk_window_count == 0) return VEER_OK;
-    if ((int)pr->jerk_window_count != plan->segment_count)
+static double jerk_at(const veer__profile_in *pr, int j) {
+    if (pr->jerk) return pr->jerk[j];
+    uint64_t u = 0;
+    for (int i = 7; i >= 0; i--) u = u << 8 | pr->jerk_packed[8 * j + i];
+    double v;
+    memcpy(&v, &u, sizeof v);
+    return v;
+}
+
+static veer_status jerk_windows(const veer__profile_in *pr, veer_plan *plan, veer_diag *diag) {
+    if (pr->jerk_count == 0) return VEER_OK;
+    if (pr->jerk_count != (size_t)plan->segment_count)
         return veer__fail_plain(diag, VEER_ERR_VALUE,
-                                "plan.profile: %d jerk windows for %d path segments", (int)pr->jerk_window_count,
+                                "plan.profile: %d jerk windows for %d path segments", (int)pr->jerk_count,
                                 plan->segment_count);
     for (int j = 0; j < plan->segment_count; j++) {
-        double tau = pr->jerk_window[j];
+        double tau = jerk_at(pr, j);
         if (!(tau >= 0.0 && tau <= 3600.0))
             return veer__fail_plain(diag, VEER_ERR_VALUE,
                                     "plan.profile: jerk window %d is %g s", j, tau);
@@ -302,7 +311,7 @@ static veer_status jerk_windows(const veer_v1_Profile *pr, veer_plan *plan, veer
 
 /* Everything but the profile: versions, drive, limits, route, path. plan
  * starts a block of VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap) bytes. */
-static veer_status load_head(const veer_v1_Plan *m, veer_plan *plan, int piece_cap, int segment_cap,
+static veer_status load_head(const veer__plan_in *m, veer_plan *plan, int piece_cap, int segment_cap,
                              veer_diag *diag) {
     if (m->schema_version != VEER_WIRE_SCHEMA_VERSION)
         return veer__fail_plain(diag, VEER_ERR_VERSION,
@@ -312,22 +321,21 @@ static veer_status load_head(const veer_v1_Plan *m, veer_plan *plan, int piece_c
         return veer__fail_plain(diag, VEER_ERR_VERSION,
                                 "plan: made with path model %u, this library builds paths with model %d",
                                 (unsigned)m->path_model, VEER_WIRE_PATH_MODEL);
-    if (!m->has_drive || !m->has_limits || !m->has_route || !m->has_profile)
-        return veer__fail_plain(
-            diag, VEER_ERR_VALUE, "plan: the %s is missing",
-            !m->has_drive ? "drive" : !m->has_limits ? "limits" : !m->has_route ? "route" : "profile");
+    if (!m->drive || !m->limits || !m->route || !m->has_profile)
+        return veer__fail_plain(diag, VEER_ERR_VALUE, "plan: the %s is missing",
+                                !m->drive ? "drive" : !m->limits ? "limits" : !m->route ? "route" : "profile");
     memset(plan, 0, sizeof *plan);
     veer__plan_attach(plan, piece_cap, segment_cap);
     veer_status st;
-    if ((st = veer__wire_drive_from_pb(&m->drive, &plan->drive, diag))) return st;
+    if ((st = veer__wire_drive_from_pb(m->drive, &plan->drive, diag))) return st;
     if ((st = veer_drive_check(&plan->drive, diag))) return st;
     plan->module_count = veer_drive_module_count(&plan->drive);
     plan->steered = plan->drive.kind == VEER_DRIVE_STEERED;
-    if ((st = veer__wire_limits_from_pb(&m->limits, plan->module_count, &plan->limits, diag))) return st;
+    if ((st = veer__wire_limits_from_pb(m->limits, plan->module_count, &plan->limits, diag))) return st;
     if ((st = veer__limits_check(&plan->drive, &plan->limits, diag))) return st;
     plan->options = veer_default_plan_options();
-    if (m->has_options && (st = veer__wire_options_from_pb(&m->options, &plan->options, diag))) return st;
-    if ((st = veer__wire_route_from_pb(&m->route, plan->module_count, &plan->route, diag))) return st;
+    if (m->options && (st = veer__wire_options_from_pb(m->options, &plan->options, diag))) return st;
+    if ((st = veer__wire_route_from_pb(m->route, plan->module_count, &plan->route, diag))) return st;
     veer__row_ctx_init(&plan->rows, &plan->drive, &plan->limits, &plan->options);
     if ((st = veer__path_build(&plan->route, &plan->path, diag))) return st;
     plan->segment_count = plan->path.segment_count;
@@ -350,7 +358,7 @@ static void lay_out(veer_plan *plan, int n, char *grid) {
     plan->binding = (veer_limit_id *)(plan->steer + (size_t)n * (size_t)M);
 }
 
-static veer_status check_tail(veer_v1_Plan *m, const veer_plan *plan, int check_hash, veer_diag *diag) {
+static veer_status check_tail(const veer__plan_in *m, const veer_plan *plan, int check_hash, veer_diag *diag) {
     if (!check_hash) return VEER_OK;
     double d = plan->duration;
     if (!(fabs(m->duration - d) <= 1e-6 * (1.0 + d)))
@@ -359,8 +367,8 @@ static veer_status check_tail(veer_v1_Plan *m, const veer_plan *plan, int check_
                                 "that builds paths differently)",
                                 m->duration, d);
     uint8_t h[32];
-    if (m->content_hash.size != 32 || veer__wire_plan_hash(m, h) != VEER_OK ||
-        memcmp(h, m->content_hash.bytes, 32) != 0)
+    int hashed = m->msg ? veer__wire_plan_hash(m->msg, h) == VEER_OK : m->digest_ok;
+    if (m->content_hash_size != 32 || !hashed || memcmp(m->msg ? h : m->digest, m->content_hash, 32) != 0)
         return veer__fail_plain(diag, VEER_ERR_DECODE,
                                 "plan: the content hash does not match its contents (altered or damaged)");
     return VEER_OK;
@@ -371,21 +379,23 @@ static veer_status over_cap(const char *what, int n, int cap, veer_diag *diag) {
     return veer__fail_plain(diag, VEER_ERR_CAPACITY, "plan: %d %s, this cart takes at most %d", n, what, cap);
 }
 
-static veer_status load(veer_v1_Plan *m, void *work, size_t work_size, const veer__plan_cap *cap, veer_plan **out,
+static veer_status load(const veer__plan_in *m, void *work, size_t work_size, const veer__plan_cap *cap, veer_plan **out,
                         int check_hash, veer_diag *diag) {
     veer__plan_cap max = veer__plan_cap_max();
     if (!cap) cap = &max;
     size_t need = veer__wire_plan_bytes_for(cap);
     if (!work || work_size < need || ((uintptr_t)work % sizeof(double)) != 0)
         return veer__fail_plain(diag, VEER_ERR_VALUE, "plan workspace: needs %zu bytes aligned for double", need);
-    if (m->has_route && (int)m->route.waypoints_count > cap->waypoints)
-        return over_cap("waypoints", (int)m->route.waypoints_count, cap->waypoints, diag);
-    if (m->has_route && (int)m->route.legs_count > cap->legs)
-        return over_cap("legs", (int)m->route.legs_count, cap->legs, diag);
+    if (m->route && (int)m->route->waypoints_count > cap->waypoints)
+        return over_cap("waypoints", (int)m->route->waypoints_count, cap->waypoints, diag);
+    if (m->route && (int)m->route->legs_count > cap->legs)
+        return over_cap("legs", (int)m->route->legs_count, cap->legs, diag);
     int pieces, segments;
     veer__path_caps(cap->waypoints, cap->legs, &pieces, &segments);
     veer_plan *plan = (veer_plan *)work;
     char *grid = (char *)work + VEER__PLAN_BLOCK_BYTES(pieces, segments);
+    /* The cart's submessages may lie where the grid goes (veer__wire_plan_read): m's drive, limits, route
+     * and options are read by load_head only. */
     veer_status st = load_head(m, plan, pieces, segments, diag);
     int n = 0;
     if (st == VEER_OK && plan->module_count > cap->modules)
@@ -404,19 +414,56 @@ static veer_status load(veer_v1_Plan *m, void *work, size_t work_size, const vee
     return VEER_OK;
 }
 
-veer_status veer__wire_plan_load(veer_v1_Plan *m, void *work, size_t work_size, const veer__plan_cap *cap,
-                                 veer_plan **out, veer_diag *diag) {
+void veer__wire_plan_in_from_msg(veer_v1_Plan *m, veer__plan_in *in) {
+    memset(in, 0, sizeof *in);
+    in->schema_version = m->schema_version;
+    in->library_version = m->library_version;
+    in->path_model = m->path_model;
+    in->drive = m->has_drive ? &m->drive : NULL;
+    in->limits = m->has_limits ? &m->limits : NULL;
+    in->route = m->has_route ? &m->route : NULL;
+    in->options = m->has_options ? &m->options : NULL;
+    in->has_profile = m->has_profile;
+    const veer_v1_Profile *pr = &m->profile;
+    veer__profile_in *q = &in->profile;
+    q->s_step = pr->s_step, q->sdot_step = pr->sdot_step, q->sddot_step = pr->sddot_step;
+    q->sddot_split = pr->sddot_split, q->start_sdot = pr->start_sdot;
+    q->knot_count = pr->knot_count, q->grid_points = pr->grid_points;
+    q->knots = pr->knots.bytes, q->knots_size = pr->knots.size;
+    q->jerk_count = pr->jerk_window_count, q->jerk = pr->jerk_window;
+    in->duration = m->duration, in->length = m->length;
+    in->content_hash = m->content_hash.bytes, in->content_hash_size = m->content_hash.size;
+    in->msg = m;
+}
+
+size_t veer__wire_plan_grid_at(const veer__plan_cap *cap) {
+    int pieces, segments;
+    veer__path_caps(cap->waypoints, cap->legs, &pieces, &segments);
+    return VEER__PLAN_BLOCK_BYTES(pieces, segments);
+}
+
+veer_status veer__wire_plan_load_in(const veer__plan_in *in, void *work, size_t work_size, const veer__plan_cap *cap,
+                                    veer_plan **out, veer_diag *diag) {
     *out = NULL;
-    veer_status st = load(m, work, work_size, cap, out, 1, diag);
+    veer_status st = load(in, work, work_size, cap, out, 1, diag);
     if (st == VEER_OK) veer__diag_ok(diag);
     return st;
 }
 
-veer_status veer__wire_plan_decode_heap(veer_v1_Plan *m, veer_plan **out, veer_diag *diag) {
+veer_status veer__wire_plan_load(veer_v1_Plan *m, void *work, size_t work_size, const veer__plan_cap *cap,
+                                 veer_plan **out, veer_diag *diag) {
+    veer__plan_in in;
+    veer__wire_plan_in_from_msg(m, &in);
+    return veer__wire_plan_load_in(&in, work, work_size, cap, out, diag);
+}
+
+veer_status veer__wire_plan_decode_heap(veer_v1_Plan *msg, veer_plan **out, veer_diag *diag) {
     *out = NULL;
+    veer__plan_in in, *m = &in;
+    veer__wire_plan_in_from_msg(msg, &in);
     /* one block sized for the message's route (counts beyond the maxima fail in load_head) */
     int piece_cap, segment_cap;
-    veer__path_caps(m->has_route ? (int)m->route.waypoints_count : 0, m->has_route ? (int)m->route.legs_count : 0,
+    veer__path_caps(m->route ? (int)m->route->waypoints_count : 0, m->route ? (int)m->route->legs_count : 0,
                     &piece_cap, &segment_cap);
     size_t bytes = VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap);
     veer_plan *plan = veer__calloc(1, bytes);
@@ -798,7 +845,9 @@ veer_status veer__wire_plan_to_pb(const veer_plan *plan, const veer_v1_PlanReque
     for (size_t L = 0; L < sizeof levels / sizeof levels[0]; L++) {
         st = write_profile(plan, levels[L], tmp, &m->profile, diag);
         if (st != VEER_OK) break; /* capacity: a finer level only needs more */
-        st = load(m, work, wb, NULL, &dec, 0, &d2);
+        veer__plan_in in;
+        veer__wire_plan_in_from_msg(m, &in);
+        st = load(&in, work, wb, NULL, &dec, 0, &d2);
         if (st != VEER_OK) {
             if (diag) *diag = d2;
             break;

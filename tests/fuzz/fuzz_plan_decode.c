@@ -1,9 +1,12 @@
-/* libFuzzer target: Plan bytes off the radio into the cart-side decoder
- * (veer_plan_load_pb, veer_plan_sample_pb), then every reader of the
+/* libFuzzer target: Plan bytes off the radio into the cart-side decoders
+ * (veer_plan_load_pb: the cart's field-by-field reader, wire_cart.c;
+ * veer_plan_sample_pb: a decoded veer_v1_Plan), then every reader of the
  * decoded plan. Findings: a crash, a sanitizer report, a NaN or infinity in
  * any output, a status outside the table, any allocation by the cart-side
- * code, the heap decoder disagreeing with the workspace decoder, or a plan
- * the library encodes that it then cannot load.
+ * code, the decoders disagreeing (status, or duration to the bit; the one
+ * allowed difference: the cart's reader refuses jerk_window in pieces,
+ * which the decoder takes), or a plan the library encodes that it then
+ * cannot load.
  *
  * Most mutations break the plan's content hash and its stated duration,
  * which the decoder checks last (after everything else has been parsed).
@@ -129,19 +132,21 @@ static veer_status cart_load(const uint8_t *data, size_t size, fuzz_reader *r, v
     veer_sample s;
     veer_status st2 = veer_plan_sample_pb(data, size, 0.5 * (p ? veer_plan_duration(p) : 0.0), &s);
     fuzz_cart_side = 0;
-    FUZZ_CHECK(st2 == st, "veer_plan_sample_pb says %s, veer_plan_load_pb %s", veer_status_name(st2),
-               veer_status_name(st));
+    int pieces = st == VEER_ERR_DECODE && strstr(diag->message, "pieces") != NULL;
+    FUZZ_CHECK(st2 == st || pieces, "veer_plan_sample_pb says %s, veer_plan_load_pb %s (%s)",
+               veer_status_name(st2), veer_status_name(st), diag->message);
     if (st2 == VEER_OK) FUZZ_CHECK(fuzz_sample_finite(&s), "veer_plan_sample_pb gave a non-finite value");
 
     /* The heap decoder (ground side) makes the same checks. */
     veer_plan *h = NULL;
     veer_diag hd;
     veer_status st3 = veer_plan_decode_pb(data, size, &h, &hd);
-    FUZZ_CHECK(st3 == st, "veer_plan_decode_pb says %s, veer_plan_load_pb %s", veer_status_name(st3),
-               veer_status_name(st));
+    FUZZ_CHECK(st3 == st2, "veer_plan_decode_pb says %s, veer_plan_sample_pb %s", veer_status_name(st3),
+               veer_status_name(st2));
     if (h) {
-        FUZZ_CHECK(fabs(veer_plan_duration(h) - veer_plan_duration(p)) <= 1e-9 * (1.0 + veer_plan_duration(p)),
-                   "heap and workspace decoders give different durations");
+        if (p)
+            FUZZ_CHECK(veer_plan_duration(h) == veer_plan_duration(p),
+                       "the heap decoder and the cart's reader give different durations");
         veer_plan_destroy(h);
     }
     FUZZ_CHECK(fuzz_heap_bytes == 0, "%zu bytes left on the heap", fuzz_heap_bytes);
