@@ -60,6 +60,9 @@ static inline veer_limit_id veer__limit(int kind, int module) {
     return id;
 }
 static inline int veer__finite(double v) { return isfinite(v); }
+/* n rounded up to a multiple of 16 bytes: where blocks laid out in one buffer start. */
+#define VEER__ALIGN16(n) (((size_t)(n) + 15u) & ~(size_t)15u)
+
 /* Plausible cart dimensions, m: a wheel radius, a track or a module offset
  * outside [VEER_LENGTH_MIN, VEER_LENGTH_MAX] is a typing mistake, and its
  * reciprocal would overflow the setpoints. */

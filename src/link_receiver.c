@@ -19,11 +19,10 @@ _Static_assert(sizeof(((veer_v1_PlanChunk *)0)->data.bytes) >= VEER_LINK_FRAME_M
 _Static_assert(sizeof(((veer_v1_GapReport *)0)->missing.bytes) == VEER_LINK_MAX_CHUNKS / 8,
                "link.options: GapReport.missing");
 
-#define ALIGN16(n) (((size_t)(n) + 15u) & ~(size_t)15u)
 
 size_t veer_link_receiver_size_for(const veer_link_def *def) {
     if (!def) return 0;
-    return ALIGN16(sizeof(veer_link_receiver) + veer__link_max_plan(def) + VEER_LINK_PLAN_TAG_BYTES);
+    return VEER__ALIGN16(sizeof(veer_link_receiver) + veer__link_max_plan(def) + VEER_LINK_PLAN_TAG_BYTES);
 }
 
 size_t veer_link_receiver_size(void) {

@@ -68,11 +68,11 @@ veer_status veer__plan_options_check(const veer_plan_options *o, veer_diag *diag
 void veer__plan_attach(veer_plan *plan, int piece_cap, int segment_cap) {
     if (piece_cap < 0) piece_cap = 0;
     if (segment_cap < 0) segment_cap = 0;
-    char *at = (char *)plan + VEER__PLAN_ALIGN(sizeof *plan);
+    char *at = (char *)plan + VEER__ALIGN16(sizeof *plan);
     veer_path_piece *pieces = (veer_path_piece *)at;
-    at += VEER__PLAN_ALIGN((size_t)piece_cap * sizeof *pieces);
+    at += VEER__ALIGN16((size_t)piece_cap * sizeof *pieces);
     veer_path_segment *segments = (veer_path_segment *)at;
-    at += VEER__PLAN_ALIGN((size_t)segment_cap * sizeof *segments);
+    at += VEER__ALIGN16((size_t)segment_cap * sizeof *segments);
     /* zeroed, as when they were inside the struct: the decoder sets only some segment fields and
      * relies on the rest being 0 */
     memset(pieces, 0, (size_t)(at - (char *)pieces) + (size_t)segment_cap * sizeof *plan->segs);

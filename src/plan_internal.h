@@ -221,11 +221,10 @@ struct veer_plan {
  * segment_cap segments (VEER_PATH_*_FOR the route: veer__path_caps). The
  * struct does not own its arrays apart from the block, so a plan is never
  * copied by value. */
-#define VEER__PLAN_ALIGN(n) (((size_t)(n) + 15u) & ~(size_t)15u)
 #define VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap)                                                             \
-    (VEER__PLAN_ALIGN(sizeof(veer_plan)) + VEER__PLAN_ALIGN((size_t)(piece_cap) * sizeof(veer_path_piece)) +     \
-     VEER__PLAN_ALIGN((size_t)(segment_cap) * sizeof(veer_path_segment)) +                                       \
-     VEER__PLAN_ALIGN((size_t)(segment_cap) * sizeof(veer_plan_segment)))
+    (VEER__ALIGN16(sizeof(veer_plan)) + VEER__ALIGN16((size_t)(piece_cap) * sizeof(veer_path_piece)) +     \
+     VEER__ALIGN16((size_t)(segment_cap) * sizeof(veer_path_segment)) +                                       \
+     VEER__ALIGN16((size_t)(segment_cap) * sizeof(veer_plan_segment)))
 /* Points the arrays of plan (at the start of a block of at least
  * VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap) bytes, aligned for double)
  * into the block behind the struct and zeroes them; the path is left empty,

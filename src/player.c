@@ -21,7 +21,6 @@
 #define PLAYER_FAIL(diag, status, ...) veer__fail_plain((diag), (status), __VA_ARGS__)
 
 #define STOP_ADVANCE_MAX 0.1 /* s of braking one call advances at most (bounded work) */
-#define ALIGN16(n) (((size_t)(n) + 15u) & ~(size_t)15u)
 
 struct veer_player {
     size_t memory_size;
@@ -148,9 +147,9 @@ static int plan_cap(const veer_player_def *def, veer__plan_cap *cap) {
 /* The player's memory: the struct, the plan workspace, the armed plan's
  * bytes, the receiver. */
 static size_t layout(const veer_player_def *def, const veer__plan_cap *cap, size_t *work, size_t *armed) {
-    *work = ALIGN16(veer__wire_work_bytes_for(cap));
-    *armed = ALIGN16(veer__link_max_plan(&def->link));
-    return ALIGN16(sizeof(veer_player)) + *work + *armed + veer_link_receiver_size_for(&def->link);
+    *work = VEER__ALIGN16(veer__wire_work_bytes_for(cap));
+    *armed = VEER__ALIGN16(veer__link_max_plan(&def->link));
+    return VEER__ALIGN16(sizeof(veer_player)) + *work + *armed + veer_link_receiver_size_for(&def->link);
 }
 
 size_t veer_player_size_for(const veer_player_def *def) {
@@ -217,7 +216,7 @@ veer_status veer_player_init(void *memory, size_t size, const veer_player_def *d
     p->state = VEER_PLAYER_IDLE;
     p->stop_reason = VEER_STOP_NONE;
     p->last_rejection = VEER_LINK_NONE;
-    unsigned char *base = (unsigned char *)memory + ALIGN16(sizeof(veer_player));
+    unsigned char *base = (unsigned char *)memory + VEER__ALIGN16(sizeof(veer_player));
     p->work = base;
     p->work_size = work_size;
     p->armed = base + work_size;

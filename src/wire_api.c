@@ -137,8 +137,8 @@ size_t veer_plan_reply_size_bound(int grid_points) {
  * decoded where its grid arrays go (they are read before the grid is
  * written), so the larger of the two. */
 size_t veer__wire_work_bytes_for(const veer__plan_cap *cap) {
-    size_t plan = VEER__WIRE_ALIGN(veer__wire_plan_bytes_for(cap));
-    size_t msgs = veer__wire_plan_grid_at(cap) + VEER__WIRE_ALIGN(sizeof(veer__plan_msgs));
+    size_t plan = VEER__ALIGN16(veer__wire_plan_bytes_for(cap));
+    size_t msgs = veer__wire_plan_grid_at(cap) + VEER__ALIGN16(sizeof(veer__plan_msgs));
     return plan > msgs ? plan : msgs;
 }
 
@@ -147,7 +147,7 @@ static veer_status load_pb(const uint8_t *bytes, size_t size, void *work, size_t
                            const veer__plan_cap *cap, veer_plan **out, veer_diag *diag) {
     veer__plan_cap max = veer__plan_cap_max();
     if (!cap) cap = &max;
-    size_t at = VEER__WIRE_ALIGN(veer__wire_plan_bytes_for(cap)), need = at + VEER__WIRE_ALIGN(sizeof(veer_v1_Plan));
+    size_t at = VEER__ALIGN16(veer__wire_plan_bytes_for(cap)), need = at + VEER__ALIGN16(sizeof(veer_v1_Plan));
     if (!work || work_size < need || ((uintptr_t)work % sizeof(double)) != 0)
         return veer__fail_plain(diag, VEER_ERR_VALUE,
                                 "plan workspace: needs %zu bytes aligned for double (veer_plan_workspace_size())",
@@ -280,7 +280,7 @@ veer_status veer_plan_table_pb(const uint8_t *plan, size_t plan_size, double rat
         veer__free(work, wb);
         return st;
     }
-    const veer_v1_Plan *m = (const veer_v1_Plan *)((char *)work + VEER__WIRE_ALIGN(VEER__WIRE_PLAN_WORK_BYTES));
+    const veer_v1_Plan *m = (const veer_v1_Plan *)((char *)work + VEER__ALIGN16(VEER__WIRE_PLAN_WORK_BYTES));
     int M = p->module_count;
     /* Sizes. */
     size_t module_body = 0;

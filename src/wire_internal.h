@@ -110,14 +110,13 @@ veer__plan_cap veer__plan_cap_max(void);
  * grid arrays (s, x, t, steer, binding) for knot_cap knots of `modules`
  * modules; veer_plan_load_pb puts the decoded message behind them. The
  * macros give the totals at the maxima as constants. */
-#define VEER__WIRE_ALIGN(n) (((size_t)(n) + 15u) & ~(size_t)15u)
 #define VEER__WIRE_GRID_BYTES(knot_cap, modules)                                                                 \
     ((size_t)(knot_cap) * ((3 + (size_t)(modules)) * sizeof(double) + sizeof(veer_limit_id)))
 #define VEER__WIRE_PLAN_BYTES(piece_cap, segment_cap, knot_cap, modules)                                         \
-    (VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap) + VEER__WIRE_ALIGN(VEER__WIRE_GRID_BYTES(knot_cap, modules)))
+    (VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap) + VEER__ALIGN16(VEER__WIRE_GRID_BYTES(knot_cap, modules)))
 #define VEER__WIRE_PLAN_WORK_BYTES                                                                              \
     VEER__WIRE_PLAN_BYTES(VEER_PATH_MAX_PIECES, VEER_PATH_MAX_SEGMENTS, VEER_WIRE_MAX_KNOTS, VEER_MAX_MODULES)
-#define VEER__WIRE_WORK_BYTES (VEER__WIRE_PLAN_WORK_BYTES + VEER__WIRE_ALIGN(sizeof(veer_v1_Plan)))
+#define VEER__WIRE_WORK_BYTES (VEER__WIRE_PLAN_WORK_BYTES + VEER__ALIGN16(sizeof(veer_v1_Plan)))
 
 /* Bytes of the plan part of a workspace for plans within cap
  * (VEER__WIRE_PLAN_BYTES of its path caps, knots and modules). */

@@ -486,7 +486,7 @@ Test(wire_cart, garbage_never_loads_and_never_crashes, .timeout = 300) {
 
 Test(wire_cart, workspace_needs_no_decoded_message) {
     veer__plan_cap small = {200, 4, 2, 4}, max = veer__plan_cap_max();
-    size_t before = VEER__WIRE_ALIGN(veer__wire_plan_bytes_for(&small)) + VEER__WIRE_ALIGN(sizeof(veer_v1_Plan));
+    size_t before = VEER__ALIGN16(veer__wire_plan_bytes_for(&small)) + VEER__ALIGN16(sizeof(veer_v1_Plan));
     size_t now = veer__wire_work_bytes_for(&small);
     cr_log_info("wire_cart: workspace for 200 knots, 4 waypoints, 2 legs, 4 modules: %zu B (with a decoded "
                 "message %zu B); any plan %zu B; veer_v1_Plan %zu B, veer__plan_msgs %zu B",
@@ -496,7 +496,7 @@ Test(wire_cart, workspace_needs_no_decoded_message) {
     /* a cap so small that the submessages need more than the grid */
     veer__plan_cap tiny = {8, 2, 1, 1};
     cr_assert_eq(veer__wire_work_bytes_for(&tiny),
-                 veer__wire_plan_grid_at(&tiny) + VEER__WIRE_ALIGN(sizeof(veer__plan_msgs)));
+                 veer__wire_plan_grid_at(&tiny) + VEER__ALIGN16(sizeof(veer__plan_msgs)));
     /* the demo in exactly its workspace; one byte less is refused before anything is read */
     blob b = demo_bytes();
     veer_plan_needs need;
@@ -511,7 +511,7 @@ Test(wire_cart, workspace_needs_no_decoded_message) {
     cr_assert_eq(veer__wire_load_pb_cap(b.bytes, b.size, w, ws, &cap, &p, &d), VEER_OK, "%s", d.message);
     cr_log_info("wire_cart: the demo (%zu B, %u knots) needs %zu B of workspace (with a decoded message %zu B)",
                 b.size, need.knots, ws,
-                VEER__WIRE_ALIGN(veer__wire_plan_bytes_for(&cap)) + VEER__WIRE_ALIGN(sizeof(veer_v1_Plan)));
+                VEER__ALIGN16(veer__wire_plan_bytes_for(&cap)) + VEER__ALIGN16(sizeof(veer_v1_Plan)));
     free(w);
     free(b.bytes);
 }
