@@ -64,7 +64,7 @@ VEER_API size_t veer_plan_reply_size_bound(int grid_points);
 
 /* Samples received Plan bytes at time t (as veer_plan_sample). Allocates
  * nothing: the decoded plan lives in a workspace on the stack of
- * veer_plan_workspace_size() bytes (about 360 KiB on x86-64). Callers with small stacks,
+ * veer_plan_workspace_size() bytes (about 320 KiB on x86-64). Callers with small stacks,
  * and callers that sample one plan many times, use veer_plan_load_pb with a
  * workspace of their own instead. */
 VEER_API VEER_NODISCARD veer_status veer_plan_sample_pb(const uint8_t *plan, size_t plan_size, double t,
