@@ -244,8 +244,11 @@ static void run_cases(veer_drive_kind kind, uint64_t seed, int full, tally *tl) 
                 tl->worst_check, tl->kin_err, tl->pose_err, tl->cart_checked, tl->moving, tl->moving_ok,
                 tl->moving_jerk);
     /* The generator makes routes a careful user would: most of them must
-     * plan, or the property says little. */
-    cr_assert(tl->ok >= (tl->cases * 7) / 10, "only %d of %d random cases planned", tl->ok, tl->cases);
+     * plan, or the property says little. A share of fewer than 10 cases
+     * (memcheck's cut-down run, VEER_PROPERTY_CASES) says nothing either
+     * way; the full run judges it. */
+    if (tl->cases >= 10)
+        cr_assert(tl->ok >= (tl->cases * 7) / 10, "only %d of %d random cases planned", tl->ok, tl->cases);
     cr_assert(tl->cart_checked >= 1);
     cr_expect(tl->over_check == 0 && tl->over_dense == 0,
               "%s: limits exceeded by more than 1 %% in %d of %d plans (veer_plan_check_limits) and %d (own "
