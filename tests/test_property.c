@@ -288,7 +288,9 @@ Test(property, moving_jerk, .timeout = 1200) {
     tally t;
     force_moving_jerk = 1;
     run_cases(VEER_DRIVE_STEERED, 0x5eed0011u, 60, &t);
-    cr_expect(t.moving_jerk >= 30, "only %d of 60 steered cases planned on the move with jerk limits", t.moving_jerk);
+    if (t.cases >= 10) /* as in run_cases: a cut-down run is not judged */
+        cr_expect(t.moving_jerk >= t.cases / 2, "only %d of %d steered cases planned on the move with jerk limits",
+                  t.moving_jerk, t.cases);
     run_cases(VEER_DRIVE_MECANUM, 0x5eed0012u, 30, &t);
     run_cases(VEER_DRIVE_OMNI, 0x5eed0013u, 30, &t);
     force_moving_jerk = 0;
