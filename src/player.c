@@ -70,11 +70,6 @@ TABLE_LOOKUP(veer_stop_reason_str, VEER_STOP_REASON_TABLE, TEXT_CASE_, "unknown 
 
 /* ---- the cart's fingerprint --------------------------------------------- */
 
-static bool hash_write(pb_ostream_t *os, const pb_byte_t *buf, size_t count) {
-    veer__sha256_update(os->state, buf, count);
-    return true;
-}
-
 static veer_status hash_message(const pb_msgdesc_t *fields, const void *msg, uint8_t out[32]) {
     size_t n = 0;
     if (!pb_get_encoded_size(&n, fields, msg)) return VEER_ERR_CAPACITY;
@@ -83,7 +78,7 @@ static veer_status hash_message(const pb_msgdesc_t *fields, const void *msg, uin
     uint8_t len[8];
     for (int i = 0; i < 8; i++) len[i] = (uint8_t)((uint64_t)n >> (8 * i));
     veer__sha256_update(&st, len, sizeof len);
-    pb_ostream_t os = {hash_write, &st, SIZE_MAX, 0, NULL};
+    pb_ostream_t os = veer__wire_hash_stream(&st);
     if (!pb_encode(&os, fields, msg)) return VEER_ERR_CAPACITY;
     veer__sha256_final(&st, out);
     return VEER_OK;

@@ -178,11 +178,6 @@ static veer_status get_msg(const reader *r, pb_istream_t *s, const pb_msgdesc_t 
 
 /* ---- the content hash ---------------------------------------------------- */
 
-static bool hash_write(pb_ostream_t *os, const pb_byte_t *buf, size_t count) {
-    veer__sha256_update((veer_sha256 *)os->state, buf, count);
-    return true;
-}
-
 /* Each writes a field as nanopb's encoder writes a proto3 field: not at
  * all when it holds its zero value (for doubles: all bits zero). */
 static bool put_u32(pb_ostream_t *o, uint32_t tag, uint32_t v) {
@@ -302,10 +297,7 @@ veer_status veer__wire_plan_read(const uint8_t *bytes, size_t size, veer__plan_m
     in->has_profile = has[veer_v1_Plan_profile_tag];
     veer_sha256 c;
     veer__sha256_init(&c);
-    pb_ostream_t os = {0};
-    os.callback = hash_write;
-    os.state = &c;
-    os.max_size = SIZE_MAX;
+    pb_ostream_t os = veer__wire_hash_stream(&c);
     in->digest_ok = put_plan(&os, in, cart_id, cart_id_size);
     veer__sha256_final(&c, in->digest);
     return VEER_OK;

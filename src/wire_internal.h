@@ -82,6 +82,9 @@ typedef struct {
 void veer__sha256_init(veer_sha256 *c);
 void veer__sha256_update(veer_sha256 *c, const void *data, size_t size);
 void veer__sha256_final(veer_sha256 *c, uint8_t digest[32]);
+/* An output stream that writes what is encoded into it into the SHA-256
+ * state c (pb_encode straight into a hash), without a size limit. */
+pb_ostream_t veer__wire_hash_stream(veer_sha256 *c);
 
 /* ---- wire_plan.c: plans <-> Plan messages -------------------------------- */
 

@@ -86,15 +86,17 @@ static bool hash_write(pb_ostream_t *os, const pb_byte_t *buf, size_t count) {
     return true;
 }
 
+pb_ostream_t veer__wire_hash_stream(veer_sha256 *c) {
+    pb_ostream_t os = {hash_write, c, SIZE_MAX, 0, NULL};
+    return os;
+}
+
 veer_status veer__wire_plan_hash(veer_v1_Plan *m, uint8_t digest[32]) {
     /* The hash covers the encoding with content_hash empty: encode the
      * fields before and after it (content_hash is the last field, 12). */
     veer_sha256 c;
     veer__sha256_init(&c);
-    pb_ostream_t os = {0};
-    os.callback = hash_write;
-    os.state = &c;
-    os.max_size = SIZE_MAX;
+    pb_ostream_t os = veer__wire_hash_stream(&c);
     pb_size_t saved = m->content_hash.size;
     m->content_hash.size = 0;
     bool ok = pb_encode(&os, veer_v1_Plan_fields, m);
