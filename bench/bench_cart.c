@@ -354,7 +354,7 @@ static veer_player_def fitted(veer_player_def def, const veer_plan *p, veer_plan
     veer_diag diag;
     if (veer_plan_encode_pb(p, bytes, sizeof bytes, &n, &diag)) DIE("encode: %s", diag.message);
     if (veer_plan_needs_pb(bytes, n, need, &diag)) DIE("needs: %s", diag.message);
-    def.link.max_plan_bytes = need->plan_bytes < VEER_LINK_MIN_PLAN_BYTES ? VEER_LINK_MIN_PLAN_BYTES : need->plan_bytes;
+    def.link.max_plan_bytes = need->plan_bytes;
     def.max_knots = need->knots;
     def.max_waypoints = need->waypoints;
     def.max_legs = need->legs;

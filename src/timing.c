@@ -194,23 +194,26 @@ veer_status veer__meet_arrivals(veer_plan *plan, veer_workspace *ws, veer_diag *
             double ua = 1.0 / hi, ub = 1.0 / lo, ga = arr_hi - T, gb = arr - T;
             double early = T - arr_hi, late = arr - T; /* the true ends, without the halving */
             int side = 0;
-            for (int it = 0; it < 90 && fabs(arr - T) > 1e-5 && hi - lo > (fmin(early, late) > 1e-4 ? 1e-6 : 1e-9) * hi;
+            /* the bracket in lambda is [1 / ub, 1 / ua] */
+            for (int it = 0; it < 90 && fabs(arr - T) > 1e-5 &&
+                             1.0 / ua - 1.0 / ub > (fmin(early, late) > 1e-4 ? 1e-6 : 1e-9) * (1.0 / ua);
                  it++) {
                 double u = ub - gb * (ub - ua) / (gb - ga);
                 if (it % 3 == 2 || !(u > ua && u < ub)) u = 0.5 * (ua + ub);
                 double mid = 1.0 / u;
                 if ((st = paced(plan, first, j, mid, v0, w0, ws, &arr, diag))) return st;
                 if (arr > T) {
-                    lo = mid, ub = u, gb = late = arr - T;
+                    ub = u, gb = late = arr - T;
                     if (side == 1) ga *= 0.5;
                     side = 1;
                 } else {
-                    hi = mid, ua = u, ga = arr - T, early = T - arr;
+                    ua = u, ga = arr - T, early = T - arr;
                     if (side == -1) gb *= 0.5;
                     side = -1;
                 }
             }
-            if (fabs(arr - T) > 1e-5 && (st = settle(plan, first, j, wpi, hi, v0, w0, T, ws, &arr, diag))) return st;
+            if (fabs(arr - T) > 1e-5 && (st = settle(plan, first, j, wpi, 1.0 / ua, v0, w0, T, ws, &arr, diag)))
+                return st;
         }
         last_target = T;
         first = j + 1;

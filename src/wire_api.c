@@ -2,6 +2,7 @@
  * SPDX-License-Identifier: MIT */
 #include <string.h>
 #include "wire_internal.h"
+#include "veer/link.h"
 
 
 unsigned veer_wire_schema_version(void) { return VEER_WIRE_SCHEMA_VERSION; }
@@ -353,7 +354,7 @@ veer_status veer_plan_needs_pb(const uint8_t *plan, size_t plan_size, veer_plan_
     veer_status st = veer_plan_decode_pb(plan, plan_size, &p, diag);
     if (st != VEER_OK) return st;
     veer_plan_needs n;
-    n.plan_bytes = (uint32_t)plan_size;
+    n.plan_bytes = plan_size < VEER_LINK_MIN_PLAN_BYTES ? VEER_LINK_MIN_PLAN_BYTES : (uint32_t)plan_size;
     n.knots = (uint32_t)p->n;
     n.waypoints = (uint32_t)p->route.waypoint_count;
     n.legs = (uint32_t)p->route.leg_count;

@@ -98,17 +98,22 @@ static blob encode(const veer_plan *p) {
     return b;
 }
 
+/* Plans the route (it must plan) and encodes it. */
+static blob planned(const veer_drive_def *dr, const veer_limits *l, const veer_route *r) {
+    veer_plan *p = NULL;
+    veer_diag d;
+    cr_assert_eq(veer_plan_create(dr, l, r, NULL, &p, &d), VEER_OK, "%s", d.message);
+    blob b = encode(p);
+    veer_plan_destroy(p);
+    return b;
+}
+
 static blob demo_bytes(void) {
     veer_drive_def dr;
     veer_limits l;
     veer_route r;
     cr_assert_eq(kestrel_demo(&dr, &l, &r), VEER_OK);
-    veer_plan *p = NULL;
-    veer_diag d;
-    cr_assert_eq(veer_plan_create(&dr, &l, &r, NULL, &p, &d), VEER_OK, "%s", d.message);
-    blob b = encode(p);
-    veer_plan_destroy(p);
-    return b;
+    return planned(&dr, &l, &r);
 }
 
 /* A random case of random_case.h that plans; 0 if the planner refused it (a named refusal). */
@@ -145,12 +150,7 @@ static blob jerk_bytes(int moving) {
         r.has_start_twist = 1;
         r.start_twist[0] = 0.5;
     }
-    veer_plan *p = NULL;
-    veer_diag d;
-    cr_assert_eq(veer_plan_create(&dr, &l, &r, NULL, &p, &d), VEER_OK, "%s", d.message);
-    blob bb = encode(p);
-    veer_plan_destroy(p);
-    return bb;
+    return planned(&dr, &l, &r);
 }
 
 /* ---- top-level fields, for re-phrasing a plan ---------------------------- */

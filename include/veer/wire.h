@@ -109,7 +109,7 @@ VEER_API VEER_NODISCARD veer_status veer_plan_table_pb(const uint8_t *plan, size
 /* What a cart needs to take a plan: the capacities of veer_player_def
  * (player.h) it must have at least. */
 typedef struct {
-    uint32_t plan_bytes; /* the Plan message's size (link.max_plan_bytes; at least VEER_LINK_MIN_PLAN_BYTES) */
+    uint32_t plan_bytes; /* link.max_plan_bytes: the Plan message's size, at least VEER_LINK_MIN_PLAN_BYTES (link.h) */
     uint32_t knots;      /* the profile's grid points (max_knots) */
     uint32_t waypoints;  /* the route's waypoints (max_waypoints) */
     uint32_t legs;       /* the route's legs (max_legs) */

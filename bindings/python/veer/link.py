@@ -230,7 +230,7 @@ def cart_capacity(plan_bytes):
     diag = _lib.out_struct(_lib.Diag)
     if lib.veer_plan_needs_pb(plan_bytes, len(plan_bytes), ctypes.byref(need), ctypes.byref(diag)) != 0:
         raise ValueError(diag.message.decode("utf-8", "replace") or "veer_plan_needs_pb failed")
-    return {"max_plan_bytes": max(need.plan_bytes, PLAN_BYTES_MIN), "max_knots": need.knots,
+    return {"max_plan_bytes": need.plan_bytes, "max_knots": need.knots,
             "max_waypoints": need.waypoints, "max_legs": need.legs}
 
 
