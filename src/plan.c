@@ -65,28 +65,56 @@ veer_status veer__plan_options_check(const veer_plan_options *o, veer_diag *diag
     return VEER_OK;
 }
 
-void veer__plan_attach(veer_plan *plan, int piece_cap, int segment_cap) {
-    if (piece_cap < 0) piece_cap = 0;
-    if (segment_cap < 0) segment_cap = 0;
+veer__plan_caps veer__plan_caps_for(int waypoints, int legs, int modules) {
+    veer__plan_caps c;
+    veer__path_caps(waypoints, legs, &c.pieces, &c.segments);
+    c.legs = legs < 0 ? 0 : legs;
+    c.modules = modules < 0 ? 0 : modules;
+    return c;
+}
+
+size_t veer__plan_block_bytes(veer__plan_caps c) {
+    return VEER__PLAN_BLOCK_BYTES(c.pieces, c.segments, c.legs, c.modules);
+}
+
+void veer__plan_attach(veer_plan *plan, veer__plan_caps c) {
+    if (c.pieces < 0) c.pieces = 0;
+    if (c.segments < 0) c.segments = 0;
     char *at = (char *)plan + VEER__ALIGN16(sizeof *plan);
-    veer_path_piece *pieces = (veer_path_piece *)at;
-    at += VEER__ALIGN16((size_t)piece_cap * sizeof *pieces);
-    veer_path_segment *segments = (veer_path_segment *)at;
-    at += VEER__ALIGN16((size_t)segment_cap * sizeof *segments);
     /* zeroed, as when they were inside the struct: the decoder sets only some segment fields and
      * relies on the rest being 0 */
-    memset(pieces, 0, (size_t)(at - (char *)pieces) + (size_t)segment_cap * sizeof *plan->segs);
-    veer__path_attach(&plan->path, pieces, piece_cap, segments, segment_cap);
+    memset(at, 0, veer__plan_block_bytes(c) - VEER__ALIGN16(sizeof *plan));
+    veer_path_piece *pieces = (veer_path_piece *)at;
+    at += VEER__ALIGN16((size_t)c.pieces * sizeof *pieces);
+    veer_path_segment *segments = (veer_path_segment *)at;
+    at += VEER__ALIGN16((size_t)c.segments * sizeof *segments);
+    veer__path_attach(&plan->path, pieces, c.pieces, segments, c.segments);
     plan->segs = (veer_plan_segment *)at;
-    plan->segment_cap = segment_cap;
+    at += VEER__ALIGN16((size_t)c.segments * sizeof *plan->segs);
+    plan->segment_cap = c.segments;
     plan->segment_count = 0;
+    plan->legs = (veer_leg_summary *)at;
+    at += VEER__ALIGN16((size_t)c.legs * sizeof *plan->legs);
+    double *steer = (double *)at;
+    for (int j = 0; j < c.segments; j++) {
+        plan->segs[j].steer_from = steer + (size_t)(2 * j) * (size_t)c.modules;
+        plan->segs[j].steer_to = steer + (size_t)(2 * j + 1) * (size_t)c.modules;
+    }
+}
+
+void veer__plan_lay_grid(veer_plan *plan, int n, char *grid, int binding) {
+    int M = plan->module_count;
+    plan->n = n;
+    plan->s = (double *)grid;
+    plan->x = plan->s + n;
+    plan->t = plan->x + n;
+    plan->steer = plan->t + n;
+    plan->binding = binding ? (veer_limit_id *)(plan->steer + (size_t)n * (size_t)M) : NULL;
 }
 
 void veer_plan_destroy(veer_plan *plan) {
     if (!plan || plan->alloc_size == 0) return; /* NULL, or a plan in a caller's workspace (veer_plan_load_pb) */
-    size_t grid_bytes = (size_t)plan->n * (3 * sizeof(double) + sizeof(veer_limit_id)) +
-                        (size_t)plan->n * (size_t)plan->module_count * sizeof(double);
-    veer__free(plan->s, grid_bytes);
+    veer__free(plan->s, plan->grid_bytes);
     veer__free(plan, plan->alloc_size);
 }
 
@@ -912,7 +940,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     }
     int n = go.n;
     int M = plan->module_count;
-    size_t grid_bytes = (size_t)n * (3 * sizeof(double) + sizeof(veer_limit_id)) + (size_t)n * (size_t)M * sizeof(double);
+    size_t grid_bytes = VEER__GRID_BYTES(n, M, 1);
     char *g = veer__alloc(grid_bytes);
     if (!g) {
         veer__free(grid, grid_room);
@@ -920,12 +948,8 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
         veer__free(slope, slope_room);
         return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, veer__limit(0, -1), "out of memory");
     }
-    plan->n = n;
-    plan->s = (double *)g;
-    plan->x = plan->s + n;
-    plan->t = plan->x + n;
-    plan->steer = plan->t + n;
-    plan->binding = (veer_limit_id *)(plan->steer + (size_t)n * (size_t)M);
+    veer__plan_lay_grid(plan, n, g, 1);
+    plan->grid_bytes = grid_bytes;
     memcpy(plan->s, grid, (size_t)n * sizeof(double));
     veer__free(grid, grid_room);
     first[path->segment_count] = n;
@@ -1016,13 +1040,12 @@ veer_status veer__plan_create_with(const veer_drive_def *drive, const veer_limit
                               "waypoint %d: arrival must be a time >= 0 s, got %g", w, wp->arrival);
     }
     /* one block: the plan and its path and segment arrays, sized for the route */
-    int piece_cap, segment_cap;
-    veer__path_caps(route->waypoint_count, route->leg_count, &piece_cap, &segment_cap);
-    size_t bytes = VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap);
+    veer__plan_caps caps = veer__plan_caps_for(route->waypoint_count, route->leg_count, M);
+    size_t bytes = veer__plan_block_bytes(caps);
     veer_plan *plan = veer__calloc(1, bytes);
     if (!plan) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, none, "out of memory");
     plan->alloc_size = bytes;
-    veer__plan_attach(plan, piece_cap, segment_cap);
+    veer__plan_attach(plan, caps);
     plan->drive = *drive;
     plan->limits = *limits;
     plan->options = opt;
@@ -1059,7 +1082,7 @@ veer_status veer_plan_grid(const veer_plan *plan, int k, double *s, double *sdot
     if (k < 0 || k >= plan->n) return VEER_ERR_VALUE;
     if (s) *s = plan->s[k];
     if (sdot) *sdot = sqrt(plan->x[k]);
-    if (binding) *binding = plan->binding[k];
+    if (binding) *binding = plan->binding ? plan->binding[k] : veer__limit(VEER_LIMIT_NONE, -1);
     return VEER_OK;
 }
 

@@ -188,8 +188,8 @@ typedef struct {
                                      grid point k0 + coast_k (0: no such hold) */
     double pace_speed, pace_yaw;  /* timing.c's caps pacing the segment to a timed arrival: body speed (m/s)
                                      and yaw rate (rad/s); VEER_UNLIMITED: none */
-    double steer_from[VEER_MAX_MODULES]; /* module angles when the re-steer phase starts */
-    double steer_to[VEER_MAX_MODULES];   /* ... and when it ends (= steer at k0) */
+    double *steer_from;           /* [modules] module angles when the re-steer phase starts (in the plan's block) */
+    double *steer_to;             /* [modules] ... and when it ends (= steer at k0) */
 } veer_plan_segment;
 
 struct veer_plan {
@@ -206,30 +206,50 @@ struct veer_plan {
     int n;                        /* grid points over the whole plan */
     double *s, *x, *t;            /* [n] path position, sdot^2, time at the point */
     double *steer;                /* [n * module_count] steer angle at each grid point (continuous) */
-    veer_limit_id *binding;       /* [n] */
+    veer_limit_id *binding;       /* [n]; NULL on a decoded plan (the wire carries none: NONE at every point) */
+    size_t grid_bytes;            /* bytes of the heap block behind s (VEER__GRID_BYTES), 0 in a workspace */
     int segment_count;
     int segment_cap;              /* room in segs (= path.segment_cap) */
     veer_plan_segment *segs;      /* [segment_cap], in the plan's block (veer__plan_attach) */
     int leg_count;
-    veer_leg_summary legs[VEER_MAX_LEGS];
+    veer_leg_summary *legs;       /* [leg_cap], in the plan's block */
     double x_start;               /* sdot^2 at the start (re-planning on the move), 0 at rest */
     double duration;
 };
 
-/* A plan's block: the struct, then its path's pieces and segments and its
- * own segments, each at a 16-byte offset, sized for piece_cap pieces and
- * segment_cap segments (VEER_PATH_*_FOR the route: veer__path_caps). The
- * struct does not own its arrays apart from the block, so a plan is never
- * copied by value. */
-#define VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap)                                                             \
-    (VEER__ALIGN16(sizeof(veer_plan)) + VEER__ALIGN16((size_t)(piece_cap) * sizeof(veer_path_piece)) +     \
-     VEER__ALIGN16((size_t)(segment_cap) * sizeof(veer_path_segment)) +                                       \
-     VEER__ALIGN16((size_t)(segment_cap) * sizeof(veer_plan_segment)))
+/* A plan's block: the struct, then its path's pieces and segments, its own
+ * segments, its leg summaries and its segments' steer angles (2 x modules
+ * doubles each), each at a 16-byte offset, sized for piece_cap pieces,
+ * segment_cap segments (VEER_PATH_*_FOR the route: veer__path_caps),
+ * `legs` legs and `modules` modules. The struct does not own its arrays
+ * apart from the block, so a plan is never copied by value. */
+typedef struct {
+    int pieces, segments, legs, modules;
+} veer__plan_caps;
+#define VEER__PLAN_BLOCK_BYTES(pieces, segments, legs, modules)                                                    \
+    (VEER__ALIGN16(sizeof(veer_plan)) + VEER__ALIGN16((size_t)(pieces) * sizeof(veer_path_piece)) +             \
+     VEER__ALIGN16((size_t)(segments) * sizeof(veer_path_segment)) +                                            \
+     VEER__ALIGN16((size_t)(segments) * sizeof(veer_plan_segment)) +                                            \
+     VEER__ALIGN16((size_t)(legs) * sizeof(veer_leg_summary)) +                                                 \
+     VEER__ALIGN16((size_t)(segments) * 2 * (size_t)(modules) * sizeof(double)))
+/* The caps of a plan for a route of that many waypoints and legs on that
+ * many modules, and its block's size. */
+veer__plan_caps veer__plan_caps_for(int waypoints, int legs, int modules);
+size_t veer__plan_block_bytes(veer__plan_caps caps);
 /* Points the arrays of plan (at the start of a block of at least
- * VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap) bytes, aligned for double)
- * into the block behind the struct and zeroes them; the path is left empty,
- * segment_count 0. The rest of the struct is not touched. */
-void veer__plan_attach(veer_plan *plan, int piece_cap, int segment_cap);
+ * veer__plan_block_bytes(caps) bytes, aligned for double) into the block
+ * behind the struct and zeroes them; the path is left empty, segment_count
+ * 0. The rest of the struct is not touched. */
+void veer__plan_attach(veer_plan *plan, veer__plan_caps caps);
+
+/* The grid arrays behind plan->s, for n points of M modules: s, x, t and
+ * steer, with the binding limit of each point on a planned plan. */
+#define VEER__GRID_BYTES(n, M, with_binding)                                                                     \
+    ((size_t)(n) * (3 * sizeof(double) + ((with_binding) ? sizeof(veer_limit_id) : 0)) +                         \
+     (size_t)(n) * (size_t)(M) * sizeof(double))
+/* Lays the grid arrays out in grid (VEER__GRID_BYTES(n, module_count,
+ * binding) bytes, aligned for double) and sets plan->n. */
+void veer__plan_lay_grid(veer_plan *plan, int n, char *grid, int binding);
 
 /* ---- plan.c: segment solves, shared with timing.c ---------------------- */
 

@@ -26,10 +26,13 @@ static bool put_grid(pb_ostream_t *os, const pb_field_t *field, void *const *arg
             else if (tag == veer_v1_PlanReply_grid_sdot_tag) {
                 double v = sqrt(p->x[k]);
                 ok = pb_encode_fixed64(o, &v);
-            } else if (tag == veer_v1_PlanReply_binding_kind_tag)
-                ok = pb_encode_varint(o, (uint64_t)(p->binding[k].kind > 0 ? p->binding[k].kind : 0));
-            else
-                ok = pb_encode_svarint(o, p->binding[k].kind == VEER_LIMIT_NONE ? -1 : p->binding[k].module);
+            } else {
+                veer_limit_id id = p->binding ? p->binding[k] : veer__limit(VEER_LIMIT_NONE, -1);
+                if (tag == veer_v1_PlanReply_binding_kind_tag)
+                    ok = pb_encode_varint(o, (uint64_t)(id.kind > 0 ? id.kind : 0));
+                else
+                    ok = pb_encode_svarint(o, id.kind == VEER_LIMIT_NONE ? -1 : id.module);
+            }
             if (!ok) return false;
         }
         if (n == 0) return true;

@@ -109,16 +109,16 @@ typedef struct {
 veer__plan_cap veer__plan_cap_max(void);
 
 /* Workspace of a plan rebuilt from a Plan message: the plan's block (the
- * struct and its path and segment arrays, VEER__PLAN_BLOCK_BYTES), then its
- * grid arrays (s, x, t, steer, binding) for knot_cap knots of `modules`
- * modules; veer_plan_load_pb puts the decoded message behind them. The
- * macros give the totals at the maxima as constants. */
-#define VEER__WIRE_GRID_BYTES(knot_cap, modules)                                                                 \
-    ((size_t)(knot_cap) * ((3 + (size_t)(modules)) * sizeof(double) + sizeof(veer_limit_id)))
-#define VEER__WIRE_PLAN_BYTES(piece_cap, segment_cap, knot_cap, modules)                                         \
-    (VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap) + VEER__ALIGN16(VEER__WIRE_GRID_BYTES(knot_cap, modules)))
+ * struct and its arrays, VEER__PLAN_BLOCK_BYTES), then its grid arrays (s,
+ * x, t, steer: a decoded plan has no binding array) for knot_cap knots of
+ * `modules` modules; veer_plan_load_pb puts the decoded message behind
+ * them. The macros give the totals at the maxima as constants. */
+#define VEER__WIRE_PLAN_BYTES(piece_cap, segment_cap, leg_cap, knot_cap, modules)                                \
+    (VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap, leg_cap, modules) +                                          \
+     VEER__ALIGN16(VEER__GRID_BYTES(knot_cap, modules, 0)))
 #define VEER__WIRE_PLAN_WORK_BYTES                                                                              \
-    VEER__WIRE_PLAN_BYTES(VEER_PATH_MAX_PIECES, VEER_PATH_MAX_SEGMENTS, VEER_WIRE_MAX_KNOTS, VEER_MAX_MODULES)
+    VEER__WIRE_PLAN_BYTES(VEER_PATH_MAX_PIECES, VEER_PATH_MAX_SEGMENTS, VEER_MAX_LEGS, VEER_WIRE_MAX_KNOTS,       \
+                          VEER_MAX_MODULES)
 #define VEER__WIRE_WORK_BYTES (VEER__WIRE_PLAN_WORK_BYTES + VEER__ALIGN16(sizeof(veer_v1_Plan)))
 
 /* Bytes of the plan part of a workspace for plans within cap

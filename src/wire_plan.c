@@ -113,9 +113,8 @@ veer__plan_cap veer__plan_cap_max(void) {
 }
 
 size_t veer__wire_plan_bytes_for(const veer__plan_cap *cap) {
-    int pieces, segments;
-    veer__path_caps(cap->waypoints, cap->legs, &pieces, &segments);
-    return VEER__WIRE_PLAN_BYTES(pieces, segments, cap->knots, cap->modules);
+    veer__plan_caps c = veer__plan_caps_for(cap->waypoints, cap->legs, cap->modules);
+    return VEER__WIRE_PLAN_BYTES(c.pieces, c.segments, c.legs, cap->knots, cap->modules);
 }
 
 /* One knot interval: length h, sdot^2 from xa to xb, sdot^2 = xa + b sigma +
@@ -269,7 +268,6 @@ static veer_status timeline(veer_plan *plan, veer_diag *diag) {
         for (int k = sg->k0; k <= sg->k1; k++) {
             if (k > sg->k0) t += 2.0 * (plan->s[k] - plan->s[k - 1]) / (sqrt(plan->x[k - 1]) + sqrt(plan->x[k]));
             plan->t[k] = t;
-            plan->binding[k] = NONE_ID;
         }
         if (!isfinite(t))
             return veer__fail(diag, VEER_ERR_VALUE, path->segments[j].leg, path->segments[j].waypoint, sg->k0,
@@ -312,9 +310,8 @@ static veer_status jerk_windows(const veer__profile_in *pr, veer_plan *plan, vee
 }
 
 /* Everything but the profile: versions, drive, limits, route, path. plan
- * starts a block of VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap) bytes. */
-static veer_status load_head(const veer__plan_in *m, veer_plan *plan, int piece_cap, int segment_cap,
-                             veer_diag *diag) {
+ * starts a block of veer__plan_block_bytes(caps) bytes. */
+static veer_status load_head(const veer__plan_in *m, veer_plan *plan, veer__plan_caps caps, veer_diag *diag) {
     if (m->schema_version != VEER_WIRE_SCHEMA_VERSION)
         return veer__fail_plain(diag, VEER_ERR_VERSION,
                                 "plan: schema version %u, this library reads version %d", (unsigned)m->schema_version,
@@ -327,7 +324,7 @@ static veer_status load_head(const veer__plan_in *m, veer_plan *plan, int piece_
         return veer__fail_plain(diag, VEER_ERR_VALUE, "plan: the %s is missing",
                                 !m->drive ? "drive" : !m->limits ? "limits" : !m->route ? "route" : "profile");
     memset(plan, 0, sizeof *plan);
-    veer__plan_attach(plan, piece_cap, segment_cap);
+    veer__plan_attach(plan, caps);
     veer_status st;
     if ((st = veer__wire_drive_from_pb(m->drive, &plan->drive, diag))) return st;
     if ((st = veer_drive_check(&plan->drive, diag))) return st;
@@ -342,22 +339,6 @@ static veer_status load_head(const veer__plan_in *m, veer_plan *plan, int piece_
     if ((st = veer__path_build(&plan->route, &plan->path, diag))) return st;
     plan->segment_count = plan->path.segment_count;
     return VEER_OK;
-}
-
-/* Lays the grid arrays out as plan.c does (s, x, t, steer, binding in one
- * block, so veer_plan_destroy can free it) in grid. */
-static size_t grid_bytes(int n, int M) {
-    return (size_t)n * (3 * sizeof(double) + sizeof(veer_limit_id)) + (size_t)n * (size_t)M * sizeof(double);
-}
-
-static void lay_out(veer_plan *plan, int n, char *grid) {
-    int M = plan->module_count;
-    plan->n = n;
-    plan->s = (double *)grid;
-    plan->x = plan->s + n;
-    plan->t = plan->x + n;
-    plan->steer = plan->t + n;
-    plan->binding = (veer_limit_id *)(plan->steer + (size_t)n * (size_t)M);
 }
 
 static veer_status check_tail(const veer__plan_in *m, const veer_plan *plan, int check_hash, veer_diag *diag) {
@@ -392,20 +373,19 @@ static veer_status load(const veer__plan_in *m, void *work, size_t work_size, co
         return over_cap("waypoints", (int)m->route->waypoints_count, cap->waypoints, diag);
     if (m->route && (int)m->route->legs_count > cap->legs)
         return over_cap("legs", (int)m->route->legs_count, cap->legs, diag);
-    int pieces, segments;
-    veer__path_caps(cap->waypoints, cap->legs, &pieces, &segments);
+    veer__plan_caps caps = veer__plan_caps_for(cap->waypoints, cap->legs, cap->modules);
     veer_plan *plan = (veer_plan *)work;
-    char *grid = (char *)work + VEER__PLAN_BLOCK_BYTES(pieces, segments);
+    char *grid = (char *)work + veer__plan_block_bytes(caps);
     /* The cart's submessages may lie where the grid goes (veer__wire_plan_read): m's drive, limits, route
      * and options are read by load_head only. */
-    veer_status st = load_head(m, plan, pieces, segments, diag);
+    veer_status st = load_head(m, plan, caps, diag);
     int n = 0;
     if (st == VEER_OK && plan->module_count > cap->modules)
         st = over_cap("modules", plan->module_count, cap->modules, diag);
     if (st == VEER_OK) st = parse_profile(&m->profile, &plan->path, NULL, NULL, NULL, &n, diag);
     if (st == VEER_OK && n > cap->knots) st = over_cap("knots", n, cap->knots, diag);
     if (st != VEER_OK) return st;
-    lay_out(plan, n, grid);
+    veer__plan_lay_grid(plan, n, grid, 0);
     if ((st = parse_profile(&m->profile, &plan->path, plan->s, plan->x, plan->segs, &n, diag))) return st;
     plan->x_start = m->profile.start_sdot * m->profile.start_sdot;
     if ((st = jerk_windows(&m->profile, plan, diag))) return st;
@@ -439,9 +419,7 @@ void veer__wire_plan_in_from_msg(veer_v1_Plan *m, veer__plan_in *in) {
 }
 
 size_t veer__wire_plan_grid_at(const veer__plan_cap *cap) {
-    int pieces, segments;
-    veer__path_caps(cap->waypoints, cap->legs, &pieces, &segments);
-    return VEER__PLAN_BLOCK_BYTES(pieces, segments);
+    return veer__plan_block_bytes(veer__plan_caps_for(cap->waypoints, cap->legs, cap->modules));
 }
 
 veer_status veer__wire_plan_load_in(const veer__plan_in *in, void *work, size_t work_size, const veer__plan_cap *cap,
@@ -464,13 +442,12 @@ veer_status veer__wire_plan_decode_heap(veer_v1_Plan *msg, veer_plan **out, veer
     veer__plan_in in, *m = &in;
     veer__wire_plan_in_from_msg(msg, &in);
     /* one block sized for the message's route (counts beyond the maxima fail in load_head) */
-    int piece_cap, segment_cap;
-    veer__path_caps(m->route ? (int)m->route->waypoints_count : 0, m->route ? (int)m->route->legs_count : 0,
-                    &piece_cap, &segment_cap);
-    size_t bytes = VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap);
+    veer__plan_caps caps = veer__plan_caps_for(m->route ? (int)m->route->waypoints_count : 0,
+                                               m->route ? (int)m->route->legs_count : 0, VEER_MAX_MODULES);
+    size_t bytes = veer__plan_block_bytes(caps);
     veer_plan *plan = veer__calloc(1, bytes);
     if (!plan) return veer__fail_plain(diag, VEER_ERR_NO_MEMORY, "out of memory");
-    veer_status st = load_head(m, plan, piece_cap, segment_cap, diag);
+    veer_status st = load_head(m, plan, caps, diag);
     plan->alloc_size = bytes;
     int n = 0;
     if (st == VEER_OK) st = parse_profile(&m->profile, &plan->path, NULL, NULL, NULL, &n, diag);
@@ -478,13 +455,14 @@ veer_status veer__wire_plan_decode_heap(veer_v1_Plan *msg, veer_plan **out, veer
         veer__free(plan, bytes);
         return st;
     }
-    size_t gb = grid_bytes(n, plan->module_count);
+    size_t gb = VEER__GRID_BYTES(n, plan->module_count, 0);
     char *grid = veer__alloc(gb);
     if (!grid) {
         veer__free(plan, bytes);
         return veer__fail_plain(diag, VEER_ERR_NO_MEMORY, "out of memory");
     }
-    lay_out(plan, n, grid);
+    veer__plan_lay_grid(plan, n, grid, 0);
+    plan->grid_bytes = gb;
     st = parse_profile(&m->profile, &plan->path, plan->s, plan->x, plan->segs, &n, diag);
     plan->x_start = m->profile.start_sdot * m->profile.start_sdot;
     if (st == VEER_OK) st = jerk_windows(&m->profile, plan, diag);
