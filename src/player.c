@@ -70,48 +70,99 @@ TABLE_LOOKUP(veer_stop_reason_str, VEER_STOP_REASON_TABLE, TEXT_CASE_, "unknown 
 
 /* ---- the cart's fingerprint --------------------------------------------- */
 
-static veer_status hash_message(const pb_msgdesc_t *fields, const void *msg, uint8_t out[32]) {
-    size_t n = 0;
-    if (!pb_get_encoded_size(&n, fields, msg)) return VEER_ERR_CAPACITY;
+/* The fingerprints are SHA-256 over the 8-byte little-endian length and the
+ * canonical encoding of the DriveDef and of the Limits message that
+ * veer__wire_drive_to_pb and veer__wire_limits_to_pb make. The Limits
+ * message (1.2 KB as a nanopb struct) is never built: its fields are written
+ * into the hash one module at a time, as nanopb's encoder writes them, so a
+ * cart's stack holds one ModuleLimits (144 bytes) instead. */
+typedef bool (*put_config)(pb_ostream_t *o, const veer_drive_def *drive, const veer_limits *limits);
+
+static veer_status hash_config(put_config put, const veer_drive_def *drive, const veer_limits *limits,
+                               uint8_t out[32]) {
+    pb_ostream_t sz = PB_OSTREAM_SIZING;
+    if (!put(&sz, drive, limits)) return VEER_ERR_CAPACITY;
+    size_t n = sz.bytes_written;
     veer_sha256 st;
     veer__sha256_init(&st);
     uint8_t len[8];
     for (int i = 0; i < 8; i++) len[i] = (uint8_t)((uint64_t)n >> (8 * i));
     veer__sha256_update(&st, len, sizeof len);
     pb_ostream_t os = veer__wire_hash_stream(&st);
-    if (!pb_encode(&os, fields, msg)) return VEER_ERR_CAPACITY;
+    if (!put(&os, drive, limits)) return VEER_ERR_CAPACITY;
     veer__sha256_final(&st, out);
     return VEER_OK;
+}
+
+static bool put_drive(pb_ostream_t *o, const veer_drive_def *drive, const veer_limits *limits) {
+    (void)limits;
+    veer_v1_DriveDef m;
+    veer__wire_drive_to_pb(drive, &m);
+    return pb_encode(o, veer_v1_DriveDef_fields, &m);
+}
+
+/* Module i's limits as they count: only the limits that apply to the drive
+ * kind (steering limits mean nothing to fixed-wheel drives). */
+static veer_module_limits counted_module(const veer_drive_def *drive, const veer_limits *limits, int i) {
+    veer_module_limits m = limits->modules[i];
+    if (drive->kind != VEER_DRIVE_STEERED) {
+        veer_module_limits unset = veer__default_module_limits();
+        m.steer_rate = unset.steer_rate;
+        m.steer_min = unset.steer_min;
+        m.steer_max = unset.steer_max;
+    }
+    return m;
+}
+
+/* The Limits message of veer__wire_limits_to_pb (wire_request.c) over the
+ * counted module limits, field by field in number order: no module entry
+ * when every module is unlimited, one when all are alike, else one per
+ * module; a limit present when finite. */
+static bool put_limits(pb_ostream_t *o, const veer_drive_def *drive, const veer_limits *limits) {
+    int n = veer_drive_module_count(drive);
+    if (n < 0) n = 0;
+    if (n > VEER_MAX_MODULES) n = VEER_MAX_MODULES;
+    veer_module_limits unset = veer__default_module_limits(), first = counted_module(drive, limits, 0);
+    int all_same = 1, any = 0;
+    for (int i = 0; i < n; i++) {
+        veer_module_limits m = counted_module(drive, limits, i);
+        if (memcmp(&m, &first, sizeof m) != 0) all_same = 0;
+        if (memcmp(&m, &unset, sizeof m) != 0) any = 1;
+    }
+    int entries = any ? (all_same ? 1 : n) : 0;
+    for (int i = 0; i < entries; i++) {
+        veer_module_limits l = counted_module(drive, limits, i);
+        veer_v1_ModuleLimits m;
+        memset(&m, 0, sizeof m);
+#define MODULE_LIMIT_(f)                   \
+    if ((m.has_##f = isfinite(l.f)) != 0) \
+        m.f = l.f;
+        MODULE_LIMIT_(wheel_rate)
+        MODULE_LIMIT_(wheel_accel)
+        MODULE_LIMIT_(steer_rate)
+        MODULE_LIMIT_(steer_min)
+        MODULE_LIMIT_(steer_max)
+        MODULE_LIMIT_(traction_mu)
+        MODULE_LIMIT_(motor_stall_accel)
+        MODULE_LIMIT_(motor_free_rate)
+        MODULE_LIMIT_(wheel_jerk)
+#undef MODULE_LIMIT_
+        if (!pb_encode_tag(o, PB_WT_STRING, veer_v1_Limits_modules_tag) ||
+            !pb_encode_submessage(o, veer_v1_ModuleLimits_fields, &m))
+            return false;
+    }
+#define BODY_LIMIT_(f) \
+    (!isfinite(limits->f) || (pb_encode_tag(o, PB_WT_64BIT, veer_v1_Limits_##f##_tag) && pb_encode_fixed64(o, &limits->f)))
+    return BODY_LIMIT_(body_speed) && BODY_LIMIT_(body_accel) && BODY_LIMIT_(yaw_rate) && BODY_LIMIT_(yaw_accel) &&
+           BODY_LIMIT_(body_jerk);
+#undef BODY_LIMIT_
 }
 
 /* SHA-256 of the canonical DriveDef and of the canonical Limits. */
 static veer_status config_hashes(const veer_drive_def *drive, const veer_limits *limits, uint8_t dh[32],
                                  uint8_t lh[32]) {
-    union {
-        veer_v1_DriveDef d;
-        veer_v1_Limits l;
-    } m;
-    memset(&m, 0, sizeof m);
-    veer__wire_drive_to_pb(drive, &m.d);
-    veer_status st = hash_message(veer_v1_DriveDef_fields, &m.d, dh);
-    if (st != VEER_OK) return st;
-    /* Only the limits that apply to the drive kind count: steering limits
-     * mean nothing to fixed-wheel drives. */
-    veer_limits l = *limits;
-    int n = veer_drive_module_count(drive);
-    veer_module_limits unset = veer__default_module_limits();
-    for (int i = 0; i < VEER_MAX_MODULES; i++) {
-        if (i >= n) {
-            l.modules[i] = unset;
-        } else if (drive->kind != VEER_DRIVE_STEERED) {
-            l.modules[i].steer_rate = unset.steer_rate;
-            l.modules[i].steer_min = unset.steer_min;
-            l.modules[i].steer_max = unset.steer_max;
-        }
-    }
-    memset(&m, 0, sizeof m);
-    veer__wire_limits_to_pb(&l, n, &m.l);
-    return hash_message(veer_v1_Limits_fields, &m.l, lh);
+    veer_status st = hash_config(put_drive, drive, limits, dh);
+    return st != VEER_OK ? st : hash_config(put_limits, drive, limits, lh);
 }
 
 /* ---- set-up ------------------------------------------------------------- */
