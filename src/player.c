@@ -409,6 +409,18 @@ static int plan_names_other_cart(const uint8_t *bytes, size_t size, const char *
     return found != strlen(name) || memcmp(text, name, found) != 0;
 }
 
+/* A decoded plan against the cart: its cart name, drive and limits (the
+ * arming verdict). A function of its own, kept out of load's frame: its
+ * locals are not on the stack while a plan is decoded. */
+static VEER__NOINLINE int check_plan(const veer_player *p, const uint8_t *bytes, size_t size, const veer_plan *plan) {
+    if (plan_names_other_cart(bytes, size, p->def.cart_name)) return VEER_LINK_CART_NAME;
+    uint8_t dh[32], lh[32];
+    if (config_hashes(&plan->drive, &plan->limits, dh, lh) != VEER_OK) return VEER_LINK_DECODE;
+    if (memcmp(dh, p->drive_hash, 32) != 0) return VEER_LINK_DRIVE;
+    if (memcmp(lh, p->limits_hash, 32) != 0) return VEER_LINK_LIMITS;
+    return VEER_LINK_NONE;
+}
+
 /* Decodes bytes into the workspace and checks them against the cart: the
  * arming verdict; *out is the plan when it is VEER_LINK_NONE, else NULL. */
 static int load(veer_player *p, const uint8_t *bytes, size_t size, const veer_plan **out) {
@@ -417,13 +429,23 @@ static int load(veer_player *p, const uint8_t *bytes, size_t size, const veer_pl
     veer_status st = veer__wire_load_pb_cap(bytes, size, p->work, p->work_size, &p->cap, &plan, NULL);
     if (st == VEER_ERR_CAPACITY) return VEER_LINK_CAPACITY;
     if (st != VEER_OK || !plan) return VEER_LINK_DECODE;
-    if (plan_names_other_cart(bytes, size, p->def.cart_name)) return VEER_LINK_CART_NAME;
-    uint8_t dh[32], lh[32];
-    if (config_hashes(&plan->drive, &plan->limits, dh, lh) != VEER_OK) return VEER_LINK_DECODE;
-    if (memcmp(dh, p->drive_hash, 32) != 0) return VEER_LINK_DRIVE;
-    if (memcmp(lh, p->limits_hash, 32) != 0) return VEER_LINK_LIMITS;
-    *out = plan;
-    return VEER_LINK_NONE;
+    int verdict = check_plan(p, bytes, size, plan);
+    if (verdict == VEER_LINK_NONE) *out = plan;
+    return verdict;
+}
+
+/* Reports the armed plan's start; the modules stay where they are until
+ * START. A function of its own, kept out of arm's frame: its sample (424
+ * bytes) is not on the stack while a plan is decoded. */
+static VEER__NOINLINE void show_start(veer_player *p) {
+    veer_sample o;
+    if (veer_plan_sample(p->plan, 0.0, &o) == VEER_OK && sample_finite(&o)) {
+        for (int i = 0; i < o.module_count && i < p->last.module_count; i++) o.modules[i].steer = p->last.modules[i].steer;
+        o.module_count = p->module_count;
+        p->last = o;
+        rest_sample(&p->last);
+        p->last.t = 0.0;
+    }
 }
 
 static int arm(veer_player *p, double now) {
@@ -450,15 +472,7 @@ static int arm(veer_player *p, double now) {
     p->plan_id = id;
     p->state = VEER_PLAYER_ARMED;
     p->last_auth = now;
-    veer_sample o;
-    if (veer_plan_sample(plan, 0.0, &o) == VEER_OK && sample_finite(&o)) {
-        /* Report the plan's start; the modules stay where they are until START. */
-        for (int i = 0; i < o.module_count && i < p->last.module_count; i++) o.modules[i].steer = p->last.modules[i].steer;
-        o.module_count = p->module_count;
-        p->last = o;
-        rest_sample(&p->last);
-        p->last.t = 0.0;
-    }
+    show_start(p);
     return VEER_LINK_NONE;
 }
 
