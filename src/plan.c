@@ -70,11 +70,12 @@ veer__plan_caps veer__plan_caps_for(int waypoints, int legs, int modules) {
     veer__path_caps(waypoints, legs, &c.pieces, &c.segments);
     c.legs = legs < 0 ? 0 : legs;
     c.modules = modules < 0 ? 0 : modules;
+    c.route = 1;
     return c;
 }
 
 size_t veer__plan_block_bytes(veer__plan_caps c) {
-    return VEER__PLAN_BLOCK_BYTES(c.pieces, c.segments, c.legs, c.modules);
+    return VEER__PLAN_BLOCK_BYTES(c.pieces, c.segments, c.legs, c.modules, c.route);
 }
 
 void veer__plan_attach(veer_plan *plan, veer__plan_caps c) {
@@ -100,6 +101,8 @@ void veer__plan_attach(veer_plan *plan, veer__plan_caps c) {
         plan->segs[j].steer_from = steer + (size_t)(2 * j) * (size_t)c.modules;
         plan->segs[j].steer_to = steer + (size_t)(2 * j + 1) * (size_t)c.modules;
     }
+    at += VEER__ALIGN16((size_t)c.segments * 2 * (size_t)c.modules * sizeof(double));
+    plan->route = c.route ? (veer_route *)at : NULL;
 }
 
 void veer__plan_lay_grid(veer_plan *plan, int n, char *grid, int binding) {
@@ -687,7 +690,7 @@ veer_status veer__shape_segment(veer_plan *plan, int j, const veer_limits *lim, 
 /* Re-planning on the move: the start twist must be the path's own direction
  * of motion at the start; returns sdot^2 there (0 at rest). */
 static veer_status start_state(veer_plan *plan, double *x_start, veer_diag *diag) {
-    const veer_route *r = &plan->route;
+    const veer_route *r = plan->route;
     *x_start = 0.0;
     if (!r->has_start_twist) return VEER_OK;
     veer_limit_id id = veer__limit(VEER_LIMIT_START_STATE, -1);
@@ -719,7 +722,7 @@ static veer_status start_state(veer_plan *plan, double *x_start, veer_diag *diag
             if (hypot(v[0], v[1]) <= 1e-9) continue;
             double dir = atan2(v[1], v[0]);
             if (!r->has_start_steer) {
-                plan->route.start_steer[i] = dir;
+                plan->route->start_steer[i] = dir;
                 continue;
             }
             double d = r->start_steer[i] - veer__steer_near(dir, r->start_steer[i]);
@@ -730,7 +733,7 @@ static veer_status start_state(veer_plan *plan, double *x_start, veer_diag *diag
                                   "cart cannot re-steer; stop first",
                                   i, r->start_steer[i], veer__steer_near(dir, r->start_steer[i]));
         }
-        plan->route.has_start_steer = 1;
+        plan->route->has_start_steer = 1;
     }
     *x_start = sdot * sdot;
     return VEER_OK;
@@ -893,7 +896,6 @@ void veer__plan_timeline(veer_plan *plan) {
         clock = sg->t_move + sg->move_time + sg->dwell;
     }
     plan->duration = clock;
-    plan->leg_count = plan->route.leg_count;
     for (int l = 0; l < plan->leg_count; l++) {
         memset(&plan->legs[l], 0, sizeof plan->legs[l]);
         plan->legs[l].start = -1.0;
@@ -987,7 +989,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     }
 
     double from[VEER_MAX_MODULES];
-    for (int i = 0; i < M; i++) from[i] = plan->route.has_start_steer ? plan->route.start_steer[i] : 0.0;
+    for (int i = 0; i < M; i++) from[i] = plan->route->has_start_steer ? plan->route->start_steer[i] : 0.0;
     for (int j = 0; j < path->segment_count && st == VEER_OK; j++) {
         st = veer__solve_segment(plan, j, &plan->rows, j == 0 ? plan->x_start : 0.0, &ws, diag);
         if (st == VEER_OK) st = veer__steer_segment(plan, j, from, ws.xi, diag);
@@ -1049,7 +1051,8 @@ veer_status veer__plan_create_with(const veer_drive_def *drive, const veer_limit
     plan->drive = *drive;
     plan->limits = *limits;
     plan->options = opt;
-    plan->route = *route;
+    *plan->route = *route;
+    plan->leg_count = route->leg_count;
     plan->module_count = M;
     plan->steered = drive->kind == VEER_DRIVE_STEERED;
     if (cap && cap->cap) plan->cap = *cap;

@@ -199,7 +199,7 @@ struct veer_plan {
     veer_plan_options options;
     veer_row_ctx rows;            /* row builder context (points into drive and limits above) */
     veer_speed_cap cap;           /* speed zones, cap.cap NULL if none */
-    veer_route route;
+    veer_route *route;            /* in the plan's block; NULL on a plan a cart's player loaded (it keeps none) */
     veer_path path;
     int module_count;
     int steered;                  /* 1 for steered drives */
@@ -218,22 +218,23 @@ struct veer_plan {
 };
 
 /* A plan's block: the struct, then its path's pieces and segments, its own
- * segments, its leg summaries and its segments' steer angles (2 x modules
- * doubles each), each at a 16-byte offset, sized for piece_cap pieces,
+ * segments, its leg summaries, its segments' steer angles (2 x modules
+ * doubles each) and, when `route`, its route, each at a 16-byte offset, sized for piece_cap pieces,
  * segment_cap segments (VEER_PATH_*_FOR the route: veer__path_caps),
  * `legs` legs and `modules` modules. The struct does not own its arrays
  * apart from the block, so a plan is never copied by value. */
 typedef struct {
-    int pieces, segments, legs, modules;
+    int pieces, segments, legs, modules, route;
 } veer__plan_caps;
-#define VEER__PLAN_BLOCK_BYTES(pieces, segments, legs, modules)                                                    \
+#define VEER__PLAN_BLOCK_BYTES(pieces, segments, legs, modules, route)                                             \
     (VEER__ALIGN16(sizeof(veer_plan)) + VEER__ALIGN16((size_t)(pieces) * sizeof(veer_path_piece)) +             \
      VEER__ALIGN16((size_t)(segments) * sizeof(veer_path_segment)) +                                            \
      VEER__ALIGN16((size_t)(segments) * sizeof(veer_plan_segment)) +                                            \
      VEER__ALIGN16((size_t)(legs) * sizeof(veer_leg_summary)) +                                                 \
-     VEER__ALIGN16((size_t)(segments) * 2 * (size_t)(modules) * sizeof(double)))
+     VEER__ALIGN16((size_t)(segments) * 2 * (size_t)(modules) * sizeof(double)) +                              \
+     ((route) ? VEER__ALIGN16(sizeof(veer_route)) : 0))
 /* The caps of a plan for a route of that many waypoints and legs on that
- * many modules, and its block's size. */
+ * many modules, keeping its route; and a block's size. */
 veer__plan_caps veer__plan_caps_for(int waypoints, int legs, int modules);
 size_t veer__plan_block_bytes(veer__plan_caps caps);
 /* Points the arrays of plan (at the start of a block of at least
@@ -291,7 +292,7 @@ veer_status veer__shape_segment(veer_plan *plan, int j, const veer_limits *lim, 
 
 /* Absolute times from the segments' re-steer, motion and dwell times (grid
  * times plan->t relative to each segment's motion start on entry), the
- * duration and the leg summaries. */
+ * duration and the summaries of plan->leg_count legs. */
 void veer__plan_timeline(veer_plan *plan);
 
 /* ---- timing.c: timed stops and duration target ------------------------- */

@@ -187,6 +187,7 @@ static int plan_cap(const veer_player_def *def, veer__plan_cap *cap) {
     cap->knots = def->max_knots ? (int)def->max_knots : VEER_WIRE_MAX_KNOTS;
     cap->waypoints = def->max_waypoints ? (int)def->max_waypoints : VEER_MAX_WAYPOINTS;
     cap->legs = def->max_legs ? (int)def->max_legs : VEER_MAX_LEGS;
+    cap->route = 0; /* the player never encodes its plan: the route is rebuilt in scratch and dropped */
     return 1;
 }
 

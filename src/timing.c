@@ -110,8 +110,8 @@ static veer_status settle(veer_plan *plan, int first, int j, int wpi, double lam
  * binds over most of the stretch. */
 veer_status veer__meet_arrivals(veer_plan *plan, veer_workspace *ws, veer_diag *diag) {
     const veer_path *path = &plan->path;
-    for (int w = 0; w < plan->route.waypoint_count; w++) {
-        if (!plan->route.waypoints[w].timed) continue;
+    for (int w = 0; w < plan->route->waypoint_count; w++) {
+        if (!plan->route->waypoints[w].timed) continue;
         int found = 0;
         for (int j = 0; j < path->segment_count && !found; j++) found = path->segments[j].waypoint == w;
         if (!found)
@@ -121,15 +121,15 @@ veer_status veer__meet_arrivals(veer_plan *plan, veer_workspace *ws, veer_diag *
     /* The end timed twice (a timed last stop and a duration target) must
      * agree: one of them would be ignored otherwise. */
     const veer_path_segment *end = &path->segments[path->segment_count - 1];
-    if (plan->options.duration_target > 0.0 && end->waypoint >= 0 && plan->route.waypoints[end->waypoint].timed) {
-        double want = plan->route.waypoints[end->waypoint].arrival + plan->segs[path->segment_count - 1].dwell;
+    if (plan->options.duration_target > 0.0 && end->waypoint >= 0 && plan->route->waypoints[end->waypoint].timed) {
+        double want = plan->route->waypoints[end->waypoint].arrival + plan->segs[path->segment_count - 1].dwell;
         if (fabs(want - plan->options.duration_target) > 1e-6)
             return veer__fail(diag, VEER_ERR_VALUE, end->leg, end->waypoint, -1, -1.0,
                               veer__limit(VEER_LIMIT_NONE, -1),
                               "duration_target %.3f s disagrees with the timed last stop (waypoint %d at %.3f s, "
                               "then %.3f s of dwell): give one of them, or both alike",
                               plan->options.duration_target, end->waypoint,
-                              plan->route.waypoints[end->waypoint].arrival, plan->segs[path->segment_count - 1].dwell);
+                              plan->route->waypoints[end->waypoint].arrival, plan->segs[path->segment_count - 1].dwell);
     }
     int first = 0;
     double last_target = -1.0;
@@ -137,9 +137,9 @@ veer_status veer__meet_arrivals(veer_plan *plan, veer_workspace *ws, veer_diag *
         const veer_path_segment *ps = &path->segments[j];
         double T;
         int wpi = ps->waypoint;
-        if (wpi >= 0 && plan->route.waypoints[wpi].timed && (j + 1 == path->segment_count ||
+        if (wpi >= 0 && plan->route->waypoints[wpi].timed && (j + 1 == path->segment_count ||
                                                           path->segments[j + 1].waypoint != wpi)) {
-            T = plan->route.waypoints[wpi].arrival;
+            T = plan->route->waypoints[wpi].arrival;
         } else if (j + 1 == path->segment_count && plan->options.duration_target > 0.0) {
             T = plan->options.duration_target - plan->segs[j].dwell;
             wpi = -1;

@@ -359,8 +359,8 @@ veer_status veer_plan_needs_pb(const uint8_t *plan, size_t plan_size, veer_plan_
     veer_plan_needs n;
     n.plan_bytes = plan_size < VEER_LINK_MIN_PLAN_BYTES ? VEER_LINK_MIN_PLAN_BYTES : (uint32_t)plan_size;
     n.knots = (uint32_t)p->n;
-    n.waypoints = (uint32_t)p->route.waypoint_count;
-    n.legs = (uint32_t)p->route.leg_count;
+    n.waypoints = (uint32_t)p->route->waypoint_count;
+    n.legs = (uint32_t)p->route->leg_count;
     n.modules = (uint32_t)p->module_count;
     veer_plan_destroy(p);
     *out = n;

@@ -176,6 +176,133 @@ static veer_status get_msg(const reader *r, pb_istream_t *s, const pb_msgdesc_t 
     return VEER_OK;
 }
 
+/* ---- the route: its head decoded, its legs and waypoints left in the bytes -- */
+
+#define ROUTE_STEER_MAX (sizeof(((veer_v1_Route *)0)->start_steer) / sizeof(double))
+#define ROUTE_LEGS_MAX (sizeof(((veer_v1_Route *)0)->legs) / sizeof(veer_v1_Leg))
+#define ROUTE_WAYPOINTS_MAX (sizeof(((veer_v1_Route *)0)->waypoints) / sizeof(veer_v1_Waypoint))
+
+/* One element of a repeated field, decoded (as a fresh message) to check it
+ * and then dropped; *count counts it against cap, as nanopb's array would. */
+static veer_status get_element(const reader *r, pb_istream_t *s, size_t after, const pb_msgdesc_t *fields,
+                               void *scratch, pb_size_t *count, size_t cap) {
+    pb_istream_t sub;
+    if (!pb_make_string_substream(s, &sub)) return pb_failed(r, s, after);
+    if ((size_t)*count >= cap) {
+        pb_close_string_substream(s, &sub);
+        return veer__fail_plain(r->diag, VEER_ERR_CAPACITY, "plan: a list or string is longer than its capacity (%s)",
+                                "array overflow");
+    }
+    size_t sub_after = s->bytes_left;
+    if (!pb_decode(&sub, fields, scratch)) return pb_failed(r, &sub, sub_after);
+    if (!pb_close_string_substream(s, &sub)) return pb_failed(r, s, after);
+    (*count)++;
+    return VEER_OK;
+}
+
+/* One Route field's contents (s: its substream), continuing what an earlier
+ * one gave, as nanopb merges them. */
+static veer_status get_route(const reader *r, pb_istream_t *s, size_t after, veer__route_in *ro) {
+    if (ro->pieces == VEER__ROUTE_PIECES)
+        return veer__fail_plain(r->diag, VEER_ERR_DECODE, "plan.route comes in more than %d pieces",
+                                VEER__ROUTE_PIECES);
+    ro->piece[ro->pieces] = (const uint8_t *)s->state; /* a buffer stream reads from here on */
+    ro->piece_size[ro->pieces++] = s->bytes_left;
+    veer_status st = VEER_OK;
+    while (s->bytes_left && st == VEER_OK) {
+        pb_wire_type_t wt;
+        uint32_t tag;
+        bool eof;
+        if (!pb_decode_tag(s, &wt, &tag, &eof)) return eof ? VEER_OK : pb_failed(r, s, after);
+        if (tag == 0) return malformed(r, "zero tag", at(r, s, after));
+        int f64 = tag == veer_v1_Route_start_x_tag || tag == veer_v1_Route_start_y_tag ||
+                  tag == veer_v1_Route_start_yaw_tag;
+        if ((f64 && wt != PB_WT_64BIT) ||
+            (tag == veer_v1_Route_start_steer_tag && wt != PB_WT_64BIT && wt != PB_WT_STRING) ||
+            ((tag == veer_v1_Route_legs_tag || tag == veer_v1_Route_waypoints_tag ||
+              tag == veer_v1_Route_start_twist_tag) &&
+             wt != PB_WT_STRING))
+            return wrong_type(r, s, after);
+        switch (tag) {
+        case veer_v1_Route_start_x_tag: st = get_f64(r, s, after, &ro->start_x); break;
+        case veer_v1_Route_start_y_tag: st = get_f64(r, s, after, &ro->start_y); break;
+        case veer_v1_Route_start_yaw_tag: st = get_f64(r, s, after, &ro->start_yaw); break;
+        case veer_v1_Route_start_steer_tag: {
+            /* packed: whole doubles that fit, or nanopb's "array overflow"; else one */
+            size_t n = 1;
+            pb_istream_t sub, *q = s;
+            if (wt == PB_WT_STRING) {
+                if (!pb_make_string_substream(s, &sub)) return pb_failed(r, s, after);
+                q = &sub, n = sub.bytes_left / 8;
+                if (sub.bytes_left % 8 != 0) n = ROUTE_STEER_MAX + 1;
+            }
+            if (ro->start_steer_count + n > ROUTE_STEER_MAX)
+                return over(r, "plan.route.start_steer", ro->start_steer_count + n, ROUTE_STEER_MAX);
+            for (size_t i = 0; i < n && st == VEER_OK; i++)
+                st = get_f64(r, q, after, &ro->start_steer[ro->start_steer_count++]);
+            if (st == VEER_OK && q == &sub && !pb_close_string_substream(s, &sub)) return pb_failed(r, s, after);
+            break;
+        }
+        case veer_v1_Route_legs_tag: {
+            veer_v1_Leg leg;
+            st = get_element(r, s, after, veer_v1_Leg_fields, &leg, &ro->legs_count, ROUTE_LEGS_MAX);
+            break;
+        }
+        case veer_v1_Route_waypoints_tag: {
+            veer_v1_Waypoint w;
+            st = get_element(r, s, after, veer_v1_Waypoint_fields, &w, &ro->waypoints_count, ROUTE_WAYPOINTS_MAX);
+            break;
+        }
+        case veer_v1_Route_start_twist_tag:
+            st = get_msg(r, s, veer_v1_Twist_fields, &ro->start_twist);
+            ro->has_start_twist = true;
+            break;
+        default:
+            if (!pb_skip_field(s, wt)) return pb_failed(r, s, after);
+        }
+    }
+    return st;
+}
+
+void veer__route_cursor_init(veer__route_cursor *c, const veer__route_in *route, uint32_t tag) {
+    memset(c, 0, sizeof *c);
+    c->route = route;
+    c->tag = tag;
+    c->piece = -1;
+}
+
+int veer__route_next(veer__route_cursor *c, void *out) {
+    const veer__route_in *ro = c->route;
+    int legs = c->tag == veer_v1_Route_legs_tag;
+    if (ro->msg) { /* a decoded message */
+        if (c->index >= (legs ? (int)ro->msg->legs_count : (int)ro->msg->waypoints_count)) return 0;
+        if (legs) memcpy(out, &ro->msg->legs[c->index], sizeof(veer_v1_Leg));
+        else memcpy(out, &ro->msg->waypoints[c->index], sizeof(veer_v1_Waypoint));
+        c->index++;
+        return 1;
+    }
+    for (;;) { /* the bytes, which veer__wire_plan_read has read once */
+        if (c->piece < 0 || c->s.bytes_left == 0) {
+            if (++c->piece >= ro->pieces) return 0;
+            c->s = pb_istream_from_buffer(ro->piece[c->piece], ro->piece_size[c->piece]);
+        }
+        pb_wire_type_t wt;
+        uint32_t tag;
+        bool eof;
+        if (!pb_decode_tag(&c->s, &wt, &tag, &eof)) return 0;
+        if (tag != c->tag) {
+            if (!pb_skip_field(&c->s, wt)) return 0;
+            continue;
+        }
+        pb_istream_t sub;
+        if (!pb_make_string_substream(&c->s, &sub)) return 0;
+        bool ok = pb_decode(&sub, legs ? veer_v1_Leg_fields : veer_v1_Waypoint_fields, out);
+        if (!pb_close_string_substream(&c->s, &sub) || !ok) return 0;
+        c->index++;
+        return 1;
+    }
+}
+
 /* ---- the content hash ---------------------------------------------------- */
 
 /* Each writes a field as nanopb's encoder writes a proto3 field: not at
@@ -211,16 +338,48 @@ static bool put_profile_fields(pb_ostream_t *o, const veer__profile_in *p) {
     return ok && put_bytes(o, veer_v1_Profile_jerk_window_tag, p->jerk_packed, 8 * p->jerk_count);
 }
 
+/* The route as nanopb encodes the message it decodes to: fields in number
+ * order, the start steer packed, each leg and waypoint re-encoded. */
+static bool put_route_fields(pb_ostream_t *o, const veer__route_in *ro) {
+    if (!put_f64(o, veer_v1_Route_start_x_tag, ro->start_x) || !put_f64(o, veer_v1_Route_start_y_tag, ro->start_y) ||
+        !put_f64(o, veer_v1_Route_start_yaw_tag, ro->start_yaw))
+        return false;
+    if (ro->start_steer_count > 0) {
+        if (!pb_encode_tag(o, PB_WT_STRING, veer_v1_Route_start_steer_tag) ||
+            !pb_encode_varint(o, 8u * ro->start_steer_count))
+            return false;
+        for (pb_size_t i = 0; i < ro->start_steer_count; i++)
+            if (!pb_encode_fixed64(o, &ro->start_steer[i])) return false;
+    }
+    union {
+        veer_v1_Leg leg;
+        veer_v1_Waypoint waypoint;
+    } e;
+    static const uint32_t tags[2] = {veer_v1_Route_legs_tag, veer_v1_Route_waypoints_tag};
+    for (int k = 0; k < 2; k++) {
+        veer__route_cursor c;
+        veer__route_cursor_init(&c, ro, tags[k]);
+        while (veer__route_next(&c, &e))
+            if (!put_msg(o, tags[k], k == 0 ? veer_v1_Leg_fields : veer_v1_Waypoint_fields, &e)) return false;
+    }
+    return !ro->has_start_twist || put_msg(o, veer_v1_Route_start_twist_tag, veer_v1_Twist_fields, &ro->start_twist);
+}
+
 /* The contents' canonical encoding with content_hash empty, into the hash. */
 static bool put_plan(pb_ostream_t *o, const veer__plan_in *in, const uint8_t *cart_id, size_t cart_id_size) {
     if (!put_u32(o, veer_v1_Plan_schema_version_tag, in->schema_version) ||
         !put_u32(o, veer_v1_Plan_library_version_tag, in->library_version) ||
         !put_u32(o, veer_v1_Plan_path_model_tag, in->path_model) ||
         !put_msg(o, veer_v1_Plan_drive_tag, veer_v1_DriveDef_fields, in->drive) ||
-        !put_msg(o, veer_v1_Plan_limits_tag, veer_v1_Limits_fields, in->limits) ||
-        !put_msg(o, veer_v1_Plan_route_tag, veer_v1_Route_fields, in->route) ||
-        !put_msg(o, veer_v1_Plan_options_tag, veer_v1_PlanOptions_fields, in->options))
+        !put_msg(o, veer_v1_Plan_limits_tag, veer_v1_Limits_fields, in->limits))
         return false;
+    if (in->has_route) {
+        pb_ostream_t sz = PB_OSTREAM_SIZING;
+        if (!put_route_fields(&sz, &in->route) || !pb_encode_tag(o, PB_WT_STRING, veer_v1_Plan_route_tag) ||
+            !pb_encode_varint(o, sz.bytes_written) || !put_route_fields(o, &in->route))
+            return false;
+    }
+    if (!put_msg(o, veer_v1_Plan_options_tag, veer_v1_PlanOptions_fields, in->options)) return false;
     if (in->has_profile) {
         pb_ostream_t sz = PB_OSTREAM_SIZING;
         if (!put_profile_fields(&sz, &in->profile) || !pb_encode_tag(o, PB_WT_STRING, veer_v1_Plan_profile_tag) ||
@@ -268,7 +427,13 @@ veer_status veer__wire_plan_read(const uint8_t *bytes, size_t size, veer__plan_m
         case veer_v1_Plan_path_model_tag: st = get_u32(&r, &s, 0, &in->path_model); break;
         case veer_v1_Plan_drive_tag: st = get_msg(&r, &s, veer_v1_DriveDef_fields, &msgs->drive); break;
         case veer_v1_Plan_limits_tag: st = get_msg(&r, &s, veer_v1_Limits_fields, &msgs->limits); break;
-        case veer_v1_Plan_route_tag: st = get_msg(&r, &s, veer_v1_Route_fields, &msgs->route); break;
+        case veer_v1_Plan_route_tag: {
+            pb_istream_t sub;
+            if (!pb_make_string_substream(&s, &sub)) return pb_failed(&r, &s, 0);
+            st = get_route(&r, &sub, s.bytes_left, &in->route);
+            if (st == VEER_OK && !pb_close_string_substream(&s, &sub)) return pb_failed(&r, &s, 0);
+            break;
+        }
         case veer_v1_Plan_options_tag: st = get_msg(&r, &s, veer_v1_PlanOptions_fields, &msgs->options); break;
         case veer_v1_Plan_profile_tag: {
             pb_istream_t sub;
@@ -292,7 +457,7 @@ veer_status veer__wire_plan_read(const uint8_t *bytes, size_t size, veer__plan_m
     if (st != VEER_OK) return st;
     in->drive = has[veer_v1_Plan_drive_tag] ? &msgs->drive : NULL;
     in->limits = has[veer_v1_Plan_limits_tag] ? &msgs->limits : NULL;
-    in->route = has[veer_v1_Plan_route_tag] ? &msgs->route : NULL;
+    in->has_route = has[veer_v1_Plan_route_tag];
     in->options = has[veer_v1_Plan_options_tag] ? &msgs->options : NULL;
     in->has_profile = has[veer_v1_Plan_profile_tag];
     veer_sha256 c;

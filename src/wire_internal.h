@@ -39,6 +39,45 @@ int veer__wire_status_to_pb(veer_status st);
 veer_status veer__wire_drive_from_pb(const veer_v1_DriveDef *m, veer_drive_def *out, veer_diag *diag);
 veer_status veer__wire_limits_from_pb(const veer_v1_Limits *m, int module_count, veer_limits *out, veer_diag *diag);
 veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, veer_route *out, veer_diag *diag);
+
+/* A Route message as the rebuild reads it, from either source: the head
+ * (the scalars, start steer and twist, the counts) and its legs and
+ * waypoints, taken one at a time (veer__route_next) from a decoded
+ * veer_v1_Route (msg) or where they lie in the bytes of the Route fields
+ * (the cart's reader, wire_cart.c: a veer_v1_Route is 7.5 KB, sized for 64
+ * waypoints). A Route field given again continues the first (nanopb's
+ * merge): up to VEER__ROUTE_PIECES of them. */
+#define VEER__ROUTE_PIECES 4
+typedef struct {
+    double start_x, start_y, start_yaw;
+    pb_size_t start_steer_count;
+    double start_steer[VEER_MAX_MODULES];
+    bool has_start_twist;
+    veer_v1_Twist start_twist;
+    pb_size_t legs_count, waypoints_count;
+    const veer_v1_Route *msg; /* the elements' source, or: */
+    int pieces;
+    const uint8_t *piece[VEER__ROUTE_PIECES]; /* the Route fields' contents, in the order they came */
+    size_t piece_size[VEER__ROUTE_PIECES];
+} veer__route_in;
+
+/* The head of m, its elements taken from m. */
+void veer__route_in_from_msg(const veer_v1_Route *m, veer__route_in *out);
+
+/* Walks a route's legs (veer_v1_Route_legs_tag) or waypoints in order. */
+typedef struct {
+    const veer__route_in *route;
+    uint32_t tag;
+    int index, piece;
+    pb_istream_t s;
+} veer__route_cursor;
+void veer__route_cursor_init(veer__route_cursor *c, const veer__route_in *route, uint32_t tag);
+/* The next element into out (a veer_v1_Leg or veer_v1_Waypoint): 1, or 0
+ * after the last (elements that decoded once decode again). */
+int veer__route_next(veer__route_cursor *c, void *out);
+
+/* veer__wire_route_from_pb from either source. */
+veer_status veer__wire_route_from_in(const veer__route_in *m, int module_count, veer_route *out, veer_diag *diag);
 veer_status veer__wire_options_from_pb(const veer_v1_PlanOptions *m, veer_plan_options *out, veer_diag *diag);
 /* What the planner takes from a PlanRequest (wire_api.c). */
 typedef struct {
@@ -104,6 +143,7 @@ veer_status veer__wire_plan_hash(veer_v1_Plan *m, uint8_t digest[32]);
  * veer_player_def; the library's maxima for veer_plan_load_pb). */
 typedef struct {
     int knots, waypoints, legs, modules;
+    int route; /* 1: the plan keeps its route (veer_plan_encode_pb needs it); 0: a cart's player, which does not */
 } veer__plan_cap;
 /* The library's maxima. */
 veer__plan_cap veer__plan_cap_max(void);
@@ -114,7 +154,7 @@ veer__plan_cap veer__plan_cap_max(void);
  * `modules` modules; veer_plan_load_pb puts the decoded message behind
  * them. The macros give the totals at the maxima as constants. */
 #define VEER__WIRE_PLAN_BYTES(piece_cap, segment_cap, leg_cap, knot_cap, modules)                                \
-    (VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap, leg_cap, modules) +                                          \
+    (VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap, leg_cap, modules, 1) +                                       \
      VEER__ALIGN16(VEER__GRID_BYTES(knot_cap, modules, 0)))
 #define VEER__WIRE_PLAN_WORK_BYTES                                                                              \
     VEER__WIRE_PLAN_BYTES(VEER_PATH_MAX_PIECES, VEER_PATH_MAX_SEGMENTS, VEER_MAX_LEGS, VEER_WIRE_MAX_KNOTS,       \
@@ -156,8 +196,9 @@ typedef struct {
     uint32_t schema_version, library_version, path_model;
     const veer_v1_DriveDef *drive;
     const veer_v1_Limits *limits;
-    const veer_v1_Route *route;
     const veer_v1_PlanOptions *options;
+    int has_route;
+    veer__route_in route; /* when has_route */
     int has_profile;
     veer__profile_in profile;
     double duration, length;
@@ -182,8 +223,8 @@ void veer__wire_plan_in_from_msg(veer_v1_Plan *m, veer__plan_in *in);
 typedef struct {
     veer_v1_DriveDef drive;
     veer_v1_Limits limits;
-    veer_v1_Route route;
     veer_v1_PlanOptions options;
+    veer_route route; /* the route rebuilt from the bytes, read by the path builder only */
 } veer__plan_msgs;
 
 /* Reads Plan bytes as veer_v1_Plan's decoder would (the same statuses for

@@ -108,13 +108,16 @@ veer_status veer__wire_plan_hash(veer_v1_Plan *m, uint8_t digest[32]) {
 /* ---- rebuilding a plan from knots --------------------------------------- */
 
 veer__plan_cap veer__plan_cap_max(void) {
-    veer__plan_cap c = {VEER_WIRE_MAX_KNOTS, VEER_MAX_WAYPOINTS, VEER_MAX_LEGS, VEER_MAX_MODULES};
+    veer__plan_cap c = {VEER_WIRE_MAX_KNOTS, VEER_MAX_WAYPOINTS, VEER_MAX_LEGS, VEER_MAX_MODULES, 1};
     return c;
 }
 
 size_t veer__wire_plan_bytes_for(const veer__plan_cap *cap) {
     veer__plan_caps c = veer__plan_caps_for(cap->waypoints, cap->legs, cap->modules);
-    return VEER__WIRE_PLAN_BYTES(c.pieces, c.segments, c.legs, cap->knots, cap->modules);
+    size_t grid = VEER__GRID_BYTES(cap->knots, cap->modules, 0);
+    if (!cap->route && grid < sizeof(veer__plan_msgs)) grid = sizeof(veer__plan_msgs); /* the route's scratch */
+    c.route = cap->route;
+    return veer__plan_block_bytes(c) + VEER__ALIGN16(grid);
 }
 
 /* One knot interval: length h, sdot^2 from xa to xb, sdot^2 = xa + b sigma +
@@ -256,11 +259,9 @@ static veer_status parse_profile(const veer__profile_in *pr, const veer_path *pa
 
 /* The plan's timeline from its knots: times, steer angles, re-steer phases,
  * dwells, leg summaries (the same steps as the planner after its solve). */
-static veer_status timeline(veer_plan *plan, veer_diag *diag) {
+static veer_status timeline(veer_plan *plan, double from[VEER_MAX_MODULES], veer_diag *diag) {
     const veer_path *path = &plan->path;
     int M = plan->module_count;
-    double from[VEER_MAX_MODULES];
-    for (int i = 0; i < M; i++) from[i] = plan->route.has_start_steer ? plan->route.start_steer[i] : 0.0;
     for (int j = 0; j < plan->segment_count; j++) {
         veer_plan_segment *sg = &plan->segs[j];
         sg->dwell = path->segments[j].dwell;
@@ -309,9 +310,12 @@ static veer_status jerk_windows(const veer__profile_in *pr, veer_plan *plan, vee
     return VEER_OK;
 }
 
-/* Everything but the profile: versions, drive, limits, route, path. plan
- * starts a block of veer__plan_block_bytes(caps) bytes. */
-static veer_status load_head(const veer__plan_in *m, veer_plan *plan, veer__plan_caps caps, veer_diag *diag) {
+/* Everything but the profile: versions, drive, limits, route, path, and the
+ * modules' angles at the start (from). plan starts a block of
+ * veer__plan_block_bytes(caps) bytes; the route is rebuilt into the block
+ * (caps.route) or into scratch, which the plan does not keep. */
+static veer_status load_head(const veer__plan_in *m, veer_plan *plan, veer__plan_caps caps, veer_route *scratch,
+                             double from[VEER_MAX_MODULES], veer_diag *diag) {
     if (m->schema_version != VEER_WIRE_SCHEMA_VERSION)
         return veer__fail_plain(diag, VEER_ERR_VERSION,
                                 "plan: schema version %u, this library reads version %d", (unsigned)m->schema_version,
@@ -320,9 +324,9 @@ static veer_status load_head(const veer__plan_in *m, veer_plan *plan, veer__plan
         return veer__fail_plain(diag, VEER_ERR_VERSION,
                                 "plan: made with path model %u, this library builds paths with model %d",
                                 (unsigned)m->path_model, VEER_WIRE_PATH_MODEL);
-    if (!m->drive || !m->limits || !m->route || !m->has_profile)
+    if (!m->drive || !m->limits || !m->has_route || !m->has_profile)
         return veer__fail_plain(diag, VEER_ERR_VALUE, "plan: the %s is missing",
-                                !m->drive ? "drive" : !m->limits ? "limits" : !m->route ? "route" : "profile");
+                                !m->drive ? "drive" : !m->limits ? "limits" : !m->has_route ? "route" : "profile");
     memset(plan, 0, sizeof *plan);
     veer__plan_attach(plan, caps);
     veer_status st;
@@ -334,10 +338,13 @@ static veer_status load_head(const veer__plan_in *m, veer_plan *plan, veer__plan
     if ((st = veer__limits_check(&plan->drive, &plan->limits, diag))) return st;
     plan->options = veer_default_plan_options();
     if (m->options && (st = veer__wire_options_from_pb(m->options, &plan->options, diag))) return st;
-    if ((st = veer__wire_route_from_pb(m->route, plan->module_count, &plan->route, diag))) return st;
+    veer_route *route = plan->route ? plan->route : scratch;
+    if ((st = veer__wire_route_from_in(&m->route, plan->module_count, route, diag))) return st;
     veer__row_ctx_init(&plan->rows, &plan->drive, &plan->limits, &plan->options);
-    if ((st = veer__path_build(&plan->route, &plan->path, diag))) return st;
+    if ((st = veer__path_build(route, &plan->path, diag))) return st;
     plan->segment_count = plan->path.segment_count;
+    plan->leg_count = route->leg_count;
+    for (int i = 0; i < plan->module_count; i++) from[i] = route->has_start_steer ? route->start_steer[i] : 0.0;
     return VEER_OK;
 }
 
@@ -369,16 +376,19 @@ static veer_status load(const veer__plan_in *m, void *work, size_t work_size, co
     size_t need = veer__wire_plan_bytes_for(cap);
     if (!work || work_size < need || ((uintptr_t)work % sizeof(double)) != 0)
         return veer__fail_plain(diag, VEER_ERR_VALUE, "plan workspace: needs %zu bytes aligned for double", need);
-    if (m->route && (int)m->route->waypoints_count > cap->waypoints)
-        return over_cap("waypoints", (int)m->route->waypoints_count, cap->waypoints, diag);
-    if (m->route && (int)m->route->legs_count > cap->legs)
-        return over_cap("legs", (int)m->route->legs_count, cap->legs, diag);
+    if ((int)m->route.waypoints_count > cap->waypoints)
+        return over_cap("waypoints", (int)m->route.waypoints_count, cap->waypoints, diag);
+    if ((int)m->route.legs_count > cap->legs)
+        return over_cap("legs", (int)m->route.legs_count, cap->legs, diag);
     veer__plan_caps caps = veer__plan_caps_for(cap->waypoints, cap->legs, cap->modules);
+    caps.route = cap->route;
     veer_plan *plan = (veer_plan *)work;
     char *grid = (char *)work + veer__plan_block_bytes(caps);
     /* The cart's submessages may lie where the grid goes (veer__wire_plan_read): m's drive, limits, route
-     * and options are read by load_head only. */
-    veer_status st = load_head(m, plan, caps, diag);
+     * and options are read by load_head only, and a route the plan does not keep is rebuilt there too,
+     * behind them (need counts the room). */
+    double from[VEER_MAX_MODULES];
+    veer_status st = load_head(m, plan, caps, &((veer__plan_msgs *)grid)->route, from, diag);
     int n = 0;
     if (st == VEER_OK && plan->module_count > cap->modules)
         st = over_cap("modules", plan->module_count, cap->modules, diag);
@@ -389,7 +399,7 @@ static veer_status load(const veer__plan_in *m, void *work, size_t work_size, co
     if ((st = parse_profile(&m->profile, &plan->path, plan->s, plan->x, plan->segs, &n, diag))) return st;
     plan->x_start = m->profile.start_sdot * m->profile.start_sdot;
     if ((st = jerk_windows(&m->profile, plan, diag))) return st;
-    if ((st = timeline(plan, diag))) return st;
+    if ((st = timeline(plan, from, diag))) return st;
     if ((st = check_tail(m, plan, check_hash, diag))) return st;
     plan->alloc_size = 0; /* lives in the caller's workspace */
     *out = plan;
@@ -403,7 +413,8 @@ void veer__wire_plan_in_from_msg(veer_v1_Plan *m, veer__plan_in *in) {
     in->path_model = m->path_model;
     in->drive = m->has_drive ? &m->drive : NULL;
     in->limits = m->has_limits ? &m->limits : NULL;
-    in->route = m->has_route ? &m->route : NULL;
+    in->has_route = m->has_route;
+    veer__route_in_from_msg(&m->route, &in->route);
     in->options = m->has_options ? &m->options : NULL;
     in->has_profile = m->has_profile;
     const veer_v1_Profile *pr = &m->profile;
@@ -419,7 +430,9 @@ void veer__wire_plan_in_from_msg(veer_v1_Plan *m, veer__plan_in *in) {
 }
 
 size_t veer__wire_plan_grid_at(const veer__plan_cap *cap) {
-    return veer__plan_block_bytes(veer__plan_caps_for(cap->waypoints, cap->legs, cap->modules));
+    veer__plan_caps c = veer__plan_caps_for(cap->waypoints, cap->legs, cap->modules);
+    c.route = cap->route;
+    return veer__plan_block_bytes(c);
 }
 
 veer_status veer__wire_plan_load_in(const veer__plan_in *in, void *work, size_t work_size, const veer__plan_cap *cap,
@@ -442,12 +455,13 @@ veer_status veer__wire_plan_decode_heap(veer_v1_Plan *msg, veer_plan **out, veer
     veer__plan_in in, *m = &in;
     veer__wire_plan_in_from_msg(msg, &in);
     /* one block sized for the message's route (counts beyond the maxima fail in load_head) */
-    veer__plan_caps caps = veer__plan_caps_for(m->route ? (int)m->route->waypoints_count : 0,
-                                               m->route ? (int)m->route->legs_count : 0, VEER_MAX_MODULES);
+    veer__plan_caps caps = veer__plan_caps_for((int)m->route.waypoints_count, (int)m->route.legs_count,
+                                               VEER_MAX_MODULES);
     size_t bytes = veer__plan_block_bytes(caps);
     veer_plan *plan = veer__calloc(1, bytes);
     if (!plan) return veer__fail_plain(diag, VEER_ERR_NO_MEMORY, "out of memory");
-    veer_status st = load_head(m, plan, caps, diag);
+    double from[VEER_MAX_MODULES];
+    veer_status st = load_head(m, plan, caps, NULL, from, diag);
     plan->alloc_size = bytes;
     int n = 0;
     if (st == VEER_OK) st = parse_profile(&m->profile, &plan->path, NULL, NULL, NULL, &n, diag);
@@ -466,7 +480,7 @@ veer_status veer__wire_plan_decode_heap(veer_v1_Plan *msg, veer_plan **out, veer
     st = parse_profile(&m->profile, &plan->path, plan->s, plan->x, plan->segs, &n, diag);
     plan->x_start = m->profile.start_sdot * m->profile.start_sdot;
     if (st == VEER_OK) st = jerk_windows(&m->profile, plan, diag);
-    if (st == VEER_OK) st = timeline(plan, diag);
+    if (st == VEER_OK) st = timeline(plan, from, diag);
     if (st == VEER_OK) st = check_tail(m, plan, 1, diag);
     if (st != VEER_OK) {
         veer_plan_destroy(plan);
@@ -805,7 +819,10 @@ veer_status veer__wire_plan_to_pb(const veer_plan *plan, const veer_v1_PlanReque
     } else {
         veer__wire_drive_to_pb(&plan->drive, &m->drive);
         veer__wire_limits_to_pb(&plan->limits, plan->module_count, &m->limits);
-        veer__wire_route_to_pb(&plan->route, plan->module_count, &m->route);
+        if (!plan->route)
+            return veer__fail_plain(diag, VEER_ERR_STATE,
+                                    "plan: loaded by a cart's player, which keeps no route: encode the plan it came from");
+        veer__wire_route_to_pb(plan->route, plan->module_count, &m->route);
     }
 
     size_t wb = VEER__WIRE_PLAN_WORK_BYTES, tb = (size_t)plan->n * sizeof(qknot);

@@ -307,7 +307,24 @@ static veer_status route_value(double v, const char *fmt, int index, veer_diag *
     return bad(diag, VEER_ERR_VALUE, "%s is not finite (%g)", name, v);
 }
 
+void veer__route_in_from_msg(const veer_v1_Route *m, veer__route_in *out) {
+    memset(out, 0, sizeof *out);
+    out->start_x = m->start_x, out->start_y = m->start_y, out->start_yaw = m->start_yaw;
+    out->start_steer_count = m->start_steer_count;
+    memcpy(out->start_steer, m->start_steer, sizeof out->start_steer);
+    out->has_start_twist = m->has_start_twist;
+    out->start_twist = m->start_twist;
+    out->legs_count = m->legs_count, out->waypoints_count = m->waypoints_count;
+    out->msg = m;
+}
+
 veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, veer_route *out, veer_diag *diag) {
+    veer__route_in in;
+    veer__route_in_from_msg(m, &in);
+    return veer__wire_route_from_in(&in, module_count, out, diag);
+}
+
+veer_status veer__wire_route_from_in(const veer__route_in *m, int module_count, veer_route *out, veer_diag *diag) {
     veer_status st;
     if ((st = finite(m->start_x, "route.start_x", diag)) || (st = finite(m->start_y, "route.start_y", diag)) ||
         (st = finite(m->start_yaw, "route.start_yaw", diag)))
@@ -341,8 +358,12 @@ veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, v
         return veer__fail_plain(diag, VEER_ERR_VALUE, "route.legs is empty");
     r->leg_count = (int)m->legs_count;
     long used = 0;
+    veer__route_cursor cur;
+    veer__route_cursor_init(&cur, m, veer_v1_Route_legs_tag);
     for (int i = 0; i < r->leg_count; i++) {
-        const veer_v1_Leg *ml = &m->legs[i];
+        veer_v1_Leg leg;
+        if (!veer__route_next(&cur, &leg)) return veer__fail_plain(diag, VEER_ERR_DECODE, "route.legs: fewer than counted");
+        const veer_v1_Leg *ml = &leg;
         int kind = (int)ml->kind;
         if (kind < VEER_LEG_TRAVEL || kind > VEER_LEG_PIVOT)
             return veer__fail(diag, VEER_ERR_VALUE, i, -1, -1, -1.0, NONE_ID,
@@ -400,8 +421,12 @@ veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, v
                           "route.waypoints has %d entries but the travel legs take %ld", (int)m->waypoints_count,
                           used);
     r->waypoint_count = (int)m->waypoints_count;
+    veer__route_cursor_init(&cur, m, veer_v1_Route_waypoints_tag);
     for (int w = 0; w < r->waypoint_count; w++) {
-        const veer_v1_Waypoint *mw = &m->waypoints[w];
+        veer_v1_Waypoint way;
+        if (!veer__route_next(&cur, &way))
+            return veer__fail_plain(diag, VEER_ERR_DECODE, "route.waypoints: fewer than counted");
+        const veer_v1_Waypoint *mw = &way;
         if ((st = route_value(mw->x, "route.waypoints[%d].x", w, diag)) ||
             (st = route_value(mw->y, "route.waypoints[%d].y", w, diag)) ||
             (st = route_value(mw->has_yaw ? mw->yaw : 0.0, "route.waypoints[%d].yaw", w, diag)) ||
