@@ -1,18 +1,22 @@
 /* The cart's reader of Plan bytes: the fields of a Plan message into a
  * veer__plan_in without a decoded veer_v1_Plan (27 KB, most of it the
  * profile's 16 KB knots field). The player keeps the plan's bytes, so the
- * profile's knots and jerk windows are read where they lie; the drive,
- * limits, route and options are decoded with nanopb into veer__plan_msgs,
- * which the caller may place where the plan's grid arrays go later.
+ * profile's knots and jerk windows are read where they lie, and so are the
+ * route's legs and waypoints (checked here one at a time, decoded again one
+ * at a time when the route is rebuilt: veer__route_next; a veer_v1_Route is
+ * 7.5 KB); the drive, limits and options are decoded with nanopb into
+ * veer__plan_msgs, which the caller may place where the plan's grid arrays
+ * go later.
  *
  * It reads what veer_v1_Plan's nanopb decoder reads, in the same order and
  * with the same outcome: unknown fields skipped, a repeated scalar field's
  * last value kept, a repeated submessage merged into the earlier one (the
  * submessages through nanopb itself), a known field with the wrong wire
  * type, a zero tag or a truncation VEER_ERR_DECODE, a bytes, string or list
- * field over the generated struct's capacity VEER_ERR_CAPACITY. One case is
- * refused that the decoder takes: jerk_window in pieces (several packed
- * fields, or several unpacked values); every encoder writes it as one packed
+ * field over the generated struct's capacity VEER_ERR_CAPACITY. Two cases
+ * are refused that the decoder takes: a route in more than
+ * VEER__ROUTE_PIECES Route fields, and jerk_window in pieces (several packed
+ * fields, or several unpacked values); every encoder writes each as one
  * field.
  *
  * The content hash is SHA-256 over the contents' canonical encoding with
@@ -325,7 +329,8 @@ static bool put_msg(pb_ostream_t *o, uint32_t tag, const pb_msgdesc_t *fields, c
     return !msg || (pb_encode_tag(o, PB_WT_STRING, tag) && pb_encode_submessage(o, fields, msg));
 }
 
-static bool put_profile_fields(pb_ostream_t *o, const veer__profile_in *p) {
+static bool put_profile_fields(pb_ostream_t *o, const void *arg) {
+    const veer__profile_in *p = arg;
     bool ok = put_f64(o, veer_v1_Profile_s_step_tag, p->s_step) &&
               put_f64(o, veer_v1_Profile_sdot_step_tag, p->sdot_step) &&
               put_u32(o, veer_v1_Profile_knot_count_tag, p->knot_count) &&
@@ -340,7 +345,8 @@ static bool put_profile_fields(pb_ostream_t *o, const veer__profile_in *p) {
 
 /* The route as nanopb encodes the message it decodes to: fields in number
  * order, the start steer packed, each leg and waypoint re-encoded. */
-static bool put_route_fields(pb_ostream_t *o, const veer__route_in *ro) {
+static bool put_route_fields(pb_ostream_t *o, const void *arg) {
+    const veer__route_in *ro = arg;
     if (!put_f64(o, veer_v1_Route_start_x_tag, ro->start_x) || !put_f64(o, veer_v1_Route_start_y_tag, ro->start_y) ||
         !put_f64(o, veer_v1_Route_start_yaw_tag, ro->start_yaw))
         return false;
@@ -365,6 +371,12 @@ static bool put_route_fields(pb_ostream_t *o, const veer__route_in *ro) {
     return !ro->has_start_twist || put_msg(o, veer_v1_Route_start_twist_tag, veer_v1_Twist_fields, &ro->start_twist);
 }
 
+/* A submessage field written by fn: its length from a sizing pass first. */
+static bool put_fields(pb_ostream_t *o, uint32_t tag, bool (*fn)(pb_ostream_t *, const void *), const void *arg) {
+    pb_ostream_t sz = PB_OSTREAM_SIZING;
+    return fn(&sz, arg) && pb_encode_tag(o, PB_WT_STRING, tag) && pb_encode_varint(o, sz.bytes_written) && fn(o, arg);
+}
+
 /* The contents' canonical encoding with content_hash empty, into the hash. */
 static bool put_plan(pb_ostream_t *o, const veer__plan_in *in, const uint8_t *cart_id, size_t cart_id_size) {
     if (!put_u32(o, veer_v1_Plan_schema_version_tag, in->schema_version) ||
@@ -373,19 +385,10 @@ static bool put_plan(pb_ostream_t *o, const veer__plan_in *in, const uint8_t *ca
         !put_msg(o, veer_v1_Plan_drive_tag, veer_v1_DriveDef_fields, in->drive) ||
         !put_msg(o, veer_v1_Plan_limits_tag, veer_v1_Limits_fields, in->limits))
         return false;
-    if (in->has_route) {
-        pb_ostream_t sz = PB_OSTREAM_SIZING;
-        if (!put_route_fields(&sz, &in->route) || !pb_encode_tag(o, PB_WT_STRING, veer_v1_Plan_route_tag) ||
-            !pb_encode_varint(o, sz.bytes_written) || !put_route_fields(o, &in->route))
-            return false;
-    }
-    if (!put_msg(o, veer_v1_Plan_options_tag, veer_v1_PlanOptions_fields, in->options)) return false;
-    if (in->has_profile) {
-        pb_ostream_t sz = PB_OSTREAM_SIZING;
-        if (!put_profile_fields(&sz, &in->profile) || !pb_encode_tag(o, PB_WT_STRING, veer_v1_Plan_profile_tag) ||
-            !pb_encode_varint(o, sz.bytes_written) || !put_profile_fields(o, &in->profile))
-            return false;
-    }
+    if ((in->has_route && !put_fields(o, veer_v1_Plan_route_tag, put_route_fields, &in->route)) ||
+        !put_msg(o, veer_v1_Plan_options_tag, veer_v1_PlanOptions_fields, in->options) ||
+        (in->has_profile && !put_fields(o, veer_v1_Plan_profile_tag, put_profile_fields, &in->profile)))
+        return false;
     /* the struct's string ends at its first NUL */
     const uint8_t *nul = cart_id_size ? memchr(cart_id, 0, cart_id_size) : NULL;
     size_t n = nul ? (size_t)(nul - cart_id) : cart_id_size;

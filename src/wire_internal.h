@@ -218,8 +218,9 @@ void veer__wire_plan_in_from_msg(veer_v1_Plan *m, veer__plan_in *in);
 
 /* ---- wire_cart.c: Plan bytes -> veer__plan_in, no veer_v1_Plan ------------ */
 
-/* The submessages the cart decodes with nanopb (drive, limits, route,
- * options); the profile, the largest part, stays in the bytes. */
+/* The submessages the cart decodes with nanopb (drive, limits, options)
+ * and room for the route rebuilt from the bytes; the profile, the largest
+ * part, and the route's legs and waypoints stay in the bytes. */
 typedef struct {
     veer_v1_DriveDef drive;
     veer_v1_Limits limits;
@@ -231,9 +232,10 @@ typedef struct {
  * malformed bytes, a field over its capacity VEER_ERR_CAPACITY), decoding
  * the submessages into msgs and pointing in at them and into bytes, and
  * hashes the contents as veer__wire_plan_hash does (in->digest), so that
- * msgs is needed only until the plan's head is loaded. The one difference:
+ * msgs is needed only until the plan's head is loaded. The differences:
  * jerk_window must come in one field (packed, as every encoder writes it,
- * or a single unpacked value); in pieces it is refused (VEER_ERR_DECODE). */
+ * or a single unpacked value), the route in at most VEER__ROUTE_PIECES
+ * fields; otherwise VEER_ERR_DECODE. */
 veer_status veer__wire_plan_read(const uint8_t *bytes, size_t size, veer__plan_msgs *msgs, veer__plan_in *in,
                                  veer_diag *diag);
 

@@ -589,6 +589,11 @@ Test(player, atomic_switch_and_busy) {
     veer_sample before, after;
     cr_assert_eq(veer_plan_sample(armed, 1.0, &before), VEER_OK);
     cr_assert(fabs(veer_plan_length(armed) - 4.0) < 1e-9, "plan B is armed");
+    /* The player's plan keeps no route (rebuilt from the bytes into scratch): it cannot be encoded. */
+    size_t enc = 0;
+    veer_diag ed;
+    cr_assert_eq(veer_plan_encode_pb(armed, NULL, 0, &enc, &ed), VEER_ERR_STATE);
+    cr_assert(strstr(ed.message, "keeps no route") != NULL, "%s", ed.message);
     veer_player_event ev = send_plan(p, &def.link, 3, c, 0.0);
     cr_assert_eq(ev.reason, VEER_LINK_LIMITS);
     cr_assert_eq(veer_player_plan(p), armed);

@@ -345,6 +345,8 @@ Test(wire_cart, equivalent_phrasings_are_read_alike) {
     uint8_t *o = malloc(2 * b.size + 64);
     size_t n = 0;
     veer_status fs;
+    const veer_plan *p;
+    veer_diag d;
     /* 1. the fields in reverse order */
     for (int i = k - 1; i >= 0; i--) n += put(o + n, b.bytes + f[i].at, f[i].end - f[i].at);
     cr_assert_eq(both(o, n, NULL, w1, w2, &fs, "reversed"), VEER_OK);
@@ -388,6 +390,31 @@ Test(wire_cart, equivalent_phrasings_are_read_alike) {
     n = put(o, b.bytes, f[route].end);
     n += put(o + n, b.bytes + f[route].at, b.size - f[route].at);
     cr_assert_neq(both(o, n, NULL, w1, w2, &fs, "route twice"), VEER_OK);
+    /* ... and the route's fields in order, split in 2 Route fields, then whole and followed by empty Route
+     * fields up to VEER__ROUTE_PIECES + 1: merged, the same route. The cart's reader takes up to
+     * VEER__ROUTE_PIECES (every encoder writes the route as one field). */
+    field rf[160];
+    int rk = fields_of(b.bytes + f[route].body, f[route].end - f[route].body, rf, 160);
+    cr_assert_geq(rk, 2, "the route has %d fields", rk);
+    for (int pieces = 2; pieces <= VEER__ROUTE_PIECES + 1; pieces++) {
+        n = put(o, b.bytes, f[route].at);
+        for (int q = 0; q < pieces; q++) {
+            int from = pieces == 2 ? (q == 0 ? 0 : rk / 2) : (q == 0 ? 0 : rk);
+            int to = pieces == 2 ? (q == 0 ? rk / 2 : rk) : rk;
+            size_t len = from < to ? rf[to - 1].end - rf[from].at : 0;
+            o[n++] = veer_v1_Plan_route_tag << 3 | PB_WT_STRING;
+            n += put_varint(o + n, len);
+            if (len) n += put(o + n, b.bytes + f[route].body + rf[from].at, len);
+        }
+        n += put(o + n, b.bytes + f[route].end, b.size - f[route].end);
+        if (pieces <= VEER__ROUTE_PIECES) {
+            cr_assert_eq(both(o, n, NULL, w1, w2, &fs, "route in pieces"), VEER_OK, "%d pieces", pieces);
+        } else {
+            cr_assert_eq(full_load(o, n, NULL, w1, &p, &d), VEER_OK, "%s", d.message);
+            cr_assert_eq(cart_load(o, n, NULL, w2, &p, &d), VEER_ERR_DECODE);
+            cr_assert(strstr(d.message, "route") && strstr(d.message, "pieces"), "%s", d.message);
+        }
+    }
     /* 5. what the cart's reader refuses and the decoder takes: jerk_window in two packed fields */
     int jw = -1;
     for (int i = 0; i < pk; i++)
@@ -411,8 +438,6 @@ Test(wire_cart, equivalent_phrasings_are_read_alike) {
     n += put_varint(o + n, sn);
     n += put(o + n, sub, sn);
     n += put(o + n, b.bytes + f[prof].end, b.size - f[prof].end);
-    const veer_plan *p;
-    veer_diag d;
     cr_assert_eq(full_load(o, n, NULL, w1, &p, &d), VEER_OK, "%s", d.message);
     cr_assert_eq(cart_load(o, n, NULL, w2, &p, &d), VEER_ERR_DECODE);
     cr_assert(strstr(d.message, "jerk_window") && strstr(d.message, "pieces"), "%s", d.message);

@@ -174,7 +174,9 @@ VEER_API VEER_NODISCARD veer_status veer_player_gap_frame(const veer_player *pla
                                                           size_t capacity, size_t *size);
 
 /* The armed, running or last plan (NULL before the first): a decoded plan
- * for the veer_plan_* readers, valid until the next complete plan arrives. */
+ * for the veer_plan_* readers, valid until the next complete plan arrives.
+ * It keeps no route (the cart rebuilds the path from the route in the
+ * plan's bytes and drops it), so veer_plan_encode_pb refuses it. */
 VEER_API const veer_plan *veer_player_plan(const veer_player *player);
 /* The player's receiver (counts per reason, counters). */
 VEER_API const veer_link_receiver *veer_player_receiver(const veer_player *player);

@@ -96,7 +96,7 @@ VEER_API VEER_NODISCARD veer_status veer_plan_decode_pb(const uint8_t *plan, siz
  * sampling (pose within 1 mm and 0.1 degree, setpoints within 0.5 % of the
  * limits). Buffer rules as veer_plan_request_pb: *size gets the size needed;
  * too small or NULL out gives VEER_ERR_BUFFER with out untouched. diag may be
- * NULL. */
+ * NULL. A player's plan (veer_player_plan) keeps no route: VEER_ERR_STATE. */
 VEER_API VEER_NODISCARD veer_status veer_plan_encode_pb(const veer_plan *plan, uint8_t *out, size_t capacity,
                                                         size_t *size, veer_diag *diag);
 
