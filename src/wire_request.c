@@ -362,7 +362,8 @@ veer_status veer__wire_route_from_in(const veer__route_in *m, int module_count, 
     veer__route_cursor_init(&cur, m, veer_v1_Route_legs_tag);
     for (int i = 0; i < r->leg_count; i++) {
         veer_v1_Leg leg;
-        if (!veer__route_next(&cur, &leg)) return veer__fail_plain(diag, VEER_ERR_DECODE, "route.legs: fewer than counted");
+        if (!veer__route_next(&cur, &leg))
+            return veer__fail_plain(diag, VEER_ERR_DECODE, "route.legs: fewer than counted");
         const veer_v1_Leg *ml = &leg;
         int kind = (int)ml->kind;
         if (kind < VEER_LEG_TRAVEL || kind > VEER_LEG_PIVOT)
