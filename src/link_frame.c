@@ -170,7 +170,101 @@ static int tagged_kind(pb_size_t which) {
            which == veer_v1_LinkFrame_report_tag;
 }
 
-int veer__link_decode(const veer_link_def *def, const uint8_t *bytes, size_t size, veer_v1_LinkFrame *frame) {
+/* Capacities of the generated struct's bytes fields (link.options). */
+#define CHUNK_DATA_MAX (sizeof(((veer_v1_PlanChunk *)0)->data.bytes))
+#define FRAME_TAG_MAX (sizeof(((veer_v1_LinkFrame *)0)->tag.bytes))
+
+/* A uint32 field: nanopb refuses a varint that does not fit. */
+static bool read_u32(pb_istream_t *s, pb_wire_type_t wt, uint32_t *v) {
+    uint64_t u;
+    if (wt != PB_WT_VARINT || !pb_decode_varint(s, &u) || u > UINT32_MAX) return false;
+    *v = (uint32_t)u;
+    return true;
+}
+
+/* A bytes field of at most cap bytes, left where it lies (*p: a buffer
+ * stream reads from its state pointer on). */
+static bool read_slice(pb_istream_t *s, pb_wire_type_t wt, size_t cap, const uint8_t **p, size_t *n) {
+    uint32_t len;
+    if (wt != PB_WT_STRING || !pb_decode_varint32(s, &len) || len > cap || len > s->bytes_left) return false;
+    *p = (const uint8_t *)s->state;
+    *n = len;
+    return pb_read(s, NULL, len);
+}
+
+/* A PlanChunk submessage, merged into c as nanopb merges it. */
+static bool read_chunk(pb_istream_t *s, pb_wire_type_t wt, veer__link_chunk *c) {
+    pb_istream_t sub;
+    if (wt != PB_WT_STRING || !pb_make_string_substream(s, &sub)) return false;
+    bool ok = true;
+    while (ok && sub.bytes_left) {
+        pb_wire_type_t w;
+        uint32_t tag;
+        bool eof;
+        if (!pb_decode_tag(&sub, &w, &tag, &eof)) {
+            ok = eof;
+            break;
+        }
+        switch (tag) {
+        case 0: ok = false; break; /* zero tag */
+        case veer_v1_PlanChunk_plan_id_tag: ok = w == PB_WT_VARINT && pb_decode_varint(&sub, &c->plan_id); break;
+        case veer_v1_PlanChunk_index_tag: ok = read_u32(&sub, w, &c->index); break;
+        case veer_v1_PlanChunk_count_tag: ok = read_u32(&sub, w, &c->count); break;
+        case veer_v1_PlanChunk_sealed_size_tag: ok = read_u32(&sub, w, &c->sealed_size); break;
+        case veer_v1_PlanChunk_data_tag: ok = read_slice(&sub, w, CHUNK_DATA_MAX, &c->data, &c->data_size); break;
+        default: ok = pb_skip_field(&sub, w);
+        }
+    }
+    return pb_close_string_substream(s, &sub) && ok;
+}
+
+/* One of the body's submessages decoded by nanopb into msg: zeroed first
+ * when the body held another kind (a oneof starts over), else merged. */
+static bool read_body(pb_istream_t *s, pb_wire_type_t wt, veer__link_frame *f, pb_size_t kind,
+                      const pb_msgdesc_t *fields, void *msg, size_t msg_size) {
+    if (f->which_body != kind) memset(msg, 0, msg_size);
+    f->which_body = kind;
+    if (kind == veer_v1_LinkFrame_chunk_tag) return read_chunk(s, wt, msg);
+    pb_istream_t sub;
+    if (wt != PB_WT_STRING || !pb_make_string_substream(s, &sub)) return false;
+    bool ok = pb_decode_ex(&sub, fields, msg, PB_DECODE_NOINIT);
+    return pb_close_string_substream(s, &sub) && ok;
+}
+
+/* A LinkFrame message's fields into f (zeroed first). */
+static bool read_frame(pb_istream_t *s, veer__link_frame *f) {
+    memset(f, 0, sizeof *f);
+    while (s->bytes_left) {
+        pb_wire_type_t wt;
+        uint32_t tag;
+        bool eof;
+        if (!pb_decode_tag(s, &wt, &tag, &eof)) return eof;
+        bool ok;
+        switch (tag) {
+        case 0: return false; /* zero tag */
+        case veer_v1_LinkFrame_cart_tag: ok = read_u32(s, wt, &f->cart); break;
+        case veer_v1_LinkFrame_chunk_tag:
+            ok = read_body(s, wt, f, (pb_size_t)tag, NULL, &f->body.chunk, sizeof f->body.chunk);
+            break;
+        case veer_v1_LinkFrame_command_tag:
+            ok = read_body(s, wt, f, (pb_size_t)tag, veer_v1_Command_fields, &f->body.command, sizeof f->body.command);
+            break;
+        case veer_v1_LinkFrame_gaps_tag:
+            ok = read_body(s, wt, f, (pb_size_t)tag, veer_v1_GapReport_fields, &f->body.gaps, sizeof f->body.gaps);
+            break;
+        case veer_v1_LinkFrame_report_tag:
+            ok = read_body(s, wt, f, (pb_size_t)tag, veer_v1_PlayerReport_fields, &f->body.report,
+                           sizeof f->body.report);
+            break;
+        case veer_v1_LinkFrame_tag_tag: ok = read_slice(s, wt, FRAME_TAG_MAX, &f->tag, &f->tag_size); break;
+        default: ok = pb_skip_field(s, wt);
+        }
+        if (!ok) return false;
+    }
+    return true;
+}
+
+int veer__link_decode(const veer_link_def *def, const uint8_t *bytes, size_t size, veer__link_frame *frame) {
     if (size > (size_t)def->frame_size) return VEER_LINK_FRAME_SIZE;
     if (!bytes || size < 1) return VEER_LINK_TRUNCATED;
     /* Length prefix: at most two bytes for frames of up to 1024 bytes. */
@@ -191,21 +285,20 @@ int veer__link_decode(const veer_link_def *def, const uint8_t *bytes, size_t siz
                    (uint32_t)bytes[total - 1] << 24;
     if (veer_link_crc32(0, bytes, total - 4) != crc) return VEER_LINK_CRC;
     const uint8_t *b = bytes + head;
-    memset(frame, 0, sizeof *frame);
     pb_istream_t in = pb_istream_from_buffer(b, (size_t)body);
-    if (!pb_decode(&in, veer_v1_LinkFrame_fields, frame) || frame->which_body == 0) return VEER_LINK_MALFORMED;
+    if (!read_frame(&in, frame) || frame->which_body == 0) return VEER_LINK_MALFORMED;
     if (frame->cart != def->cart) return VEER_LINK_OTHER_CART;
-    if (!tagged_kind(frame->which_body)) return frame->tag.size == 0 ? VEER_LINK_NONE : VEER_LINK_MALFORMED;
+    if (!tagged_kind(frame->which_body)) return frame->tag_size == 0 ? VEER_LINK_NONE : VEER_LINK_MALFORMED;
     /* The tag must be the encoding's last field, exactly once at the end. */
     size_t n = (size_t)body;
-    if (frame->tag.size != VEER_LINK_FRAME_TAG_BYTES || n < VEER__LINK_TAG_FIELD_BYTES ||
+    if (frame->tag_size != VEER_LINK_FRAME_TAG_BYTES || n < VEER__LINK_TAG_FIELD_BYTES ||
         b[n - VEER__LINK_TAG_FIELD_BYTES] != (uint8_t)(veer_v1_LinkFrame_tag_tag << 3 | PB_WT_STRING) ||
         b[n - VEER__LINK_TAG_FIELD_BYTES + 1] != VEER_LINK_FRAME_TAG_BYTES ||
-        memcmp(b + n - VEER_LINK_FRAME_TAG_BYTES, frame->tag.bytes, VEER_LINK_FRAME_TAG_BYTES) != 0)
+        memcmp(b + n - VEER_LINK_FRAME_TAG_BYTES, frame->tag, VEER_LINK_FRAME_TAG_BYTES) != 0)
         return VEER_LINK_FRAME_TAG;
     uint8_t tag[VEER_LINK_FRAME_TAG_BYTES];
     veer__link_frame_tag(def->key, b, n - VEER__LINK_TAG_FIELD_BYTES, tag);
-    if (!veer__link_equal(tag, frame->tag.bytes, VEER_LINK_FRAME_TAG_BYTES)) return VEER_LINK_FRAME_TAG;
+    if (!veer__link_equal(tag, frame->tag, VEER_LINK_FRAME_TAG_BYTES)) return VEER_LINK_FRAME_TAG;
     return VEER_LINK_NONE;
 }
 
@@ -369,20 +462,20 @@ veer_status veer_link_parse(const veer_link_def *def, const uint8_t *frame, size
     if (reason) *reason = VEER_LINK_MALFORMED;
     if (!def || !out || (!frame && size)) return VEER_ERR_NULL;
     if (veer_link_def_check(def, NULL) != VEER_OK) return VEER_ERR_VALUE;
-    veer_v1_LinkFrame f;
+    veer__link_frame f;
     int why = veer__link_decode(def, frame, size, &f);
     veer_link_message m;
     memset(&m, 0, sizeof m);
     m.cart = f.cart;
     if (why == VEER_LINK_NONE) switch (f.which_body) {
         case veer_v1_LinkFrame_chunk_tag: {
-            const veer_v1_PlanChunk *c = &f.body.chunk;
+            const veer__link_chunk *c = &f.body.chunk;
             m.kind = VEER_LINK_KIND_CHUNK;
             m.plan_id = c->plan_id;
             m.chunk_index = c->index;
             m.chunk_count = c->count;
             m.sealed_size = c->sealed_size;
-            m.data_size = c->data.size;
+            m.data_size = (uint32_t)c->data_size;
             break;
         }
         case veer_v1_LinkFrame_command_tag:

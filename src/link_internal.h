@@ -59,9 +59,38 @@ uint32_t veer__link_chunk_length(uint32_t index, uint32_t count, uint32_t sealed
  * as wire.h. VEER_ERR_CAPACITY when the frame is larger than frame_size. */
 veer_status veer__link_encode(const veer_link_def *def, veer_v1_LinkFrame *frame, int tagged, uint8_t *out,
                               size_t capacity, size_t *size);
-/* Checks a frame's size and CRC and decodes it into frame; for tagged kinds
- * (command, gaps, report) checks the tag. Returns a veer_link_reason. */
-int veer__link_decode(const veer_link_def *def, const uint8_t *bytes, size_t size, veer_v1_LinkFrame *frame);
+/* A decoded frame: veer_v1_LinkFrame's fields, but a chunk's data and the
+ * tag stay where they lie in the frame's bytes (no frame-sized copy on a
+ * cart's stack: 312 bytes instead of the generated struct's 1080). */
+typedef struct {
+    uint64_t plan_id;
+    uint32_t index, count, sealed_size;
+    const uint8_t *data; /* [data_size] in the frame's bytes */
+    size_t data_size;
+} veer__link_chunk;
+
+typedef struct {
+    uint32_t cart;
+    pb_size_t which_body; /* veer_v1_LinkFrame_*_tag of the body; 0: none */
+    union {
+        veer__link_chunk chunk;
+        veer_v1_Command command;
+        veer_v1_GapReport gaps;
+        veer_v1_PlayerReport report;
+    } body;
+    const uint8_t *tag; /* [tag_size] in the frame's bytes */
+    size_t tag_size;
+} veer__link_frame;
+
+/* Checks a frame's size and CRC and decodes it into frame (valid while the
+ * frame's bytes are), with the outcome of nanopb's decoder of LinkFrame:
+ * unknown fields skipped, a repeated field's last value kept, the body's
+ * submessage merged into an earlier one of the same kind and started over
+ * for another kind, a wrong wire type, a zero tag, a truncation, an integer
+ * over its field or a bytes field over its capacity (link.options) malformed.
+ * For tagged kinds (command, gaps, report) checks the tag. Returns a
+ * veer_link_reason. */
+int veer__link_decode(const veer_link_def *def, const uint8_t *bytes, size_t size, veer__link_frame *frame);
 
 /* The frames of a cart's gap report and of a player report. */
 veer_status veer__link_gaps_frame(const veer_link_def *def, const veer_link_gaps *g, uint8_t *out,

@@ -66,7 +66,7 @@ static void drop(veer_link_receiver *rx) {
     rx->have = 0;
 }
 
-static int take_chunk(veer_link_receiver *rx, const veer_v1_PlanChunk *c, veer_link_event *ev) {
+static int take_chunk(veer_link_receiver *rx, const veer__link_chunk *c, veer_link_event *ev) {
     ev->plan_id = c->plan_id;
     if (c->plan_id == 0 || c->count == 0 || c->count > VEER_LINK_MAX_CHUNKS ||
         c->sealed_size <= VEER_LINK_PLAN_TAG_BYTES ||
@@ -74,7 +74,7 @@ static int take_chunk(veer_link_receiver *rx, const veer_v1_PlanChunk *c, veer_l
         return VEER_LINK_CHUNK_RANGE;
     uint32_t d = veer__link_chunk_bytes(c->count, c->sealed_size);
     if (!d || d > (uint32_t)rx->def.frame_size ||
-        c->data.size != veer__link_chunk_length(c->index, c->count, c->sealed_size))
+        c->data_size != veer__link_chunk_length(c->index, c->count, c->sealed_size))
         return VEER_LINK_CHUNK_RANGE;
     if (c->sealed_size > rx->capacity) {
         /* A plan larger than this cart takes: say so in the gap report (as
@@ -111,7 +111,7 @@ static int take_chunk(veer_link_receiver *rx, const veer_v1_PlanChunk *c, veer_l
     }
     if (c->index == c->count - 1) ev->gaps_due = 1; /* the end of a round: say what is missing */
     if (held(rx, c->index)) return VEER_LINK_DUPLICATE;
-    memcpy(rx->buf + (size_t)c->index * d, c->data.bytes, c->data.size);
+    memcpy(rx->buf + (size_t)c->index * d, c->data, c->data_size);
     rx->bitmap[c->index >> 3] |= (uint8_t)(1u << (c->index & 7u));
     rx->have++;
     if (rx->have < rx->count) return VEER_LINK_NONE;
@@ -151,7 +151,7 @@ veer_status veer_link_receive(veer_link_receiver *rx, const uint8_t *frame, size
     if (rx->ready) return VEER_ERR_STATE;
     veer_link_event e;
     memset(&e, 0, sizeof e);
-    veer_v1_LinkFrame f;
+    veer__link_frame f;
     int why = veer__link_decode(&rx->def, frame, size, &f);
     if (why == VEER_LINK_NONE || why == VEER_LINK_FRAME_TAG) {
         e.kind = f.which_body == veer_v1_LinkFrame_chunk_tag     ? VEER_LINK_KIND_CHUNK
