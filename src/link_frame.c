@@ -133,11 +133,18 @@ static void put_crc(uint8_t *p, uint32_t crc) {
     for (int i = 0; i < 4; i++) p[i] = (uint8_t)(crc >> (8 * i));
 }
 
-veer_status veer__link_encode(const veer_link_def *def, veer_v1_LinkFrame *frame, int tagged, uint8_t *out,
-                              size_t capacity, size_t *size) {
-    frame->tag.size = 0;
-    size_t body = 0;
-    if (!pb_get_encoded_size(&body, veer_v1_LinkFrame_fields, frame)) return VEER_ERR_CAPACITY;
+/* The LinkFrame {cart, body} as nanopb's encoder writes it: cart (proto3)
+ * left out when 0, the oneof's body always, the tag not (it is appended). */
+static bool put_frame(pb_ostream_t *o, uint32_t cart, pb_size_t kind, const pb_msgdesc_t *fields, const void *msg) {
+    return (cart == 0 || (pb_encode_tag(o, PB_WT_VARINT, veer_v1_LinkFrame_cart_tag) && pb_encode_varint(o, cart))) &&
+           pb_encode_tag(o, PB_WT_STRING, kind) && pb_encode_submessage(o, fields, msg);
+}
+
+veer_status veer__link_encode(const veer_link_def *def, pb_size_t kind, const pb_msgdesc_t *fields, const void *msg,
+                              int tagged, uint8_t *out, size_t capacity, size_t *size) {
+    pb_ostream_t sz = PB_OSTREAM_SIZING;
+    if (!put_frame(&sz, def->cart, kind, fields, msg)) return VEER_ERR_CAPACITY;
+    size_t body = sz.bytes_written;
     if (tagged) body += VEER__LINK_TAG_FIELD_BYTES;
     size_t total = varint_size(body) + body + 4;
     *size = total;
@@ -149,7 +156,7 @@ veer_status veer__link_encode(const veer_link_def *def, veer_v1_LinkFrame *frame
     pb_ostream_t os = pb_ostream_from_buffer(out, total);
     if (!pb_encode_varint(&os, body)) return VEER_ERR_CAPACITY;
     size_t head = os.bytes_written;
-    if (!pb_encode(&os, veer_v1_LinkFrame_fields, frame)) return VEER_ERR_CAPACITY; /* sized above: cannot happen */
+    if (!put_frame(&os, def->cart, kind, fields, msg)) return VEER_ERR_CAPACITY; /* sized above: cannot happen */
     size_t n = os.bytes_written;
     if (n + (tagged ? VEER__LINK_TAG_FIELD_BYTES : 0) + 4 != total)
         return VEER_ERR_CAPACITY; /* sizing and writing disagree: cannot happen */
@@ -364,11 +371,9 @@ veer_status veer_link_sender_frame(const veer_link_sender *s, int index, uint8_t
                                    size_t *size) {
     if (!s || !size) return VEER_ERR_NULL;
     if (index < 0 || (uint32_t)index >= s->count) return VEER_ERR_VALUE;
-    veer_v1_LinkFrame f;
-    memset(&f, 0, sizeof f);
-    f.cart = s->def.cart;
-    f.which_body = veer_v1_LinkFrame_chunk_tag;
-    veer_v1_PlanChunk *c = &f.body.chunk;
+    veer_v1_PlanChunk chunk;
+    memset(&chunk, 0, sizeof chunk);
+    veer_v1_PlanChunk *c = &chunk;
     c->plan_id = s->plan_id;
     c->index = (uint32_t)index;
     c->count = s->count;
@@ -376,7 +381,7 @@ veer_status veer_link_sender_frame(const veer_link_sender *s, int index, uint8_t
     uint32_t len = veer__link_chunk_length((uint32_t)index, s->count, s->sealed);
     c->data.size = (pb_size_t)len;
     memcpy(c->data.bytes, s->data + (size_t)index * s->chunk_bytes, len);
-    return veer__link_encode(&s->def, &f, 0, out, capacity, size);
+    return veer__link_encode(&s->def, veer_v1_LinkFrame_chunk_tag, veer_v1_PlanChunk_fields, c, 0, out, capacity, size);
 }
 
 veer_status veer_link_command_frame(const veer_link_def *def, uint64_t seq, int kind, uint64_t plan_id, uint8_t *out,
@@ -385,25 +390,21 @@ veer_status veer_link_command_frame(const veer_link_def *def, uint64_t seq, int 
     if (veer_link_def_check(def, NULL) != VEER_OK || seq == 0 || kind < VEER_LINK_COMMAND_HEARTBEAT ||
         kind > VEER_LINK_COMMAND_STOP)
         return VEER_ERR_VALUE;
-    veer_v1_LinkFrame f;
-    memset(&f, 0, sizeof f);
-    f.cart = def->cart;
-    f.which_body = veer_v1_LinkFrame_command_tag;
-    f.body.command.seq = seq;
-    f.body.command.kind = (veer_v1_CommandKind)kind;
-    f.body.command.plan_id = plan_id;
-    return veer__link_encode(def, &f, 1, out, capacity, size);
+    veer_v1_Command c;
+    memset(&c, 0, sizeof c);
+    c.seq = seq;
+    c.kind = (veer_v1_CommandKind)kind;
+    c.plan_id = plan_id;
+    return veer__link_encode(def, veer_v1_LinkFrame_command_tag, veer_v1_Command_fields, &c, 1, out, capacity, size);
 }
 
 /* ---- cart side: gap reports and player reports -------------------------- */
 
 veer_status veer__link_gaps_frame(const veer_link_def *def, const veer_link_gaps *g, uint8_t *out, size_t capacity,
                                   size_t *size) {
-    veer_v1_LinkFrame f;
-    memset(&f, 0, sizeof f);
-    f.cart = def->cart;
-    f.which_body = veer_v1_LinkFrame_gaps_tag;
-    veer_v1_GapReport *m = &f.body.gaps;
+    veer_v1_GapReport gaps;
+    memset(&gaps, 0, sizeof gaps);
+    veer_v1_GapReport *m = &gaps;
     m->plan_id = g->plan_id;
     m->count = g->count;
     m->base = g->base;
@@ -418,7 +419,7 @@ veer_status veer__link_gaps_frame(const veer_link_def *def, const veer_link_gaps
         memcpy(m->missing.bytes, g->missing, bytes);
         if (bytes > 0 && g->bits < bytes * 8u) /* clear bits past the described ones */
             m->missing.bytes[bytes - 1] &= (uint8_t)((1u << (g->bits - (bytes - 1) * 8u)) - 1u);
-        veer_status st = veer__link_encode(def, &f, 1, out, capacity, size);
+        veer_status st = veer__link_encode(def, veer_v1_LinkFrame_gaps_tag, veer_v1_GapReport_fields, m, 1, out, capacity, size);
         if (st != VEER_ERR_CAPACITY || bytes == 0) return st;
         size_t over = *size - (size_t)def->frame_size;
         bytes = over >= bytes ? 0 : bytes - (over > 0 ? over : 1);
@@ -445,12 +446,9 @@ void veer__link_report_to_pb(const veer_link_report *r, veer_v1_PlayerReport *m)
 
 veer_status veer__link_report_frame(const veer_link_def *def, const veer_link_report *r, uint8_t *out,
                                     size_t capacity, size_t *size) {
-    veer_v1_LinkFrame f;
-    memset(&f, 0, sizeof f);
-    f.cart = def->cart;
-    f.which_body = veer_v1_LinkFrame_report_tag;
-    veer__link_report_to_pb(r, &f.body.report);
-    return veer__link_encode(def, &f, 1, out, capacity, size);
+    veer_v1_PlayerReport m;
+    veer__link_report_to_pb(r, &m);
+    return veer__link_encode(def, veer_v1_LinkFrame_report_tag, veer_v1_PlayerReport_fields, &m, 1, out, capacity, size);
 }
 
 /* ---- ground side: parsing ----------------------------------------------- */

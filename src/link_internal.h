@@ -55,10 +55,13 @@ int veer__link_chunking(uint32_t cart, uint64_t plan_id, uint32_t sealed, int fr
 uint32_t veer__link_chunk_bytes(uint32_t count, uint32_t sealed);
 uint32_t veer__link_chunk_length(uint32_t index, uint32_t count, uint32_t sealed);
 
-/* Encodes frame (tagged when tagged) with its CRC-32 into out. Buffer rules
- * as wire.h. VEER_ERR_CAPACITY when the frame is larger than frame_size. */
-veer_status veer__link_encode(const veer_link_def *def, veer_v1_LinkFrame *frame, int tagged, uint8_t *out,
-                              size_t capacity, size_t *size);
+/* Encodes the LinkFrame {def->cart, body} whose body is the submessage msg
+ * of kind (veer_v1_LinkFrame_*_tag, fields its descriptor), as nanopb
+ * encodes that LinkFrame, tagged when tagged, with its CRC-32 into out (no
+ * generated LinkFrame on the stack). Buffer rules as wire.h.
+ * VEER_ERR_CAPACITY when the frame is larger than frame_size. */
+veer_status veer__link_encode(const veer_link_def *def, pb_size_t kind, const pb_msgdesc_t *fields, const void *msg,
+                              int tagged, uint8_t *out, size_t capacity, size_t *size);
 /* A decoded frame: veer_v1_LinkFrame's fields, but a chunk's data and the
  * tag stay where they lie in the frame's bytes (no frame-sized copy on a
  * cart's stack: 312 bytes instead of the generated struct's 1080). */
