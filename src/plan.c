@@ -111,8 +111,8 @@ void veer__plan_lay_grid(veer_plan *plan, int n, char *grid, int binding) {
     plan->s = (double *)grid;
     plan->x = plan->s + n;
     plan->t = plan->x + n;
-    plan->steer = plan->t + n;
-    plan->binding = binding ? (veer_limit_id *)(plan->steer + (size_t)n * (size_t)M) : NULL;
+    plan->steer = plan->steered ? plan->t + n : NULL;
+    plan->binding = binding ? (veer_limit_id *)(plan->t + n + (plan->steered ? (size_t)n * (size_t)M : 0)) : NULL;
 }
 
 void veer_plan_destroy(veer_plan *plan) {
@@ -942,7 +942,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
     }
     int n = go.n;
     int M = plan->module_count;
-    size_t grid_bytes = VEER__GRID_BYTES(n, M, 1);
+    size_t grid_bytes = VEER__GRID_BYTES(n, plan->steered ? M : 0, 1);
     char *g = veer__alloc(grid_bytes);
     if (!g) {
         veer__free(grid, grid_room);
@@ -994,7 +994,7 @@ static veer_status build(veer_plan *plan, veer_diag *diag) {
         st = veer__solve_segment(plan, j, &plan->rows, j == 0 ? plan->x_start : 0.0, &ws, diag);
         if (st == VEER_OK) st = veer__steer_segment(plan, j, from, ws.xi, diag);
         if (st == VEER_OK) st = veer__shape_segment(plan, j, &plan->limits, j == 0 ? plan->x_start : 0.0, &ws, diag);
-        for (int i = 0; i < M && st == VEER_OK; i++) from[i] = plan->steer[(size_t)plan->segs[j].k1 * (size_t)M + (size_t)i];
+        for (int i = 0; i < M && st == VEER_OK; i++) from[i] = veer__plan_steer(plan, plan->segs[j].k1, i);
     }
     if (st == VEER_OK && plan->x_start > 0.0) plan->segs[0].resteer_time = 0.0; /* already pointing along the motion */
     if (st == VEER_OK) st = veer__meet_arrivals(plan, &ws, diag);

@@ -188,6 +188,7 @@ static int plan_cap(const veer_player_def *def, veer__plan_cap *cap) {
     cap->waypoints = def->max_waypoints ? (int)def->max_waypoints : VEER_MAX_WAYPOINTS;
     cap->legs = def->max_legs ? (int)def->max_legs : VEER_MAX_LEGS;
     cap->route = 0; /* the player never encodes its plan: the route is rebuilt in scratch and dropped */
+    cap->steered = def->drive.kind == VEER_DRIVE_STEERED; /* fixed wheels: no steer angles at the knots */
     return 1;
 }
 

@@ -203,8 +203,7 @@ void veer__sample_state(const veer_plan *plan, int seg, double s, double sdot, d
     f = f < 0.0 ? 0.0 : f > 1.0 ? 1.0 : f;
     double ref[VEER_MAX_MODULES] = {0};
     for (int i = 0; i < M; i++) {
-        double a = plan->steer[(size_t)k * (size_t)M + (size_t)i];
-        double b = plan->steer[(size_t)(k + 1) * (size_t)M + (size_t)i];
+        double a = veer__plan_steer(plan, k, i), b = veer__plan_steer(plan, k + 1, i);
         ref[i] = a + (b - a) * f;
     }
     veer_point_kin pk;

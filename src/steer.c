@@ -78,9 +78,7 @@ veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, cons
         sg->steer_from[i] = from[i];
         sg->steer_to[i] = from[i];
         if (!plan->steered) { /* fixed wheels report the direction they push (drive.h) */
-            double fixed = plan->drive.kind == VEER_DRIVE_OMNI ? plan->drive.modules[i].drive_angle : 0.0;
-            sg->steer_from[i] = sg->steer_to[i] = fixed;
-            for (int k = sg->k0; k <= sg->k1; k++) plan->steer[(size_t)k * (size_t)M + (size_t)i] = fixed;
+            sg->steer_from[i] = sg->steer_to[i] = veer__fixed_steer(&plan->drive, i); /* no grid array */
             continue;
         }
         if (plan->drive.modules[i].out) { /* out of service: the angle stays */

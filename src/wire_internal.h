@@ -143,7 +143,8 @@ veer_status veer__wire_plan_hash(veer_v1_Plan *m, uint8_t digest[32]);
  * veer_player_def; the library's maxima for veer_plan_load_pb). */
 typedef struct {
     int knots, waypoints, legs, modules;
-    int route; /* 1: the plan keeps its route (veer_plan_encode_pb needs it); 0: a cart's player, which does not */
+    int route;   /* 1: the plan keeps its route (veer_plan_encode_pb needs it); 0: a cart's player, which does not */
+    int steered; /* 1: room for steer angles at the knots; 0: a cart with fixed wheels takes no steered plan */
 } veer__plan_cap;
 /* The library's maxima. */
 veer__plan_cap veer__plan_cap_max(void);

@@ -108,13 +108,13 @@ veer_status veer__wire_plan_hash(veer_v1_Plan *m, uint8_t digest[32]) {
 /* ---- rebuilding a plan from knots --------------------------------------- */
 
 veer__plan_cap veer__plan_cap_max(void) {
-    veer__plan_cap c = {VEER_WIRE_MAX_KNOTS, VEER_MAX_WAYPOINTS, VEER_MAX_LEGS, VEER_MAX_MODULES, 1};
+    veer__plan_cap c = {VEER_WIRE_MAX_KNOTS, VEER_MAX_WAYPOINTS, VEER_MAX_LEGS, VEER_MAX_MODULES, 1, 1};
     return c;
 }
 
 size_t veer__wire_plan_bytes_for(const veer__plan_cap *cap) {
     veer__plan_caps c = veer__plan_caps_for(cap->waypoints, cap->legs, cap->modules);
-    size_t grid = VEER__GRID_BYTES(cap->knots, cap->modules, 0);
+    size_t grid = VEER__GRID_BYTES(cap->knots, cap->steered ? cap->modules : 0, 0);
     if (!cap->route && grid < sizeof(veer__plan_msgs)) grid = sizeof(veer__plan_msgs); /* the route's scratch */
     c.route = cap->route;
     return veer__plan_block_bytes(c) + VEER__ALIGN16(grid);
@@ -278,7 +278,7 @@ static veer_status timeline(veer_plan *plan, double from[VEER_MAX_MODULES], veer
         veer_status st = veer__steer_segment(plan, j, from, NULL, diag); /* twists from the path: no array */
         if (st != VEER_OK) return st;
         if (j == 0 && plan->x_start > 0.0) sg->resteer_time = 0.0; /* already pointing along the motion */
-        for (int i = 0; i < M; i++) from[i] = plan->steer[(size_t)sg->k1 * (size_t)M + (size_t)i];
+        for (int i = 0; i < M; i++) from[i] = veer__plan_steer(plan, sg->k1, i);
     }
     veer__plan_timeline(plan);
     return VEER_OK;
@@ -392,6 +392,10 @@ static veer_status load(const veer__plan_in *m, void *work, size_t work_size, co
     int n = 0;
     if (st == VEER_OK && plan->module_count > cap->modules)
         st = over_cap("modules", plan->module_count, cap->modules, diag);
+    if (st == VEER_OK && plan->steered && !cap->steered)
+        st = veer__fail_plain(diag, VEER_ERR_CAPACITY,
+                              "plan: for steered modules, this cart has fixed wheels (its workspace keeps no steer "
+                              "angles)");
     if (st == VEER_OK) st = parse_profile(&m->profile, &plan->path, NULL, NULL, NULL, &n, diag);
     if (st == VEER_OK && n > cap->knots) st = over_cap("knots", n, cap->knots, diag);
     if (st != VEER_OK) return st;
@@ -469,7 +473,7 @@ veer_status veer__wire_plan_decode_heap(veer_v1_Plan *msg, veer_plan **out, veer
         veer__free(plan, bytes);
         return st;
     }
-    size_t gb = VEER__GRID_BYTES(n, plan->module_count, 0);
+    size_t gb = VEER__GRID_BYTES(n, plan->steered ? plan->module_count : 0, 0);
     char *grid = veer__alloc(gb);
     if (!grid) {
         veer__free(plan, bytes);

@@ -996,3 +996,64 @@ Test(player, capacity_sizes_memory_and_refuses_larger_plans) {
     free(mf);
     free(ms);
 }
+
+/* A cart with fixed wheels (mecanum) keeps no steer angles at the knots: its
+ * memory, sized for its plan, is smaller than a steered cart's by 8 bytes per
+ * knot and module; it plays its plan as the decoded plan samples it (bit for
+ * bit), and a plan for steered modules is refused (CAPACITY) leaving the armed
+ * plan as it was. */
+Test(player, fixed_wheels_keep_no_steer_angles) {
+    veer_player_def mec = cart_def();
+    mec.drive = veer_default_drive_def(VEER_DRIVE_MECANUM);
+    veer_route r = corner_route();
+    blob b = plan_bytes(&mec.drive, &mec.limits, &r, NULL);
+    veer_plan_needs need;
+    veer_diag diag;
+    cr_assert_eq(veer_plan_needs_pb(b.bytes, b.size, &need, &diag), VEER_OK, "%s", diag.message);
+    cr_assert_eq(need.modules, 4u);
+    mec.link.max_plan_bytes = need.plan_bytes;
+    mec.max_knots = need.knots;
+    mec.max_waypoints = need.waypoints;
+    mec.max_legs = need.legs;
+    veer_player_def steered = mec;
+    steered.drive = veer_default_drive_def(VEER_DRIVE_STEERED);
+    size_t n_mec = veer_player_size_for(&mec), n_steered = veer_player_size_for(&steered);
+    cr_log_info("player memory for a %u-knot plan on 4 modules: steered %zu B, mecanum %zu B", need.knots, n_steered,
+                n_mec);
+    cr_assert(n_mec > 0 && n_mec + (size_t)need.knots * 4 * sizeof(double) - 16 <= n_steered, "%zu, %zu", n_mec,
+              n_steered);
+    void *mem;
+    veer_player *p = new_player(&mec, &mem);
+    double now = 3.0;
+    cr_assert(send_plan(p, &mec.link, 1, b, now).armed);
+    veer_plan *ref = NULL;
+    cr_assert_eq(veer_plan_decode_pb(b.bytes, b.size, &ref, &diag), VEER_OK, "%s", diag.message);
+    cr_assert(command(p, &mec.link, VEER_LINK_COMMAND_START, 1, now).started);
+    double dt = 1.0 / RATE, T = veer_plan_duration(ref);
+    for (int k = 0; k * dt < T; k++) {
+        double t = now + k * dt;
+        if (k % 10 == 0) command(p, &mec.link, VEER_LINK_COMMAND_HEARTBEAT, 0, t);
+        veer_sample a, c;
+        cr_assert_eq(veer_player_step(p, t, &a), VEER_OK);
+        cr_assert_eq(veer_plan_sample(ref, t - now, &c), VEER_OK); /* the player's plan time */
+        cr_assert_eq(a.module_count, 4);
+        for (int i = 0; i < 4; i++) {
+            cr_assert(a.modules[i].wheel_rate == c.modules[i].wheel_rate && a.modules[i].steer == c.modules[i].steer,
+                      "t %.3f module %d", k * dt, i);
+            cr_assert_eq(a.modules[i].steer, 0.0, "mecanum wheels report steer 0 (drive.h)");
+        }
+    }
+    veer_plan_destroy(ref);
+    /* a plan for steered modules: refused, the stopped cart's last plan kept */
+    veer_route rl = line_route(2.0);
+    blob sb = plan_bytes(&steered.drive, &steered.limits, &rl, NULL);
+    const veer_plan *last = veer_player_plan(p);
+    double length = veer_plan_length(last);
+    veer_player_event ev = send_plan(p, &mec.link, 2, sb, now + T + 1.0);
+    cr_assert_eq(ev.reason, VEER_LINK_CAPACITY, "%s", veer_link_reason_name(ev.reason));
+    cr_assert_eq(veer_player_plan(p), last);
+    cr_assert_eq(veer_plan_length(last), length);
+    free(sb.bytes);
+    free(b.bytes);
+    free(mem);
+}

@@ -232,7 +232,7 @@ Test(wire_cart, plans_are_bit_identical_to_the_decoded_message_path, .timeout = 
                 veer_plan_needs need;
                 veer_diag d;
                 cr_assert_eq(veer_plan_needs_pb(b.bytes, b.size, &need, &d), VEER_OK);
-                veer__plan_cap cap = {(int)need.knots, (int)need.waypoints, (int)need.legs, (int)need.modules, 0};
+                veer__plan_cap cap = {(int)need.knots, (int)need.waypoints, (int)need.legs, (int)need.modules, 0, 1};
                 cr_assert_eq(both(b.bytes, b.size, &cap, w1, w2, &fs, what), VEER_OK);
                 cap.knots--;
                 cr_assert_eq(both(b.bytes, b.size, &cap, w1, w2, &fs, what), VEER_ERR_CAPACITY);
@@ -510,7 +510,7 @@ Test(wire_cart, garbage_never_loads_and_never_crashes, .timeout = 300) {
 }
 
 Test(wire_cart, workspace_needs_no_decoded_message) {
-    veer__plan_cap small = {200, 4, 2, 4, 0}, max = veer__plan_cap_max();
+    veer__plan_cap small = {200, 4, 2, 4, 0, 1}, max = veer__plan_cap_max();
     size_t before = VEER__ALIGN16(veer__wire_plan_bytes_for(&small)) + VEER__ALIGN16(sizeof(veer_v1_Plan));
     size_t now = veer__wire_work_bytes_for(&small);
     cr_log_info("wire_cart: workspace for 200 knots, 4 waypoints, 2 legs, 4 modules: %zu B (with a decoded "
@@ -519,7 +519,7 @@ Test(wire_cart, workspace_needs_no_decoded_message) {
     cr_assert_eq(now, veer__wire_plan_bytes_for(&small), "the submessages fit where the grid goes");
     cr_assert_lt(veer__wire_work_bytes_for(&max) + sizeof(veer_v1_Plan), (size_t)VEER__WIRE_WORK_BYTES + 16);
     /* a cap so small that the submessages need more than the grid */
-    veer__plan_cap tiny = {8, 2, 1, 1, 0};
+    veer__plan_cap tiny = {8, 2, 1, 1, 0, 1};
     cr_assert_eq(veer__wire_work_bytes_for(&tiny),
                  veer__wire_plan_grid_at(&tiny) + VEER__ALIGN16(sizeof(veer__plan_msgs)));
     /* the demo in exactly its workspace; one byte less is refused before anything is read */
@@ -527,7 +527,7 @@ Test(wire_cart, workspace_needs_no_decoded_message) {
     veer_plan_needs need;
     veer_diag d;
     cr_assert_eq(veer_plan_needs_pb(b.bytes, b.size, &need, &d), VEER_OK);
-    veer__plan_cap cap = {(int)need.knots, (int)need.waypoints, (int)need.legs, (int)need.modules, 0};
+    veer__plan_cap cap = {(int)need.knots, (int)need.waypoints, (int)need.legs, (int)need.modules, 0, 1};
     size_t ws = veer__wire_work_bytes_for(&cap);
     void *w = aligned_alloc(16, (ws + 15) / 16 * 16);
     const veer_plan *p;
