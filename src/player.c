@@ -24,7 +24,11 @@
 
 struct veer_player {
     size_t memory_size;
-    veer_player_def def;
+    /* Of the definition, what is read after veer_player_init (the link's
+     * definition is the receiver's copy, rx->def; the drive and limits live
+     * on as their fingerprints). */
+    char cart_name[sizeof(((veer_player_def *)0)->cart_name)];
+    double link_timeout;
     uint8_t drive_hash[32], limits_hash[32]; /* canonical fingerprints of the cart's drive and limits */
     int module_count;
     int state, stop_reason, last_rejection;
@@ -257,7 +261,8 @@ veer_status veer_player_init(void *memory, size_t size, const veer_player_def *d
     memset(p, 0, sizeof *p);
     p->memory_size = size;
     p->cap = cap;
-    p->def = *def;
+    memcpy(p->cart_name, def->cart_name, sizeof p->cart_name);
+    p->link_timeout = def->link_timeout;
     memcpy(p->drive_hash, dh, 32);
     memcpy(p->limits_hash, lh, 32);
     p->module_count = veer_drive_module_count(&def->drive);
@@ -375,7 +380,7 @@ static void end_of_plan(veer_player *p) {
  * link_timeout stops, braking from the moment the timeout ran out. */
 static int watchdog(veer_player *p, double now) {
     if (p->state != VEER_PLAYER_RUNNING) return 0;
-    double deadline = p->last_auth + p->def.link_timeout;
+    double deadline = p->last_auth + p->link_timeout;
     if (!(now > deadline)) return 0;
     if (deadline - p->t_start >= p->plan->duration) { /* the plan had ended first */
         end_of_plan(p);
@@ -415,7 +420,7 @@ static int plan_names_other_cart(const uint8_t *bytes, size_t size, const char *
  * arming verdict). A function of its own, kept out of load's frame: its
  * locals are not on the stack while a plan is decoded. */
 static VEER__NOINLINE int check_plan(const veer_player *p, const uint8_t *bytes, size_t size, const veer_plan *plan) {
-    if (plan_names_other_cart(bytes, size, p->def.cart_name)) return VEER_LINK_CART_NAME;
+    if (plan_names_other_cart(bytes, size, p->cart_name)) return VEER_LINK_CART_NAME;
     uint8_t dh[32], lh[32];
     if (config_hashes(&plan->drive, &plan->limits, dh, lh) != VEER_OK) return VEER_LINK_DECODE;
     if (memcmp(dh, p->drive_hash, 32) != 0) return VEER_LINK_DRIVE;
@@ -457,7 +462,7 @@ static int arm(veer_player *p, double now) {
     if (veer_link_receiver_plan(p->rx, &bytes, &size, &id) != VEER_OK) return VEER_LINK_STATE;
     if (p->state == VEER_PLAYER_RUNNING || p->state == VEER_PLAYER_STOPPING) return VEER_LINK_BUSY;
     if (p->state == VEER_PLAYER_FAULT) return VEER_LINK_STATE;
-    if (size > veer__link_max_plan(&p->def.link)) return VEER_LINK_CAPACITY; /* the receiver takes no larger plan */
+    if (size > veer__link_max_plan(&p->rx->def)) return VEER_LINK_CAPACITY; /* the receiver takes no larger plan */
     const veer_plan *plan;
     int verdict = load(p, bytes, size, &plan);
     if (verdict != VEER_LINK_NONE) {
@@ -599,7 +604,7 @@ veer_status veer_player_report_frame(veer_player *p, uint8_t *out, size_t capaci
     veer_status st = veer_player_status(p, &r);
     if (st != VEER_OK) return st;
     r.report_seq = p->report_seq + 1;
-    st = veer__link_report_frame(&p->def.link, &r, out, capacity, size);
+    st = veer__link_report_frame(&p->rx->def, &r, out, capacity, size);
     if (st == VEER_OK) p->report_seq++;
     return st;
 }
