@@ -79,7 +79,8 @@ TABLE_LOOKUP(veer_stop_reason_str, VEER_STOP_REASON_TABLE, TEXT_CASE_, "unknown 
  * veer__wire_drive_to_pb and veer__wire_limits_to_pb make. The Limits
  * message (1.2 KB as a nanopb struct) is never built: its fields are written
  * into the hash one module at a time, as nanopb's encoder writes them, so a
- * cart's stack holds one ModuleLimits (144 bytes) instead. */
+ * cart's stack holds one ModuleLimits (144 bytes) instead; the DriveDef
+ * (336 bytes) likewise, one ModuleDef at a time. */
 typedef bool (*put_config)(pb_ostream_t *o, const veer_drive_def *drive, const veer_limits *limits);
 
 static veer_status hash_config(put_config put, const veer_drive_def *drive, const veer_limits *limits,
@@ -98,11 +99,48 @@ static veer_status hash_config(put_config put, const veer_drive_def *drive, cons
     return VEER_OK;
 }
 
+static bool put_f64(pb_ostream_t *o, uint32_t tag, double v) {
+    return pb_encode_tag(o, PB_WT_64BIT, tag) && pb_encode_fixed64(o, &v);
+}
+
+/* The DriveDef message of veer__wire_drive_to_pb (wire_request.c), field by
+ * field in number order as nanopb's encoder writes it (kind left out when
+ * 0, modules_out packed), one ModuleDef at a time. */
 static bool put_drive(pb_ostream_t *o, const veer_drive_def *drive, const veer_limits *limits) {
     (void)limits;
-    veer_v1_DriveDef m;
-    veer__wire_drive_to_pb(drive, &m);
-    return pb_encode(o, veer_v1_DriveDef_fields, &m);
+    uint32_t kind = (uint32_t)drive->kind;
+    if (kind != 0 && !(pb_encode_tag(o, PB_WT_VARINT, veer_v1_DriveDef_kind_tag) && pb_encode_varint(o, kind)))
+        return false;
+    if (drive->kind == VEER_DRIVE_STEERED || drive->kind == VEER_DRIVE_OMNI) {
+        int n = drive->module_count < 0 ? 0 : drive->module_count > VEER_MAX_MODULES ? VEER_MAX_MODULES : drive->module_count;
+        for (int i = 0; i < n; i++) {
+            veer_v1_ModuleDef m;
+            memset(&m, 0, sizeof m);
+            m.x = drive->modules[i].x;
+            m.y = drive->modules[i].y;
+            m.drive_angle = drive->kind == VEER_DRIVE_OMNI ? drive->modules[i].drive_angle : 0.0;
+            if (!pb_encode_tag(o, PB_WT_STRING, veer_v1_DriveDef_modules_tag) ||
+                !pb_encode_submessage(o, veer_v1_ModuleDef_fields, &m))
+                return false;
+        }
+    }
+    if (!put_f64(o, veer_v1_DriveDef_wheel_radius_tag, drive->wheel_radius)) return false;
+    if (drive->kind == VEER_DRIVE_MECANUM &&
+        !(put_f64(o, veer_v1_DriveDef_half_wheelbase_tag, drive->half_wheelbase) &&
+          put_f64(o, veer_v1_DriveDef_half_track_tag, drive->half_track) &&
+          put_f64(o, veer_v1_DriveDef_roller_angle_tag, drive->roller_angle)))
+        return false;
+    if (drive->kind == VEER_DRIVE_DIFFERENTIAL &&
+        !(put_f64(o, veer_v1_DriveDef_track_width_tag, drive->track_width) &&
+          put_f64(o, veer_v1_DriveDef_skid_factor_tag, drive->skid_factor)))
+        return false;
+    /* modules_out: the indices (each one byte as a varint) packed in one field */
+    uint8_t out[VEER_MAX_MODULES];
+    size_t count = 0;
+    for (int i = 0; i < VEER_MAX_MODULES && i < veer_drive_module_count(drive); i++)
+        if (drive->modules[i].out) out[count++] = (uint8_t)i;
+    return count == 0 || (pb_encode_tag(o, PB_WT_STRING, veer_v1_DriveDef_modules_out_tag) &&
+                          pb_encode_string(o, out, count));
 }
 
 /* Module i's limits as they count: only the limits that apply to the drive
@@ -119,10 +157,10 @@ static veer_module_limits counted_module(const veer_drive_def *drive, const veer
 }
 
 /* The Limits message of veer__wire_limits_to_pb (wire_request.c) over the
- * counted module limits, field by field in number order: no module entry
- * when every module is unlimited, one when all are alike, else one per
- * module; a limit present when finite. */
-static bool put_limits(pb_ostream_t *o, const veer_drive_def *drive, const veer_limits *limits) {
+ * counted module limits, field by field in number order: module_entries
+ * ModuleLimits entries (none when every module is unlimited, one when all
+ * are alike, else one per module), a limit present when finite. */
+static VEER__NOINLINE int module_entries(const veer_drive_def *drive, const veer_limits *limits) {
     int n = veer_drive_module_count(drive);
     if (n < 0) n = 0;
     if (n > VEER_MAX_MODULES) n = VEER_MAX_MODULES;
@@ -133,7 +171,11 @@ static bool put_limits(pb_ostream_t *o, const veer_drive_def *drive, const veer_
         if (memcmp(&m, &first, sizeof m) != 0) all_same = 0;
         if (memcmp(&m, &unset, sizeof m) != 0) any = 1;
     }
-    int entries = any ? (all_same ? 1 : n) : 0;
+    return any ? (all_same ? 1 : n) : 0;
+}
+
+static bool put_limits(pb_ostream_t *o, const veer_drive_def *drive, const veer_limits *limits) {
+    int entries = module_entries(drive, limits);
     for (int i = 0; i < entries; i++) {
         veer_module_limits l = counted_module(drive, limits, i);
         veer_v1_ModuleLimits m;
