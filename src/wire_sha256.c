@@ -15,18 +15,23 @@ static const uint32_t K[64] = {
 
 static uint32_t ror(uint32_t x, int n) { return (x >> n) | (x << (32 - n)); }
 
+/* One block. The message schedule W_t (FIPS 180-4, 6.2.2 step 1) is kept
+ * as its last 16 words, each computed when round t needs it: W_t depends
+ * on W_{t-2}, W_{t-7}, W_{t-15} and W_{t-16} only, so the words are the
+ * same as with all 64 stored (a cart's stack holds 64 bytes, not 256). */
 static void block(uint32_t h[8], const uint8_t *p) {
-    uint32_t w[64];
+    uint32_t w[16];
     for (int i = 0; i < 16; i++)
         w[i] = (uint32_t)p[4 * i] << 24 | (uint32_t)p[4 * i + 1] << 16 | (uint32_t)p[4 * i + 2] << 8 | p[4 * i + 3];
-    for (int i = 16; i < 64; i++) {
-        uint32_t s0 = ror(w[i - 15], 7) ^ ror(w[i - 15], 18) ^ (w[i - 15] >> 3);
-        uint32_t s1 = ror(w[i - 2], 17) ^ ror(w[i - 2], 19) ^ (w[i - 2] >> 10);
-        w[i] = w[i - 16] + s0 + w[i - 7] + s1;
-    }
     uint32_t a = h[0], b = h[1], c = h[2], d = h[3], e = h[4], f = h[5], g = h[6], k = h[7];
     for (int i = 0; i < 64; i++) {
-        uint32_t t1 = k + (ror(e, 6) ^ ror(e, 11) ^ ror(e, 25)) + ((e & f) ^ (~e & g)) + K[i] + w[i];
+        if (i >= 16) {
+            uint32_t w15 = w[(i - 15) & 15], w2 = w[(i - 2) & 15];
+            uint32_t s0 = ror(w15, 7) ^ ror(w15, 18) ^ (w15 >> 3);
+            uint32_t s1 = ror(w2, 17) ^ ror(w2, 19) ^ (w2 >> 10);
+            w[i & 15] += s0 + w[(i - 7) & 15] + s1; /* w[i & 15] held W_{t-16} */
+        }
+        uint32_t t1 = k + (ror(e, 6) ^ ror(e, 11) ^ ror(e, 25)) + ((e & f) ^ (~e & g)) + K[i] + w[i & 15];
         uint32_t t2 = (ror(a, 2) ^ ror(a, 13) ^ ror(a, 22)) + ((a & b) ^ (a & c) ^ (b & c));
         k = g;
         g = f;
