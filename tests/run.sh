@@ -367,10 +367,52 @@ valgrind_suite() {
     echo "$rc" >"$logs/$name.rc"
 }
 
+# The failed tests in a Criterion output file (run with --jobs 1, so a test's
+# lines come together), one per line: "suite::test<TAB>first message", where
+# the message is the first failed assertion's place and text ("t.c:6: a is
+# 1"), or where a crash was caught. Tests that ran into their Criterion
+# timeout are left out (valgrind_timeouts lists them). Criterion 2.4 prints
+#   [----] t.c:6: Assertion Failed / [----]   (blank) / [----]   text / ...
+#   [----] t.c:8: Unexpected signal caught below this line!
+#   [FAIL] suite::test: (0.00s) | CRASH! | Timed out. (1.01s)
+criterion_failures() {
+    awk '
+        /^\[----\] / {
+            line = substr($0, 8)
+            if (first == "" && !want && line ~ /: Assertion Failed$/) {
+                where = line; sub(/: Assertion Failed$/, "", where); want = 1
+            } else if (first == "" && !want && line ~ /: Unexpected signal caught below this line!$/) {
+                first = line; sub(/: Unexpected signal caught below this line!$/, "", first)
+                first = "CRASH: a signal after " first " (the last assertion reached, or the start of the test)"
+            } else if (want && line !~ /^[[:space:]]*$/) {
+                sub(/^[[:space:]]+/, "", line); first = where ": " line; want = 0
+            }
+            next
+        }
+        /^\[FAIL\] / {
+            rest = substr($0, 8); name = rest; sub(/: .*/, "", name)
+            verdict = rest; sub(/^[^ ]*: /, "", verdict)
+            if (verdict !~ /^Timed out/) {
+                if (first == "") first = (want ? where ": (no message)" : verdict)
+                print name "\t" first
+            }
+            first = ""; want = 0
+        }' "$1"
+}
+
+# The tests in a Criterion output file that ran into their timeout.
+valgrind_timeouts() { sed -n 's/^\[FAIL\] \(.*\): Timed out.*/\1/p' "$1"; }
+
+# Every suite under memcheck, with test_property, test_wire's random bytes and
+# test_timing cut down (VALGRIND_* above). It fails on memory errors, on a
+# suite that did not finish, and on any failed test (assertion or crash),
+# except a test that ran into its Criterion timeout under memcheck's slowdown:
+# that one is listed, not failed (memcheck saw everything it ran until then).
 stage_valgrind() {
     [[ ${VEER_HARDEN:-1} == 0 ]] && skip "VEER_HARDEN=0"
     command -v valgrind >/dev/null 2>&1 || { note "valgrind is not installed"; return 1; }
-    local logs=$BUILD_DIR/valgrind exe name bad line running=0 memfail=() unfinished=() slow=()
+    local logs=$BUILD_DIR/valgrind exe name bad line running=0 memfail=() unfinished=() slow=() testfail=()
+    local tname msg listed failing timeouts
     rm -rf "$logs" && mkdir -p "$logs"
     local suites=("$BUILD_DIR"/tests/test_*)
     [[ -x ${suites[0]} ]] || { note "no test executables in $BUILD_DIR/tests"; return 1; }
@@ -395,16 +437,29 @@ stage_valgrind() {
             unfinished+=("$name")
             log "valgrind: $name did not finish (see $logs/$name.out)"
         fi
-        # A test that runs into its Criterion timeout under memcheck's slowdown
-        # is reported, not failed: memcheck saw everything it ran until then.
         while read -r line; do
             slow+=("$line")
-        done < <(sed -n 's/^\[FAIL\] \(.*\): Timed out.*/\1/p' "$logs/$name.out")
+        done < <(valgrind_timeouts "$logs/$name.out")
+        listed=0
+        while IFS=$'\t' read -r tname msg; do
+            testfail+=("$tname")
+            listed=$((listed + 1))
+            log "valgrind: $name: FAILED under memcheck: $tname: $msg"
+        done < <(criterion_failures "$logs/$name.out")
+        # Criterion's closing line counts failures (timeouts and crashes
+        # included); one that printed no [FAIL] line still fails the stage.
+        failing=$(sed -n 's/.*Synthesis: Tested: .*| Failing: \([0-9]*\).*/\1/p' "$logs/$name.out" | tail -n 1)
+        timeouts=$(valgrind_timeouts "$logs/$name.out" | grep -c . || true)
+        if ((${failing:-0} - timeouts > listed)); then
+            testfail+=("$name:$((failing - timeouts - listed))-unnamed")
+            log "valgrind: $name: Criterion counts $failing failing tests, $timeouts timed out, $listed named above"
+        fi
         log "valgrind: $name: $(grep -h 'Synthesis' "$logs/$name.out" | sed 's/.*Synthesis: //')"
     done
     ((${#slow[@]} == 0)) || log "valgrind: timed out under memcheck (not counted as failures): ${slow[*]}"
-    note "${#suites[@]} suites under memcheck (test_property: $VALGRIND_PROPERTY_CASES cases): ${#memfail[@]} with memory errors${memfail:+ (${memfail[*]})}, ${#unfinished[@]} unfinished${unfinished:+ (${unfinished[*]})}, ${#slow[@]} tests timed out${slow:+ (${slow[*]})}"
-    ((${#memfail[@]} == 0 && ${#unfinished[@]} == 0))
+    ((${#testfail[@]} == 0)) || log "valgrind: failed under memcheck (output in $logs/<suite>.out): ${testfail[*]}"
+    note "${#suites[@]} suites under memcheck (cut down: $VALGRIND_PROPERTY_CASES property cases, $VALGRIND_GARBAGE_ROUNDS garbage rounds, $VALGRIND_TIMING_CASES timing cases): ${#memfail[@]} with memory errors${memfail:+ (${memfail[*]})}, ${#unfinished[@]} unfinished${unfinished:+ (${unfinished[*]})}, ${#testfail[@]} tests failed${testfail:+ (${testfail[*]})}, ${#slow[@]} timed out (not counted)${slow:+ (${slow[*]})}"
+    ((${#memfail[@]} == 0 && ${#unfinished[@]} == 0 && ${#testfail[@]} == 0))
 }
 
 stage_fuzz() {
@@ -528,4 +583,8 @@ main() {
     summary
 }
 
-main "$@"
+# Sourced (for one stage on an existing build, DEVELOPERS.md), only the
+# functions and settings are defined.
+if [[ ${BASH_SOURCE[0]} == "$0" ]]; then
+    main "$@"
+fi
