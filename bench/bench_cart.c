@@ -519,21 +519,30 @@ static unsigned char *stack_base;
 
 /* The player's configuration and the frames are made before (ground side;
  * a cart keeps its configuration in static storage): on this thread's stack
- * only the cart's calls run, not the scenario's set-up. */
+ * only the cart's calls run, not the scenario's set-up. The buffers the cart
+ * exchanges with veer (the frames in and out, the setpoints) are the
+ * caller's, static here as a radio driver's and a controller's would be, so
+ * the figure is veer's own stack. */
 static veer_player_def stack_def;
 static sealed_plan stack_plan;
+static uint8_t stack_start[VEER_LINK_FRAME_MAX], stack_out[VEER_LINK_FRAME_MAX];
+static size_t stack_start_size;
+static veer_sample stack_sample;
 
 static void *cart_loop(void *arg) {
     (void)arg;
-    uint64_t seq = 0;
-    veer_player *pl = start_player(&stack_def, &stack_plan, 1, 0.0, &seq);
-    veer_sample s;
-    uint8_t f[VEER_LINK_FRAME_MAX];
+    veer_player *pl = NULL;
+    if (veer_player_init(player_mem, sizeof player_mem, &stack_def, &pl, NULL)) DIE("player");
+    veer_player_event ev;
+    for (int k = 0; k < stack_plan.count; k++)
+        if (veer_player_frame(pl, stack_plan.frames[k], stack_plan.sizes[k], 0.0, &ev)) DIE("frame");
+    if (veer_player_frame(pl, stack_start, stack_start_size, 0.0, &ev) || !ev.started) DIE("START refused");
     size_t n;
     for (int k = 1; k < 50 * 30; k++) {
-        if (veer_player_step(pl, k * 0.02, &s)) DIE("step");
+        if (veer_player_step(pl, k * 0.02, &stack_sample)) DIE("step");
         if (k % 25 == 0) {
-            if (veer_player_report_frame(pl, f, sizeof f, &n) || veer_player_gap_frame(pl, f, sizeof f, &n))
+            if (veer_player_report_frame(pl, stack_out, sizeof stack_out, &n) ||
+                veer_player_gap_frame(pl, stack_out, sizeof stack_out, &n))
                 DIE("report");
         }
     }
@@ -567,6 +576,9 @@ static int cmd_stack(void) {
     veer_plan_needs demo_need, patrol_need;
     stack_def = fitted(any, p, &demo_need); /* the cart loop runs on a cart sized for the demo */
     seal(&stack_def, p, 1, &stack_plan);
+    if (veer_link_command_frame(&stack_def.link, 1, VEER_LINK_COMMAND_START, 1, stack_start, sizeof stack_start,
+                                &stack_start_size))
+        DIE("start");
     /* Arming: the frame that completes the plan (tag, decode, checks), best of 50. */
     double arm = 1.0;
     for (int rep = 0; rep < 50; rep++) {
