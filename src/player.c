@@ -179,20 +179,7 @@ static bool put_limits(pb_ostream_t *o, const veer_drive_def *drive, const veer_
     for (int i = 0; i < entries; i++) {
         veer_module_limits l = counted_module(drive, limits, i);
         veer_v1_ModuleLimits m;
-        memset(&m, 0, sizeof m);
-#define MODULE_LIMIT_(f)                   \
-    if ((m.has_##f = isfinite(l.f)) != 0) \
-        m.f = l.f;
-        MODULE_LIMIT_(wheel_rate)
-        MODULE_LIMIT_(wheel_accel)
-        MODULE_LIMIT_(steer_rate)
-        MODULE_LIMIT_(steer_min)
-        MODULE_LIMIT_(steer_max)
-        MODULE_LIMIT_(traction_mu)
-        MODULE_LIMIT_(motor_stall_accel)
-        MODULE_LIMIT_(motor_free_rate)
-        MODULE_LIMIT_(wheel_jerk)
-#undef MODULE_LIMIT_
+        veer__wire_module_limits_to_pb(&l, &m);
         if (!pb_encode_tag(o, PB_WT_STRING, veer_v1_Limits_modules_tag) ||
             !pb_encode_submessage(o, veer_v1_ModuleLimits_fields, &m))
             return false;

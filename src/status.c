@@ -1,4 +1,5 @@
-/* Status and limit names, diagnostics, version. One table each (status.h).
+/* Status and limit names, diagnostics, version. One table each (status.h);
+ * struct sizes for bindings are in abi.c.
  * SPDX-License-Identifier: MIT */
 #include <stdio.h>
 #include <string.h>
@@ -135,24 +136,6 @@ double veer__wrap(double a) {
     if (a <= -VEER_PI) a += 2.0 * VEER_PI;
     if (a > VEER_PI) a -= 2.0 * VEER_PI;
     return a;
-}
-
-size_t veer_sizeof(const char *type_name) {
-    static const struct {
-        const char *name;
-        size_t size;
-    } sizes[] = {
-        {"veer_diag", sizeof(veer_diag)},         {"veer_drive_def", sizeof(veer_drive_def)},
-        {"veer_limits", sizeof(veer_limits)},     {"veer_plan_options", sizeof(veer_plan_options)},
-        {"veer_route", sizeof(veer_route)},       {"veer_leg", sizeof(veer_leg)},
-        {"veer_waypoint", sizeof(veer_waypoint)}, {"veer_sample", sizeof(veer_sample)},
-        {"veer_leg_summary", sizeof(veer_leg_summary)}, {"veer_stop_info", sizeof(veer_stop_info)},
-        {"veer_plan_needs", sizeof(veer_plan_needs)},
-    };
-    if (!type_name) return 0;
-    for (size_t i = 0; i < sizeof sizes / sizeof sizes[0]; i++)
-        if (strcmp(sizes[i].name, type_name) == 0) return sizes[i].size;
-    return 0;
 }
 
 unsigned veer_version(void) { return (unsigned)VEER_VERSION_HEX; }

@@ -102,6 +102,24 @@ static veer_status wrong_type(const reader *r, const pb_istream_t *s, size_t aft
     return malformed(r, "wrong wire type", at(r, s, after));
 }
 
+/* The next field's tag: 1, or 0 at the end of s (*st VEER_OK) or on a bad
+ * tag (*st says why), as nanopb's decoder reads tags. */
+static int next_field(const reader *r, pb_istream_t *s, size_t after, pb_wire_type_t *wt, uint32_t *tag,
+                      veer_status *st) {
+    bool eof;
+    *st = VEER_OK;
+    if (!s->bytes_left) return 0;
+    if (!pb_decode_tag(s, wt, tag, &eof)) {
+        if (!eof) *st = pb_failed(r, s, after);
+        return 0;
+    }
+    if (*tag == 0) {
+        *st = malformed(r, "zero tag", at(r, s, after));
+        return 0;
+    }
+    return 1;
+}
+
 /* One jerk_window field: packed (a slice of doubles) or one unpacked value. */
 static veer_status get_jerk(const reader *r, pb_istream_t *s, size_t after, pb_wire_type_t wt, veer__profile_in *pr) {
     const uint8_t *p;
@@ -137,12 +155,9 @@ static veer_status get_jerk(const reader *r, pb_istream_t *s, size_t after, pb_w
  * Profile field gave, as the decoder does). */
 static veer_status get_profile(const reader *r, pb_istream_t *s, size_t after, veer__profile_in *pr) {
     veer_status st = VEER_OK;
-    while (s->bytes_left && st == VEER_OK) {
-        pb_wire_type_t wt;
-        uint32_t tag;
-        bool eof;
-        if (!pb_decode_tag(s, &wt, &tag, &eof)) return eof ? VEER_OK : pb_failed(r, s, after);
-        if (tag == 0) return malformed(r, "zero tag", at(r, s, after));
+    pb_wire_type_t wt;
+    uint32_t tag;
+    while (st == VEER_OK && next_field(r, s, after, &wt, &tag, &st)) {
         int f64 = tag == veer_v1_Profile_s_step_tag || tag == veer_v1_Profile_sdot_step_tag ||
                   tag == veer_v1_Profile_sddot_step_tag || tag == veer_v1_Profile_sddot_split_tag ||
                   tag == veer_v1_Profile_start_sdot_tag;
@@ -186,22 +201,17 @@ static veer_status get_msg(const reader *r, pb_istream_t *s, const pb_msgdesc_t 
 #define ROUTE_LEGS_MAX (sizeof(((veer_v1_Route *)0)->legs) / sizeof(veer_v1_Leg))
 #define ROUTE_WAYPOINTS_MAX (sizeof(((veer_v1_Route *)0)->waypoints) / sizeof(veer_v1_Waypoint))
 
-/* One element of a repeated field, decoded (as a fresh message) to check it
- * and then dropped; *count counts it against cap, as nanopb's array would. */
-static veer_status get_element(const reader *r, pb_istream_t *s, size_t after, const pb_msgdesc_t *fields,
-                               void *scratch, pb_size_t *count, size_t cap) {
-    pb_istream_t sub;
-    if (!pb_make_string_substream(s, &sub)) return pb_failed(r, s, after);
-    if ((size_t)*count >= cap) {
-        pb_close_string_substream(s, &sub);
+/* One element of a repeated field, decoded (as a fresh message: proto3's
+ * defaults are zero) to check it and then dropped; *count counts it against
+ * cap, checked first as nanopb checks its array. */
+static veer_status get_element(const reader *r, pb_istream_t *s, const pb_msgdesc_t *fields, void *scratch,
+                               size_t size, pb_size_t *count, size_t cap) {
+    if ((size_t)*count >= cap)
         return veer__fail_plain(r->diag, VEER_ERR_CAPACITY, "plan: a list or string is longer than its capacity (%s)",
                                 "array overflow");
-    }
-    size_t sub_after = s->bytes_left;
-    if (!pb_decode(&sub, fields, scratch)) return pb_failed(r, &sub, sub_after);
-    if (!pb_close_string_substream(s, &sub)) return pb_failed(r, s, after);
+    memset(scratch, 0, size);
     (*count)++;
-    return VEER_OK;
+    return get_msg(r, s, fields, scratch);
 }
 
 /* One Route field's contents (s: its substream), continuing what an earlier
@@ -213,12 +223,9 @@ static veer_status get_route(const reader *r, pb_istream_t *s, size_t after, vee
     ro->piece[ro->pieces] = (const uint8_t *)s->state; /* a buffer stream reads from here on */
     ro->piece_size[ro->pieces++] = s->bytes_left;
     veer_status st = VEER_OK;
-    while (s->bytes_left && st == VEER_OK) {
-        pb_wire_type_t wt;
-        uint32_t tag;
-        bool eof;
-        if (!pb_decode_tag(s, &wt, &tag, &eof)) return eof ? VEER_OK : pb_failed(r, s, after);
-        if (tag == 0) return malformed(r, "zero tag", at(r, s, after));
+    pb_wire_type_t wt;
+    uint32_t tag;
+    while (st == VEER_OK && next_field(r, s, after, &wt, &tag, &st)) {
         int f64 = tag == veer_v1_Route_start_x_tag || tag == veer_v1_Route_start_y_tag ||
                   tag == veer_v1_Route_start_yaw_tag;
         if ((f64 && wt != PB_WT_64BIT) ||
@@ -249,12 +256,12 @@ static veer_status get_route(const reader *r, pb_istream_t *s, size_t after, vee
         }
         case veer_v1_Route_legs_tag: {
             veer_v1_Leg leg;
-            st = get_element(r, s, after, veer_v1_Leg_fields, &leg, &ro->legs_count, ROUTE_LEGS_MAX);
+            st = get_element(r, s, veer_v1_Leg_fields, &leg, sizeof leg, &ro->legs_count, ROUTE_LEGS_MAX);
             break;
         }
         case veer_v1_Route_waypoints_tag: {
             veer_v1_Waypoint w;
-            st = get_element(r, s, after, veer_v1_Waypoint_fields, &w, &ro->waypoints_count, ROUTE_WAYPOINTS_MAX);
+            st = get_element(r, s, veer_v1_Waypoint_fields, &w, sizeof w, &ro->waypoints_count, ROUTE_WAYPOINTS_MAX);
             break;
         }
         case veer_v1_Route_start_twist_tag:
@@ -277,14 +284,8 @@ void veer__route_cursor_init(veer__route_cursor *c, const veer__route_in *route,
 
 int veer__route_next(veer__route_cursor *c, void *out) {
     const veer__route_in *ro = c->route;
+    if (ro->msg_next) return ro->msg_next(c, out); /* a decoded message (veer__route_in_from_msg) */
     int legs = c->tag == veer_v1_Route_legs_tag;
-    if (ro->msg) { /* a decoded message */
-        if (c->index >= (legs ? (int)ro->msg->legs_count : (int)ro->msg->waypoints_count)) return 0;
-        if (legs) memcpy(out, &ro->msg->legs[c->index], sizeof(veer_v1_Leg));
-        else memcpy(out, &ro->msg->waypoints[c->index], sizeof(veer_v1_Waypoint));
-        c->index++;
-        return 1;
-    }
     for (;;) { /* the bytes, which veer__wire_plan_read has read once */
         if (c->piece < 0 || c->s.bytes_left == 0) {
             if (++c->piece >= ro->pieces) return 0;
@@ -410,15 +411,9 @@ veer_status veer__wire_plan_read(const uint8_t *bytes, size_t size, veer__plan_m
     size_t cart_id_size = 0;
     int has[veer_v1_Plan_content_hash_tag + 1] = {0};
     veer_status st = VEER_OK;
-    while (s.bytes_left && st == VEER_OK) {
-        pb_wire_type_t wt;
-        uint32_t tag;
-        bool eof;
-        if (!pb_decode_tag(&s, &wt, &tag, &eof)) {
-            if (eof) break;
-            return pb_failed(&r, &s, 0);
-        }
-        if (tag == 0) return malformed(&r, "zero tag", at(&r, &s, 0));
+    pb_wire_type_t wt;
+    uint32_t tag;
+    while (st == VEER_OK && next_field(&r, &s, 0, &wt, &tag, &st)) {
         pb_wire_type_t want = tag <= veer_v1_Plan_path_model_tag                                   ? PB_WT_VARINT
                               : tag == veer_v1_Plan_duration_tag || tag == veer_v1_Plan_length_tag ? PB_WT_64BIT
                                                                                                    : PB_WT_STRING;

@@ -48,6 +48,7 @@ veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, v
  * waypoints). A Route field given again continues the first (nanopb's
  * merge): up to VEER__ROUTE_PIECES of them. */
 #define VEER__ROUTE_PIECES 4
+struct veer__route_cursor;
 typedef struct {
     double start_x, start_y, start_yaw;
     pb_size_t start_steer_count;
@@ -55,7 +56,8 @@ typedef struct {
     bool has_start_twist;
     veer_v1_Twist start_twist;
     pb_size_t legs_count, waypoints_count;
-    const veer_v1_Route *msg; /* the elements' source, or: */
+    const veer_v1_Route *msg; /* the elements' source, read by msg_next (NULL: the bytes below) */
+    int (*msg_next)(struct veer__route_cursor *c, void *out);
     int pieces;
     const uint8_t *piece[VEER__ROUTE_PIECES]; /* the Route fields' contents, in the order they came */
     size_t piece_size[VEER__ROUTE_PIECES];
@@ -65,7 +67,7 @@ typedef struct {
 void veer__route_in_from_msg(const veer_v1_Route *m, veer__route_in *out);
 
 /* Walks a route's legs (veer_v1_Route_legs_tag) or waypoints in order. */
-typedef struct {
+typedef struct veer__route_cursor {
     const veer__route_in *route;
     uint32_t tag;
     int index, piece;
@@ -78,6 +80,8 @@ int veer__route_next(veer__route_cursor *c, void *out);
 
 /* veer__wire_route_from_pb from either source. */
 veer_status veer__wire_route_from_in(const veer__route_in *m, int module_count, veer_route *out, veer_diag *diag);
+/* One module's limits as veer__wire_limits_to_pb writes them (a limit present when finite). */
+void veer__wire_module_limits_to_pb(const veer_module_limits *l, veer_v1_ModuleLimits *m);
 veer_status veer__wire_options_from_pb(const veer_v1_PlanOptions *m, veer_plan_options *out, veer_diag *diag);
 /* What the planner takes from a PlanRequest (wire_api.c). */
 typedef struct {

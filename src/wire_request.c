@@ -267,7 +267,7 @@ veer_status veer__wire_limits_from_pb(const veer_v1_Limits *m, int module_count,
     return VEER_OK;
 }
 
-static void module_limits_to_pb(const veer_module_limits *l, veer_v1_ModuleLimits *m) {
+void veer__wire_module_limits_to_pb(const veer_module_limits *l, veer_v1_ModuleLimits *m) {
     memset(m, 0, sizeof *m);
     limits_out(l, module_limit_fields, COUNT_(module_limit_fields), m);
 }
@@ -287,7 +287,7 @@ void veer__wire_limits_to_pb(const veer_limits *l, int module_count, veer_v1_Lim
     }
     if (any) {
         m->modules_count = (pb_size_t)(all_same ? 1 : n);
-        for (int i = 0; i < (int)m->modules_count; i++) module_limits_to_pb(&l->modules[i], &m->modules[i]);
+        for (int i = 0; i < (int)m->modules_count; i++) veer__wire_module_limits_to_pb(&l->modules[i], &m->modules[i]);
     }
     limits_out(l, body_limit_fields, COUNT_(body_limit_fields), m);
 }
@@ -307,6 +307,18 @@ static veer_status route_value(double v, const char *fmt, int index, veer_diag *
     return bad(diag, VEER_ERR_VALUE, "%s is not finite (%g)", name, v);
 }
 
+/* The next element of a decoded Route (a cart's firmware, which reads the
+ * bytes, does not link this). */
+static int msg_next(veer__route_cursor *c, void *out) {
+    const veer_v1_Route *m = c->route->msg;
+    int legs = c->tag == veer_v1_Route_legs_tag;
+    if (c->index >= (legs ? (int)m->legs_count : (int)m->waypoints_count)) return 0;
+    if (legs) memcpy(out, &m->legs[c->index], sizeof(veer_v1_Leg));
+    else memcpy(out, &m->waypoints[c->index], sizeof(veer_v1_Waypoint));
+    c->index++;
+    return 1;
+}
+
 void veer__route_in_from_msg(const veer_v1_Route *m, veer__route_in *out) {
     memset(out, 0, sizeof *out);
     out->start_x = m->start_x, out->start_y = m->start_y, out->start_yaw = m->start_yaw;
@@ -316,6 +328,7 @@ void veer__route_in_from_msg(const veer_v1_Route *m, veer__route_in *out) {
     out->start_twist = m->start_twist;
     out->legs_count = m->legs_count, out->waypoints_count = m->waypoints_count;
     out->msg = m;
+    out->msg_next = msg_next;
 }
 
 veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, veer_route *out, veer_diag *diag) {
