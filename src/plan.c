@@ -68,8 +68,11 @@ veer_status veer__plan_options_check(const veer_plan_options *o, veer_diag *diag
 veer__plan_caps veer__plan_caps_for(int waypoints, int legs, int modules) {
     veer__plan_caps c;
     veer__path_caps(waypoints, legs, &c.pieces, &c.segments);
-    c.legs = legs < 0 ? 0 : legs;
-    c.modules = modules < 0 ? 0 : modules;
+    /* clamped as veer__path_caps clamps: a count past the maximum is refused
+     * later (veer__path_build, the drive check), after a block of the
+     * maximum's size, never one sized by a scrambled count */
+    c.legs = legs < 0 ? 0 : legs > VEER_MAX_LEGS ? VEER_MAX_LEGS : legs;
+    c.modules = modules < 0 ? 0 : modules > VEER_MAX_MODULES ? VEER_MAX_MODULES : modules;
     c.route = 1;
     return c;
 }

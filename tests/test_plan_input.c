@@ -169,6 +169,49 @@ Test(input, capacities) {
     cr_assert_eq(memcmp(&before, &r, sizeof r), 0);
 }
 
+/* The largest single allocation since the last reset (veer_set_allocator). */
+static size_t g_largest;
+static void *largest_alloc(size_t size, void *ctx) {
+    (void)ctx;
+    if (size > g_largest) g_largest = size;
+    return malloc(size);
+}
+static void largest_free(void *ptr, size_t size, void *ctx) {
+    (void)size, (void)ctx;
+    free(ptr);
+}
+
+/* A count that a scrambled struct or a careless script leaves in a route
+ * (leg_count or waypoint_count of INT_MAX, negative, just past the maximum)
+ * is refused with a named status, and the plan's block is never sized by
+ * it: an earlier planner sized its leg summaries by leg_count before
+ * checking it and asked the allocator for 14 GB (found by memcheck on
+ * random_structs_never_crash). A plan for the maxima (64 waypoints, 32 legs,
+ * 8 modules) is a block of about 101 KiB (measured, this build); 1 MiB
+ * leaves the planner's grid arrays for the small request room. */
+Test(input, scrambled_counts_never_size_memory) {
+    static const int counts[] = {INT32_MAX, INT32_MIN, -1, VEER_MAX_LEGS + 1, VEER_MAX_WAYPOINTS + 1, 1 << 20};
+    cr_assert_eq(veer_set_allocator(largest_alloc, largest_free, NULL), VEER_OK);
+    for (size_t i = 0; i < sizeof counts / sizeof counts[0]; i++)
+        for (int which = 0; which < 3; which++) {
+            request q = good();
+            if (which == 0) q.r.leg_count = counts[i];
+            else if (which == 1) q.r.waypoint_count = counts[i];
+            else q.r.legs[0].waypoint_count = counts[i];
+            g_largest = 0;
+            veer_plan *p = (veer_plan *)(uintptr_t)1;
+            veer_diag diag;
+            veer_status st = veer_plan_create(&q.d, &q.l, &q.r, NULL, &p, &diag);
+            cr_assert(st == VEER_ERR_VALUE || st == VEER_ERR_CAPACITY, "count %d in field %d: got %s", counts[i], which,
+                      veer_status_name(st));
+            cr_assert_null(p);
+            cr_assert(diag.message[0] != '\0');
+            cr_assert(g_largest <= (size_t)1 << 20, "count %d in field %d: an allocation of %zu B", counts[i], which,
+                      g_largest);
+        }
+    cr_assert_eq(veer_set_allocator(NULL, NULL, NULL), VEER_OK);
+}
+
 Test(input, options) {
     request q = good();
     veer_plan_options o = veer_default_plan_options();
