@@ -123,10 +123,11 @@ typedef struct {
 /* The most pieces and rest-to-rest segments the path of a route with W
  * waypoints and L legs can have. A travel leg gives each waypoint at most a
  * line and a rounded corner (or, at a stop, the spin a turning tangent
- * heading adds); spin and pivot legs are one piece each. Every stop of a
- * travel leg ends a segment, and a tangent-heading stop that turns adds a
- * spin segment after it; spin and pivot legs are one each. */
-#define VEER_PATH_PIECES_FOR(W, L) (2 * (W) + 2 * (L) + 4)
+ * heading adds; its last waypoint only the line); spin and pivot legs are one
+ * piece each: 2 W + L covers both (2 W - T + (L - T) for T travel legs).
+ * Every stop of a travel leg ends a segment, and a tangent-heading stop that
+ * turns adds a spin segment after it; spin and pivot legs are one each. */
+#define VEER_PATH_PIECES_FOR(W, L) (2 * (W) + (L))
 #define VEER_PATH_SEGMENTS_FOR(W, L) (2 * (W) + (L))
 #define VEER_PATH_MAX_PIECES VEER_PATH_PIECES_FOR(VEER_MAX_WAYPOINTS, VEER_MAX_LEGS)
 #define VEER_PATH_MAX_SEGMENTS VEER_PATH_SEGMENTS_FOR(VEER_MAX_WAYPOINTS, VEER_MAX_LEGS)

@@ -1061,7 +1061,7 @@ Test(path_bad_input, attached_storage_is_the_limit) {
 Test(path_bad_input, caps_for_a_route) {
     int pc, sc;
     veer__path_caps(3, 2, &pc, &sc);
-    cr_expect(pc == 2 * 3 + 2 * 2 + 4 && sc == 2 * 3 + 2, "%d %d", pc, sc);
+    cr_expect(pc == 2 * 3 + 2 && sc == 2 * 3 + 2, "%d %d", pc, sc);
     veer__path_caps(-1, 1000, &pc, &sc);
     cr_expect(pc == VEER_PATH_PIECES_FOR(0, VEER_MAX_LEGS) && sc == VEER_PATH_SEGMENTS_FOR(0, VEER_MAX_LEGS));
     veer__path_caps(VEER_MAX_WAYPOINTS + 5, VEER_MAX_LEGS, &pc, &sc);
@@ -1163,4 +1163,40 @@ Test(path_random, never_crash_never_nan) {
     cr_log_info("random routes: %d built, %d refused", ok, refused);
     cr_assert_gt(ok, 100);
     cr_assert_gt(refused, 100);
+}
+
+/* The room a route's path needs (VEER_PATH_PIECES_FOR, internal.h) holds for
+ * the routes that come nearest it: a tangent leg of 64 waypoints with a
+ * rounded corner at each (a line and a corner per waypoint, the last only its
+ * line), the same with a stop at each where the tangent turns a quarter
+ * (a line and a spin each), and 31 pivot legs after a short travel leg. The
+ * first two reach the bound less one piece: a player or a plan sized by it
+ * is not sized for more than a route can use, nor less. */
+Test(path, worst_routes_fit_the_piece_bound) {
+    for (int stops = 0; stops < 2; stops++) {
+        static veer_route r;
+        r = veer_default_route(0, 0, VEER_PI / 4);
+        veer_leg l = travel(VEER_HEADING_TANGENT);
+        l.corner_tolerance = 0.05;
+        leg_add(&r, l);
+        for (int i = 0; i < VEER_MAX_WAYPOINTS; i++) wp_add(&r, 10.0 * (i + 1), 10.0 * ((i + 1) % 2), stops);
+        build_ok(&r);
+        cr_assert_eq(g_path.piece_count, 2 * VEER_MAX_WAYPOINTS - 1, "stops %d: %d pieces", stops, g_path.piece_count);
+        cr_assert_leq(g_path.piece_count, VEER_PATH_PIECES_FOR(r.waypoint_count, r.leg_count));
+        cr_assert_leq(g_path.segment_count, VEER_PATH_SEGMENTS_FOR(r.waypoint_count, r.leg_count));
+    }
+    static veer_route r;
+    r = veer_default_route(0, 0, 0);
+    leg_add(&r, travel(VEER_HEADING_TANGENT));
+    wp_add(&r, 5, 0, 0);
+    wp_add(&r, 5, 5, 1);
+    for (int i = 1; i < VEER_MAX_LEGS; i++) {
+        veer_leg p = veer_default_leg(VEER_LEG_PIVOT);
+        p.pivot_x = 6, p.pivot_y = 5, p.angle = 0.1;
+        leg_add(&r, p);
+    }
+    build_ok(&r);
+    cr_assert_eq(g_path.piece_count, 3 + VEER_MAX_LEGS - 1, "%d pieces", g_path.piece_count);
+    cr_assert_leq(g_path.piece_count, VEER_PATH_PIECES_FOR(r.waypoint_count, r.leg_count));
+    cr_assert_leq(g_path.segment_count, VEER_PATH_SEGMENTS_FOR(r.waypoint_count, r.leg_count));
 }
