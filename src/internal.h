@@ -7,6 +7,16 @@
 #include <stdarg.h>
 #include "veer/veer.h"
 
+/* Keeps a function out of its callers (GCC, Clang): one with a large frame
+ * out of its caller's frame, so that the caller's other calls do not stack
+ * on top of its locals; a small one called from several places out of each
+ * (code size on the cart). */
+#if defined(__GNUC__)
+#define VEER__NOINLINE __attribute__((noinline))
+#else
+#define VEER__NOINLINE
+#endif
+
 #define VEER_PI 3.14159265358979323846
 
 /* Allocation through the hook (alloc.c). veer__free takes the size asked for. */

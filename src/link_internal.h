@@ -11,14 +11,6 @@
 #include "veer/player.h"
 #include "veer/v1/link.pb.h"
 
-/* Keeps a function with a large frame out of its caller's frame, so that
- * the caller's other calls do not stack on top of its locals (GCC, Clang). */
-#if defined(__GNUC__)
-#define VEER__NOINLINE __attribute__((noinline))
-#else
-#define VEER__NOINLINE
-#endif
-
 /* Plan bytes a link's cart takes at most (max_plan_bytes, 0: the largest),
  * and whether a max_plan_bytes is in range. */
 static inline uint32_t veer__link_max_plan(const veer_link_def *def) {

@@ -114,8 +114,9 @@ void veer__plan_lay_grid(veer_plan *plan, int n, char *grid, int binding) {
     plan->s = (double *)grid;
     plan->x = plan->s + n;
     plan->t = plan->x + n;
-    plan->steer = plan->steered ? plan->t + n : NULL;
-    plan->binding = binding ? (veer_limit_id *)(plan->t + n + (plan->steered ? (size_t)n * (size_t)M : 0)) : NULL;
+    plan->steer = plan->steered ? (float *)(plan->t + n) : NULL;
+    plan->binding = binding ? (veer_limit_id *)((float *)(plan->t + n) + (plan->steered ? (size_t)n * (size_t)M : 0))
+                            : NULL;
 }
 
 void veer_plan_destroy(veer_plan *plan) {

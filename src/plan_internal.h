@@ -205,8 +205,8 @@ struct veer_plan {
     int steered;                  /* 1 for steered drives */
     int n;                        /* grid points over the whole plan */
     double *s, *x, *t;            /* [n] path position, sdot^2, time at the point */
-    double *steer;                /* [n * module_count] steer angle at each grid point (continuous); NULL for
-                                     fixed wheels (veer__plan_steer) */
+    float *steer;                 /* [n * module_count] steer angle at each grid point (continuous), as a float
+                                     inside the steer range (steer.c); NULL for fixed wheels (veer__plan_steer) */
     veer_limit_id *binding;       /* [n]; NULL on a decoded plan (the wire carries none: NONE at every point) */
     size_t grid_bytes;            /* bytes of the heap block behind s (VEER__GRID_BYTES), 0 in a workspace */
     int segment_count;
@@ -244,12 +244,12 @@ size_t veer__plan_block_bytes(veer__plan_caps caps);
  * 0. The rest of the struct is not touched. */
 void veer__plan_attach(veer_plan *plan, veer__plan_caps caps);
 
-/* The grid arrays behind plan->s, for n points: s, x, t, the steer angles
- * of M modules (0 for fixed wheels), and the binding limit of each point on
- * a planned plan. */
+/* The grid arrays behind plan->s, for n points: s, x, t (doubles), the
+ * steer angles of M modules (floats; 0 modules for fixed wheels), and the
+ * binding limit of each point on a planned plan. */
 #define VEER__GRID_BYTES(n, M, with_binding)                                                                     \
     ((size_t)(n) * (3 * sizeof(double) + ((with_binding) ? sizeof(veer_limit_id) : 0)) +                         \
-     (size_t)(n) * (size_t)(M) * sizeof(double))
+     (size_t)(n) * (size_t)(M) * sizeof(float))
 /* Lays the grid arrays out in grid (VEER__GRID_BYTES(n, steered ?
  * module_count : 0, binding) bytes, aligned for double) and sets plan->n. */
 void veer__plan_lay_grid(veer_plan *plan, int n, char *grid, int binding);
@@ -260,7 +260,7 @@ static inline double veer__fixed_steer(const veer_drive_def *drive, int i) {
 }
 /* Module i's steer angle at grid point k. */
 static inline double veer__plan_steer(const veer_plan *plan, int k, int i) {
-    return plan->steer ? plan->steer[(size_t)k * (size_t)plan->module_count + (size_t)i]
+    return plan->steer ? (double)plan->steer[(size_t)k * (size_t)plan->module_count + (size_t)i]
                        : veer__fixed_steer(&plan->drive, i);
 }
 

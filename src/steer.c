@@ -5,6 +5,8 @@
  * SPDX-License-Identifier: MIT */
 #include "plan_internal.h"
 
+#include <float.h>
+
 #define VEER_STILL 1e-9
 /* Direction changes larger than this between two grid points are tracked
  * through sub-steps, so a fast sweep near an ICR keeps its branch. */
@@ -49,10 +51,25 @@ static void track(const veer_plan *plan, int seg, int i, double sa, double sb, i
     *ref = next;
 }
 
-/* Steer angles of module i along segment j from start angle a0; 0 if they
- * leave [lo, hi] (then *where is the grid point). */
-static int follow(veer_plan *plan, int j, int i, const double *xi, double a0, double lo, double hi, int *where) {
+/* An angle as the grid keeps it: the nearest float; when that crosses
+ * steer_min or steer_max, the float nearest to a moved inside by 2^-23 |a|
+ * (more than that rounding's error, 2^-24 |a|). So an angle within the
+ * range stays within (a rest at steer_max = pi/2), one up to 1e-9 outside
+ * (follow's tolerance) moves no further out, and a float within the range
+ * comes back unchanged: a start angle kept so is the grid's angle exactly. */
+VEER__NOINLINE static float keep(double a, const veer_module_limits *ml) {
+    float f = (float)a;
+    double e = (double)FLT_EPSILON * fabs(a);
+    if ((double)f > ml->steer_max) f = (float)(a - e);
+    if ((double)f < ml->steer_min) f = (float)(a + e);
+    return f;
+}
+
+/* Steer angles of module i along segment j from start angle a0 (a kept
+ * float); 0 if they leave i's steer range (then *where is the grid point). */
+static int follow(veer_plan *plan, int j, int i, const double *xi, double a0, int *where) {
     const veer_plan_segment *sg = &plan->segs[j];
+    const veer_module_limits *ml = &plan->limits.modules[i];
     int M = plan->module_count;
     double ref = a0;
     for (int k = sg->k0; k <= sg->k1; k++) {
@@ -61,11 +78,11 @@ static int follow(veer_plan *plan, int j, int i, const double *xi, double a0, do
             int h = xi ? dir_of(&plan->drive, i, xi + 3 * (k - sg->k0), &d) : module_dir(plan, j, i, plan->s[k], &d);
             track(plan, j, i, plan->s[k - 1], plan->s[k], h, d, &ref, 0);
         }
-        if (ref < lo - 1e-9 || ref > hi + 1e-9) {
+        if (ref < ml->steer_min - 1e-9 || ref > ml->steer_max + 1e-9) {
             *where = k;
             return 0;
         }
-        plan->steer[(size_t)k * (size_t)M + (size_t)i] = ref;
+        plan->steer[(size_t)k * (size_t)M + (size_t)i] = keep(ref, ml);
     }
     return 1;
 }
@@ -81,42 +98,39 @@ veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, cons
             sg->steer_from[i] = sg->steer_to[i] = veer__fixed_steer(&plan->drive, i); /* no grid array */
             continue;
         }
-        if (plan->drive.modules[i].out) { /* out of service: the angle stays */
-            for (int k = sg->k0; k <= sg->k1; k++) plan->steer[(size_t)k * (size_t)M + (size_t)i] = from[i];
-            continue;
-        }
+        const veer_module_limits *ml = &plan->limits.modules[i];
         /* The direction the module must face when the motion starts: at the
-         * first grid point where it moves (it may stand at the very start). */
+         * first grid point where it moves (it may stand at the very start;
+         * one out of service never moves). */
         double dir = 0.0;
         int moves = 0;
-        for (int k = sg->k0; k <= sg->k1 && !moves; k++) {
+        for (int k = sg->k0; k <= sg->k1 && !moves && !plan->drive.modules[i].out; k++) {
             double s = plan->s[k];
             if (k == sg->k0) s += 1e-9 * (plan->s[sg->k1] - plan->s[sg->k0]);
             moves = module_dir(plan, j, i, s, &dir);
         }
-        if (!moves) {
-            for (int k = sg->k0; k <= sg->k1; k++) plan->steer[(size_t)k * (size_t)M + (size_t)i] = from[i];
+        if (!moves) { /* standing or out of service: the angle stays, as the grid keeps it */
+            float a = keep(from[i], ml);
+            sg->steer_to[i] = a;
+            for (int k = sg->k0; k <= sg->k1; k++) plan->steer[(size_t)k * (size_t)M + (size_t)i] = a;
             continue;
         }
-        const veer_module_limits *ml = &plan->limits.modules[i];
-        /* Candidates dir + k pi, nearest first: the shorter motion, then the
-         * reverse choice, and so on, until one stays within the steer range. */
-        double cand[9];
-        for (int c = 0; c < 9; c++) cand[c] = veer__steer_near(dir, from[i]) + (c - 4) * VEER_PI;
-        for (int a = 1; a < 9; a++) /* nearest to the current angle first */
-            for (int b = a; b > 0 && fabs(cand[b] - from[i]) < fabs(cand[b - 1] - from[i]); b--) {
-                double tmp = cand[b];
-                cand[b] = cand[b - 1];
-                cand[b - 1] = tmp;
-            }
+        /* Candidates dir + k pi, nearest to the current angle first: the
+         * shorter motion (k = 0), then the reverse choice on the near side,
+         * and so on alternately (d = from - base within [-pi/2, pi/2]: k pi
+         * is |k pi - d| away; a tie goes below first), until one stays
+         * within the steer range. */
+        double base = veer__steer_near(dir, from[i]);
+        int side = base < from[i] ? 1 : -1;
         int where = sg->k0, ok = 0;
-        double chosen = cand[0];
-        for (int c = 0; c < 9 && !ok; c++) {
-            if (cand[c] < ml->steer_min - 1e-9 || cand[c] > ml->steer_max + 1e-9) continue;
+        double chosen = 0.0;
+        for (int c = 0; c < 9 && !ok; c++) { /* follow refuses a candidate outside the range at k0 */
             int w = sg->k0;
-            if (follow(plan, j, i, xi, cand[c], ml->steer_min, ml->steer_max, &w)) {
+            /* kept as a float: steer_to is the grid's angle at k0 exactly */
+            double a = keep(base + (double)((c + 1) / 2 * (c & 1 ? side : -side)) * VEER_PI, ml);
+            if (follow(plan, j, i, xi, a, &w)) {
                 ok = 1;
-                chosen = cand[c];
+                chosen = a;
             } else if (w > where) {
                 where = w;
             }

@@ -2,8 +2,11 @@
  * rigid-body facts on spins and pivots, bad input. */
 #include <criterion/criterion.h>
 #include <math.h>
+#include <stdlib.h>
 #include <veer/veer.h>
+#include <veer/wire.h>
 #include "plan_check.h"
+#include "plan_internal.h"
 
 #define PI 3.14159265358979323846
 
@@ -168,7 +171,9 @@ Test(plan, resteer_phase_at_a_stop) {
     cr_assert(fabs(veer_plan_duration(p) - expect) <= 0.005 * expect, "%.5f vs %.5f", veer_plan_duration(p), expect);
     veer_leg_summary ls;
     cr_assert_eq(veer_plan_leg(p, 0, &ls), VEER_OK);
-    cr_assert_float_eq(ls.resteer_time, PI / 4.0, 1e-9);
+    /* the plan keeps its steer angles as floats (2^-24 relative: 1e-7 rad at
+     * pi/2), so the re-steer of pi/2 rad at 2 rad/s is pi/4 s within 1e-7 s */
+    cr_assert_float_eq(ls.resteer_time, PI / 4.0, 1e-7);
     cr_assert_float_eq(ls.dwell_time, 0.5, 1e-12);
     /* during the dwell nothing moves; during the re-steer the body stands */
     veer_sample s;
@@ -179,5 +184,79 @@ Test(plan, resteer_phase_at_a_stop) {
     cr_assert_float_eq(s.pose[0], 4.0, 1e-9);
     cr_assert_float_eq(fabs(s.modules[0].steer_rate), 2.0, 1e-9);
     assert_plan_within_limits(p, &d, &l, 0.01);
+    veer_plan_destroy(p);
+}
+
+/* Every sample's steer angle within the steer range (the 1e-9 rad the
+ * planner's own check allows), and the angles join at every rest: a
+ * segment's re-steer phase starts at the angle the last one stopped at and
+ * ends at the angle its motion starts at, exactly (the grid keeps floats). */
+static void check_steer_joins(const veer_plan *p, const veer_limits *l, int M) {
+    for (double t = 0.0; t <= veer_plan_duration(p); t += 0.001) {
+        veer_sample s;
+        cr_assert_eq(veer_plan_sample(p, t, &s), VEER_OK);
+        for (int i = 0; i < M; i++)
+            cr_assert(s.modules[i].steer <= l->modules[i].steer_max + 1e-9 &&
+                          s.modules[i].steer >= l->modules[i].steer_min - 1e-9,
+                      "module %d at t=%g: %.17g rad", i, t, s.modules[i].steer);
+    }
+    for (int j = 0; j < p->segment_count; j++)
+        for (int i = 0; i < M; i++) {
+            const veer_plan_segment *sg = &p->segs[j];
+            cr_assert_eq(sg->steer_to[i], veer__plan_steer(p, sg->k0, i), "segment %d module %d", j, i);
+            if (j > 0)
+                cr_assert_eq(sg->steer_from[i], veer__plan_steer(p, p->segs[j - 1].k1, i), "segment %d module %d", j,
+                             i);
+        }
+}
+
+/* A steered cart whose modules turn through [-pi/2, pi/2] only, driving
+ * sideways (heading 0, along +y: every module at atan2(1, 0) = pi/2, C99
+ * 7.12.4.4) to a stop, on sideways again and then along +x. The angle at the
+ * rests is the range's end, which the nearest float (1.5707963705062866)
+ * exceeds: the plan must keep it inside, and the re-steer phases must join
+ * the rests, on the planned plan and on the one decoded from its bytes. */
+Test(plan, sideways_rest_at_the_steer_range_end) {
+    veer_drive_def d = steered4();
+    veer_limits l = veer_default_limits();
+    l.body_speed = 1.0;
+    l.body_accel = 1.0;
+    for (int i = 0; i < 4; i++) {
+        l.modules[i].steer_min = -PI / 2.0;
+        l.modules[i].steer_max = PI / 2.0;
+        l.modules[i].steer_rate = 2.0;
+    }
+    veer_route r = veer_default_route(0.0, 0.0, 0.0);
+    veer_leg leg = veer_default_leg(VEER_LEG_TRAVEL);
+    cr_assert_eq(veer_route_add_leg(&r, &leg), VEER_OK);
+    veer_waypoint a = veer_default_waypoint(0.0, 2.0), b = veer_default_waypoint(0.0, 3.0),
+                  c = veer_default_waypoint(2.0, 3.0);
+    a.stop = b.stop = c.stop = 1;
+    cr_assert_eq(veer_route_add_waypoint(&r, &a), VEER_OK);
+    cr_assert_eq(veer_route_add_waypoint(&r, &b), VEER_OK);
+    cr_assert_eq(veer_route_add_waypoint(&r, &c), VEER_OK);
+    veer_plan *p = plan_ok(&d, &l, &r);
+    cr_assert_eq(p->segment_count, 3);
+    /* at the first rest every module faces the range's end, within a float's rounding */
+    veer_sample s;
+    cr_assert_eq(veer_plan_sample(p, p->segs[1].t_resteer, &s), VEER_OK);
+    for (int i = 0; i < 4; i++) {
+        cr_assert(s.modules[i].steer <= PI / 2.0 && s.modules[i].steer > PI / 2.0 - 1e-6, "module %d: %.17g", i,
+                  s.modules[i].steer);
+        cr_assert_eq(p->segs[1].steer_to[i], p->segs[1].steer_from[i]); /* on sideways: no re-steer */
+    }
+    cr_assert_eq(p->segs[1].resteer_time, 0.0);
+    cr_assert_float_eq(p->segs[2].resteer_time, (PI / 2.0) / 2.0, 1e-7); /* to 0 at 2 rad/s */
+    check_steer_joins(p, &l, 4);
+    assert_plan_within_limits(p, &d, &l, 0.01);
+    uint8_t *bytes = malloc(65536);
+    size_t size = 0;
+    veer_diag diag;
+    cr_assert_eq(veer_plan_encode_pb(p, bytes, 65536, &size, &diag), VEER_OK, "%s", diag.message);
+    veer_plan *q = NULL;
+    cr_assert_eq(veer_plan_decode_pb(bytes, size, &q, &diag), VEER_OK, "%s", diag.message);
+    check_steer_joins(q, &l, 4);
+    veer_plan_destroy(q);
+    free(bytes);
     veer_plan_destroy(p);
 }

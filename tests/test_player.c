@@ -998,8 +998,8 @@ Test(player, capacity_sizes_memory_and_refuses_larger_plans) {
 }
 
 /* A cart with fixed wheels (mecanum) keeps no steer angles at the knots: its
- * memory, sized for its plan, is smaller than a steered cart's by 8 bytes per
- * knot and module; it plays its plan as the decoded plan samples it (bit for
+ * memory, sized for its plan, is smaller than a steered cart's by 4 bytes (a
+ * float angle) per knot and module; it plays its plan as the decoded plan samples it (bit for
  * bit), and a plan for steered modules is refused (CAPACITY) leaving the armed
  * plan as it was. */
 Test(player, fixed_wheels_keep_no_steer_angles) {
@@ -1020,7 +1020,7 @@ Test(player, fixed_wheels_keep_no_steer_angles) {
     size_t n_mec = veer_player_size_for(&mec), n_steered = veer_player_size_for(&steered);
     cr_log_info("player memory for a %u-knot plan on 4 modules: steered %zu B, mecanum %zu B", need.knots, n_steered,
                 n_mec);
-    cr_assert(n_mec > 0 && n_mec + (size_t)need.knots * 4 * sizeof(double) - 16 <= n_steered, "%zu, %zu", n_mec,
+    cr_assert(n_mec > 0 && n_mec + (size_t)need.knots * 4 * sizeof(float) - 16 <= n_steered, "%zu, %zu", n_mec,
               n_steered);
     void *mem;
     veer_player *p = new_player(&mec, &mem);

@@ -95,7 +95,7 @@ typedef struct {
      * (veer_player_size_for) with link.max_plan_bytes and the drive's module
      * count: the profile's knots (Profile.knot_count, plan.proto), the
      * route's waypoints and legs; a drive with fixed wheels keeps no steer
-     * angles at the knots (8 bytes a knot and module less). 0: the library's
+     * angles at the knots (4 bytes, a float, a knot and module less). 0: the library's
      * maxima (VEER_WIRE_MAX_KNOTS, VEER_MAX_WAYPOINTS, VEER_MAX_LEGS). A
      * larger plan (or one for more modules than the drive has, or for
      * steered modules on fixed wheels) is refused with reason CAPACITY and
