@@ -183,13 +183,49 @@ veer_module_limits veer__default_module_limits(void);
  * is several KB: no copy on a cart's stack). */
 void veer__route_init(veer_route *r, double x, double y, double yaw);
 
+/* A route as the path builder reads it: a veer_route's head, and its legs
+ * and waypoints wherever they lie (a veer_route's own arrays, or a cart's
+ * scratch with room for only as many as it takes). Borrowed: the arrays
+ * must outlive the view's use. */
+typedef struct {
+    double start_x, start_y, start_yaw;
+    int has_start_steer;
+    double start_steer[VEER_MAX_MODULES];
+    int has_start_twist;
+    double start_twist[3];
+    int leg_count, waypoint_count;
+    const veer_leg *legs;           /* [leg_count] */
+    const veer_waypoint *waypoints; /* [waypoint_count] */
+} veer__route_view;
+
+/* The view of r (its arrays borrowed). */
+static inline veer__route_view veer__route_view_of(const veer_route *r) {
+    veer__route_view v;
+    v.start_x = r->start_x, v.start_y = r->start_y, v.start_yaw = r->start_yaw;
+    v.has_start_steer = r->has_start_steer;
+    for (int i = 0; i < VEER_MAX_MODULES; i++) v.start_steer[i] = r->start_steer[i];
+    v.has_start_twist = r->has_start_twist;
+    for (int k = 0; k < 3; k++) v.start_twist[k] = r->start_twist[k];
+    v.leg_count = r->leg_count, v.waypoint_count = r->waypoint_count;
+    v.legs = r->legs, v.waypoints = r->waypoints;
+    return v;
+}
+/* Writes v's head (everything but the legs and waypoints) into r. */
+void veer__route_set_head(veer_route *r, const veer__route_view *v);
+
 /* Builds the path of a route: checks it (NaN, coincident waypoints, counts,
  * corners too sharp to round, heading intents that cannot start from the
  * pose the leg starts with) and fills out, in the storage attached to it
  * (VEER_ERR_CAPACITY when the path needs more pieces or segments than it has
  * room for; VEER_ERR_NULL when none is attached). On failure out is an empty
  * path (storage kept) and diag names the leg and waypoint. */
-veer_status veer__path_build(const veer_route *route, veer_path *out, veer_diag *diag);
+veer_status veer__path_build(const veer__route_view *route, veer_path *out, veer_diag *diag);
+/* veer__path_build of a veer_route (route NULL: VEER_ERR_NULL). */
+static inline veer_status veer__path_build_route(const veer_route *route, veer_path *out, veer_diag *diag) {
+    if (!route) return veer__path_build(NULL, out, diag);
+    veer__route_view v = veer__route_view_of(route);
+    return veer__path_build(&v, out, diag);
+}
 
 /* q(s), q'(s), q''(s) within segment seg (s clamped to the segment), where
  * q = (x, y, yaw); yaw is continuous along the whole path (no wraps). */

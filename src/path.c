@@ -419,7 +419,7 @@ static veer_status check_waypoint(const veer_waypoint *wp, int li, int wi, veer_
     return VEER_OK;
 }
 
-static veer_status check_route(const veer_route *route, veer_diag *diag) {
+static veer_status check_route(const veer__route_view *route, veer_diag *diag) {
     const veer_limit_id none = veer__limit(VEER_LIMIT_NONE, -1);
     if (bad_number(route->start_x) || bad_number(route->start_y) || bad_number(route->start_yaw))
         return veer__fail(diag, VEER_ERR_VALUE, -1, -1, -1, -1.0, none,
@@ -470,7 +470,7 @@ static veer_status check_route(const veer_route *route, veer_diag *diag) {
 /* ---- building ----------------------------------------------------------- */
 
 typedef struct {
-    const veer_route *route;
+    const veer__route_view *route;
     veer_path *path;
     veer_diag *diag;
     double x, y, yaw; /* pose at the current end of the path; yaw unwrapped */
@@ -716,7 +716,7 @@ static void apply_fade(veer_path *path, double m) {
  * same arithmetic gives the same values each time. Point 0 is where the leg
  * starts, point i >= 1 waypoint w0 + i - 1; line i runs from point i to i + 1. */
 typedef struct {
-    const veer_route *route;
+    const veer__route_view *route;
     int w0, n;     /* first waypoint, waypoint count */
     double x0, y0; /* where the leg starts */
 } travel_leg;
@@ -773,7 +773,7 @@ static void travel_corner_of(const veer_leg *leg, const travel_line *in, const t
 }
 
 static veer_status build_travel(builder *b, int li, int w0) {
-    const veer_route *route = b->route;
+    const veer__route_view *route = b->route;
     const veer_leg *leg = &route->legs[li];
     const veer_limit_id none = veer__limit(VEER_LIMIT_NONE, -1);
     const int n = leg->waypoint_count;
@@ -931,7 +931,7 @@ static veer_status build_travel(builder *b, int li, int w0) {
     return VEER_OK;
 }
 
-static veer_status build(const veer_route *route, veer_path *out, veer_diag *diag) {
+static veer_status build(const veer__route_view *route, veer_path *out, veer_diag *diag) {
     veer_status st = check_route(route, diag);
     if (st) return st;
     builder b;
@@ -983,7 +983,7 @@ void veer__path_caps(int waypoints, int legs, int *piece_cap, int *segment_cap) 
     *segment_cap = VEER_PATH_SEGMENTS_FOR(w, l);
 }
 
-veer_status veer__path_build(const veer_route *route, veer_path *out, veer_diag *diag) {
+veer_status veer__path_build(const veer__route_view *route, veer_path *out, veer_diag *diag) {
     if (!route || !out)
         return veer__fail(diag, VEER_ERR_NULL, -1, -1, -1, -1.0, veer__limit(VEER_LIMIT_NONE, -1),
                           "veer__path_build: %s is NULL", !route ? "route" : "out");

@@ -1061,7 +1061,7 @@ veer_status veer__plan_create_with(const veer_drive_def *drive, const veer_limit
     plan->steered = drive->kind == VEER_DRIVE_STEERED;
     if (cap && cap->cap) plan->cap = *cap;
     veer__row_ctx_init(&plan->rows, &plan->drive, &plan->limits, &plan->options);
-    if ((st = veer__path_build(route, &plan->path, diag)) == VEER_OK) st = build(plan, diag);
+    if ((st = veer__path_build_route(route, &plan->path, diag)) == VEER_OK) st = build(plan, diag);
     if (st != VEER_OK) {
         veer_plan_destroy(plan);
         return st;

@@ -10,6 +10,15 @@ void veer__route_init(veer_route *r, double x, double y, double yaw) {
     r->start_yaw = yaw;
 }
 
+void veer__route_set_head(veer_route *r, const veer__route_view *v) {
+    r->start_x = v->start_x, r->start_y = v->start_y, r->start_yaw = v->start_yaw;
+    r->has_start_steer = v->has_start_steer;
+    memcpy(r->start_steer, v->start_steer, sizeof r->start_steer);
+    r->has_start_twist = v->has_start_twist;
+    memcpy(r->start_twist, v->start_twist, sizeof r->start_twist);
+    r->leg_count = v->leg_count, r->waypoint_count = v->waypoint_count;
+}
+
 veer_route veer_default_route(double x, double y, double yaw) {
     veer_route r;
     veer__route_init(&r, x, y, yaw);

@@ -141,9 +141,7 @@ size_t veer_plan_reply_size_bound(int grid_points) {
  * decoded where its grid arrays go (they are read before the grid is
  * written), so the larger of the two. */
 size_t veer__wire_work_bytes_for(const veer__plan_cap *cap) {
-    size_t plan = VEER__ALIGN16(veer__wire_plan_bytes_for(cap));
-    size_t msgs = veer__wire_plan_grid_at(cap) + VEER__ALIGN16(sizeof(veer__plan_msgs));
-    return plan > msgs ? plan : msgs;
+    return VEER__ALIGN16(veer__wire_plan_bytes_for(cap)); /* its grid area has room for veer__plan_msgs */
 }
 
 /* The workspace of veer_plan_load_pb: plan first, decoded message behind it. */

@@ -78,8 +78,21 @@ void veer__route_cursor_init(veer__route_cursor *c, const veer__route_in *route,
  * after the last (elements that decoded once decode again). */
 int veer__route_next(veer__route_cursor *c, void *out);
 
-/* veer__wire_route_from_pb from either source. */
-veer_status veer__wire_route_from_in(const veer__route_in *m, int module_count, veer_route *out, veer_diag *diag);
+/* Where veer__wire_route_from_in writes a route: the head into view (its
+ * legs and waypoints pointers set to the arrays), the legs and waypoints
+ * into the caller's arrays with room for leg_cap and waypoint_cap. */
+typedef struct {
+    veer__route_view view;
+    veer_leg *legs;           /* [leg_cap] */
+    veer_waypoint *waypoints; /* [waypoint_cap] */
+    int leg_cap, waypoint_cap;
+} veer__route_buf;
+
+/* veer__wire_route_from_pb from either source, into out: more legs or
+ * waypoints than out has room for give VEER_ERR_CAPACITY (diag says how
+ * many of each); on failure out's view and arrays are unspecified. */
+veer_status veer__wire_route_from_in(const veer__route_in *m, int module_count, veer__route_buf *out,
+                                     veer_diag *diag);
 /* One module's limits as veer__wire_limits_to_pb writes them (a limit present when finite). */
 void veer__wire_module_limits_to_pb(const veer_module_limits *l, veer_v1_ModuleLimits *m);
 veer_status veer__wire_options_from_pb(const veer_v1_PlanOptions *m, veer_plan_options *out, veer_diag *diag);
@@ -166,11 +179,17 @@ veer__plan_cap veer__plan_cap_max(void);
                           VEER_MAX_MODULES)
 #define VEER__WIRE_WORK_BYTES (VEER__WIRE_PLAN_WORK_BYTES + VEER__ALIGN16(sizeof(veer_v1_Plan)))
 
-/* Bytes of the plan part of a workspace for plans within cap
- * (VEER__WIRE_PLAN_BYTES of its path caps, knots and modules). */
+/* Bytes of the plan part of a workspace for plans within cap:
+ * VEER__WIRE_PLAN_BYTES of its path caps, knots and modules, with a grid
+ * area of at least VEER__PLAN_SCRATCH_BYTES (of cap's legs and waypoints
+ * when the plan does not keep its route, of none when it does): the load
+ * rebuilds the route's head there, and the legs and waypoints of a route
+ * it does not keep, before it lays the grid. (At the maxima the grid is
+ * the larger: VEER__WIRE_PLAN_WORK_BYTES holds.) */
 size_t veer__wire_plan_bytes_for(const veer__plan_cap *cap);
-/* ... and with room for the submessages veer__wire_load_pb_cap decodes
- * (veer__plan_msgs, overlapping the grid arrays). */
+/* ... rounded up to 16 bytes, with room for the submessages
+ * veer__wire_load_pb_cap decodes (veer__plan_msgs, at the start of the
+ * grid area, counted by veer__wire_plan_bytes_for). */
 size_t veer__wire_work_bytes_for(const veer__plan_cap *cap);
 /* veer_plan_load_pb for plans within cap (NULL: the maxima), in work of
  * veer__wire_work_bytes_for(cap) bytes: a plan beyond the cap gives
@@ -224,14 +243,19 @@ void veer__wire_plan_in_from_msg(veer_v1_Plan *m, veer__plan_in *in);
 /* ---- wire_cart.c: Plan bytes -> veer__plan_in, no veer_v1_Plan ------------ */
 
 /* The submessages the cart decodes with nanopb (drive, limits, options)
- * and room for the route rebuilt from the bytes; the profile, the largest
- * part, and the route's legs and waypoints stay in the bytes. */
+ * and the head of the route rebuilt from the bytes; the profile, the
+ * largest part, and the route's legs and waypoints stay in the bytes. */
 typedef struct {
     veer_v1_DriveDef drive;
     veer_v1_Limits limits;
     veer_v1_PlanOptions options;
-    veer_route route; /* the route rebuilt from the bytes, read by the path builder only */
+    veer__route_buf route; /* the route rebuilt from the bytes, read by the path builder only */
 } veer__plan_msgs;
+/* Scratch of a plan load that does not keep its route: veer__plan_msgs,
+ * then the route's legs and waypoints (room for legs and waypoints). */
+#define VEER__PLAN_SCRATCH_BYTES(legs, waypoints)                                                             \
+    (VEER__ALIGN16(sizeof(veer__plan_msgs)) + VEER__ALIGN16((size_t)(legs) * sizeof(veer_leg)) +             \
+     (size_t)(waypoints) * sizeof(veer_waypoint))
 
 /* Reads Plan bytes as veer_v1_Plan's decoder would (the same statuses for
  * malformed bytes, a field over its capacity VEER_ERR_CAPACITY), decoding

@@ -115,7 +115,11 @@ veer__plan_cap veer__plan_cap_max(void) {
 size_t veer__wire_plan_bytes_for(const veer__plan_cap *cap) {
     veer__plan_caps c = veer__plan_caps_for(cap->waypoints, cap->legs, cap->modules);
     size_t grid = VEER__GRID_BYTES(cap->knots, cap->steered ? cap->modules : 0, 0);
-    if (!cap->route && grid < sizeof(veer__plan_msgs)) grid = sizeof(veer__plan_msgs); /* the route's scratch */
+    /* the grid area holds the scratch of the load first (load): the submessages, the route's head and,
+     * when the plan does not keep its route, its legs and waypoints */
+    int kept = cap->route;
+    size_t scratch = VEER__PLAN_SCRATCH_BYTES(kept ? 0 : cap->legs, kept ? 0 : cap->waypoints);
+    if (grid < scratch) grid = scratch;
     c.route = cap->route;
     return veer__plan_block_bytes(c) + VEER__ALIGN16(grid);
 }
@@ -312,9 +316,11 @@ static veer_status jerk_windows(const veer__profile_in *pr, veer_plan *plan, vee
 
 /* Everything but the profile: versions, drive, limits, route, path, and the
  * modules' angles at the start (from). plan starts a block of
- * veer__plan_block_bytes(caps) bytes; the route is rebuilt into the block
- * (caps.route) or into scratch, which the plan does not keep. */
-static veer_status load_head(const veer__plan_in *m, veer_plan *plan, veer__plan_caps caps, veer_route *scratch,
+ * veer__plan_block_bytes(caps) bytes; the route's head is rebuilt into rb,
+ * its legs and waypoints into the block (caps.route: rb's arrays are set
+ * to the plan's route, whose head is then written too) or into rb's
+ * arrays, which the plan does not keep. rb's caps are the caller's. */
+static veer_status load_head(const veer__plan_in *m, veer_plan *plan, veer__plan_caps caps, veer__route_buf *rb,
                              double from[VEER_MAX_MODULES], veer_diag *diag) {
     if (m->schema_version != VEER_WIRE_SCHEMA_VERSION)
         return veer__fail_plain(diag, VEER_ERR_VERSION,
@@ -338,8 +344,11 @@ static veer_status load_head(const veer__plan_in *m, veer_plan *plan, veer__plan
     if ((st = veer__limits_check(&plan->drive, &plan->limits, diag))) return st;
     plan->options = veer_default_plan_options();
     if (m->options && (st = veer__wire_options_from_pb(m->options, &plan->options, diag))) return st;
-    veer_route *route = plan->route ? plan->route : scratch;
-    if ((st = veer__wire_route_from_in(&m->route, plan->module_count, route, diag))) return st;
+    veer_route *kept = plan->route;
+    if (kept) rb->legs = kept->legs, rb->waypoints = kept->waypoints;
+    if ((st = veer__wire_route_from_in(&m->route, plan->module_count, rb, diag))) return st;
+    if (kept) veer__route_set_head(kept, &rb->view);
+    const veer__route_view *route = &rb->view;
     veer__row_ctx_init(&plan->rows, &plan->drive, &plan->limits, &plan->options);
     if ((st = veer__path_build(route, &plan->path, diag))) return st;
     plan->segment_count = plan->path.segment_count;
@@ -376,19 +385,20 @@ static veer_status load(const veer__plan_in *m, void *work, size_t work_size, co
     size_t need = veer__wire_plan_bytes_for(cap);
     if (!work || work_size < need || ((uintptr_t)work % sizeof(double)) != 0)
         return veer__fail_plain(diag, VEER_ERR_VALUE, "plan workspace: needs %zu bytes aligned for double", need);
-    if ((int)m->route.waypoints_count > cap->waypoints)
-        return over_cap("waypoints", (int)m->route.waypoints_count, cap->waypoints, diag);
-    if ((int)m->route.legs_count > cap->legs)
-        return over_cap("legs", (int)m->route.legs_count, cap->legs, diag);
     veer__plan_caps caps = veer__plan_caps_for(cap->waypoints, cap->legs, cap->modules);
     caps.route = cap->route;
     veer_plan *plan = (veer_plan *)work;
     char *grid = (char *)work + veer__plan_block_bytes(caps);
     /* The cart's submessages may lie where the grid goes (veer__wire_plan_read): m's drive, limits, route
-     * and options are read by load_head only, and a route the plan does not keep is rebuilt there too,
-     * behind them (need counts the room). */
+     * and options are read by load_head only, and the route's head is rebuilt there too, behind them,
+     * with the legs and waypoints of a route the plan does not keep behind that (need counts the room;
+     * more than cap's legs or waypoints are refused as they are read). */
+    veer__route_buf *rb = &((veer__plan_msgs *)grid)->route;
+    rb->legs = (veer_leg *)(grid + VEER__ALIGN16(sizeof(veer__plan_msgs)));
+    rb->waypoints = (veer_waypoint *)((char *)rb->legs + VEER__ALIGN16((size_t)cap->legs * sizeof(veer_leg)));
+    rb->leg_cap = cap->legs, rb->waypoint_cap = cap->waypoints;
     double from[VEER_MAX_MODULES];
-    veer_status st = load_head(m, plan, caps, &((veer__plan_msgs *)grid)->route, from, diag);
+    veer_status st = load_head(m, plan, caps, rb, from, diag);
     int n = 0;
     if (st == VEER_OK && plan->module_count > cap->modules)
         st = over_cap("modules", plan->module_count, cap->modules, diag);
@@ -458,14 +468,17 @@ veer_status veer__wire_plan_decode_heap(veer_v1_Plan *msg, veer_plan **out, veer
     *out = NULL;
     veer__plan_in in, *m = &in;
     veer__wire_plan_in_from_msg(msg, &in);
-    /* one block sized for the message's route (counts beyond the maxima fail in load_head) */
+    /* one block sized for the message's route (counts beyond the maxima fail in load_head, the plan's
+     * route having room for the maxima) */
     veer__plan_caps caps = veer__plan_caps_for((int)m->route.waypoints_count, (int)m->route.legs_count,
                                                VEER_MAX_MODULES);
     size_t bytes = veer__plan_block_bytes(caps);
     veer_plan *plan = veer__calloc(1, bytes);
     if (!plan) return veer__fail_plain(diag, VEER_ERR_NO_MEMORY, "out of memory");
     double from[VEER_MAX_MODULES];
-    veer_status st = load_head(m, plan, caps, NULL, from, diag);
+    veer__route_buf rb; /* its arrays are the plan's route's */
+    rb.leg_cap = VEER_MAX_LEGS, rb.waypoint_cap = VEER_MAX_WAYPOINTS;
+    veer_status st = load_head(m, plan, caps, &rb, from, diag);
     plan->alloc_size = bytes;
     int n = 0;
     if (st == VEER_OK) st = parse_profile(&m->profile, &plan->path, NULL, NULL, NULL, &n, diag);

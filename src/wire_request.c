@@ -334,16 +334,24 @@ void veer__route_in_from_msg(const veer_v1_Route *m, veer__route_in *out) {
 veer_status veer__wire_route_from_pb(const veer_v1_Route *m, int module_count, veer_route *out, veer_diag *diag) {
     veer__route_in in;
     veer__route_in_from_msg(m, &in);
-    return veer__wire_route_from_in(&in, module_count, out, diag);
+    veer__route_buf b;
+    b.legs = out->legs, b.waypoints = out->waypoints;
+    b.leg_cap = VEER_MAX_LEGS, b.waypoint_cap = VEER_MAX_WAYPOINTS;
+    veer_status st = veer__wire_route_from_in(&in, module_count, &b, diag);
+    if (st == VEER_OK) veer__route_set_head(out, &b.view);
+    return st;
 }
 
-veer_status veer__wire_route_from_in(const veer__route_in *m, int module_count, veer_route *out, veer_diag *diag) {
+veer_status veer__wire_route_from_in(const veer__route_in *m, int module_count, veer__route_buf *out,
+                                     veer_diag *diag) {
     veer_status st;
     if ((st = finite(m->start_x, "route.start_x", diag)) || (st = finite(m->start_y, "route.start_y", diag)) ||
         (st = finite(m->start_yaw, "route.start_yaw", diag)))
         return st;
-    veer_route *r = out; /* written in place: a veer_route is too large for a cart's stack */
-    veer__route_init(r, m->start_x, m->start_y, m->start_yaw);
+    veer__route_view *r = &out->view; /* written in place: no copy on a cart's stack */
+    memset(r, 0, sizeof *r);
+    r->start_x = m->start_x, r->start_y = m->start_y, r->start_yaw = m->start_yaw;
+    r->legs = out->legs, r->waypoints = out->waypoints;
     if (m->start_steer_count > 0) {
         if ((int)m->start_steer_count != module_count)
             return veer__fail_plain(diag, VEER_ERR_VALUE,
@@ -365,8 +373,9 @@ veer_status veer__wire_route_from_in(const veer__route_in *m, int module_count, 
         r->start_twist[1] = m->start_twist.vy;
         r->start_twist[2] = m->start_twist.wz;
     }
-    if (m->legs_count > VEER_MAX_LEGS || m->waypoints_count > VEER_MAX_WAYPOINTS) /* nanopb enforces these */
-        return veer__fail_plain(diag, VEER_ERR_CAPACITY, "route: too many legs or waypoints");
+    if ((int)m->legs_count > out->leg_cap || (int)m->waypoints_count > out->waypoint_cap)
+        return veer__fail_plain(diag, VEER_ERR_CAPACITY, "route: %d legs and %d waypoints, room for at most %d and %d",
+                                (int)m->legs_count, (int)m->waypoints_count, out->leg_cap, out->waypoint_cap);
     if (m->legs_count == 0)
         return veer__fail_plain(diag, VEER_ERR_VALUE, "route.legs is empty");
     r->leg_count = (int)m->legs_count;
@@ -428,7 +437,7 @@ veer_status veer__wire_route_from_in(const veer__route_in *m, int module_count, 
         l.angle = ml->angle;
         l.hold_yaw = ml->hold_yaw ? 1 : 0;
         l.dwell = ml->dwell;
-        r->legs[i] = l;
+        out->legs[i] = l;
     }
     if (used != (long)m->waypoints_count)
         return veer__fail(diag, VEER_ERR_VALUE, -1, (int)used, -1, -1.0, NONE_ID,
@@ -456,7 +465,7 @@ veer_status veer__wire_route_from_in(const veer__route_in *m, int module_count, 
         wp.dwell = mw->dwell;
         wp.timed = mw->has_arrival ? 1 : 0;
         wp.arrival = mw->has_arrival ? mw->arrival : 0.0;
-        r->waypoints[w] = wp;
+        out->waypoints[w] = wp;
     }
     return VEER_OK;
 }

@@ -50,7 +50,7 @@ static veer_leg travel(veer_heading_kind h) {
 }
 
 static void build_ok(const veer_route *r) {
-    veer_status st = veer__path_build(r, &g_path, &g_diag);
+    veer_status st = veer__path_build_route(r, &g_path, &g_diag);
     cr_assert_eq(st, VEER_OK, "build failed: %s (%s)", veer_status_name(st), g_diag.message);
 }
 
@@ -814,7 +814,7 @@ Test(path_segments, start_mismatch_refused_names_the_leg) {
     wp_add(&r, 4, 0, 1);
     leg_add(&r, travel(VEER_HEADING_TANGENT));
     wp_add(&r, 4, 5, 1);
-    veer_status st = veer__path_build(&r, &g_path, &g_diag);
+    veer_status st = veer__path_build_route(&r, &g_path, &g_diag);
     cr_assert_eq(st, VEER_ERR_GEOMETRY);
     cr_assert_eq(g_diag.status, VEER_ERR_GEOMETRY);
     cr_assert_eq(g_diag.leg, 1);
@@ -839,7 +839,7 @@ Test(path_segments, start_mismatch_refused_names_the_leg) {
     tw.toward_x = 0, tw.toward_y = 10;
     leg_add(&r3, tw);
     wp_add(&r3, 4, 0, 1);
-    cr_assert_eq(veer__path_build(&r3, &g_path, &g_diag), VEER_ERR_GEOMETRY);
+    cr_assert_eq(veer__path_build_route(&r3, &g_path, &g_diag), VEER_ERR_GEOMETRY);
     cr_assert(strstr(g_diag.message, "leg 0 starts facing") && strstr(g_diag.message, "toward"), "%s", g_diag.message);
 }
 
@@ -979,7 +979,7 @@ Test(path_bad_input, each_named_and_leaves_empty_path) {
         cases[i].m(&r);
         copy = r;
         memset(&g_diag, 0x55, sizeof g_diag);
-        veer_status st = veer__path_build(&r, &g_path, &g_diag);
+        veer_status st = veer__path_build_route(&r, &g_path, &g_diag);
         cr_expect_eq(st, cases[i].want, "%s: got %s (%s)", cases[i].name, veer_status_name(st), g_diag.message);
         cr_expect_eq(g_diag.status, st, "%s", cases[i].name);
         cr_expect(g_diag.message[0] != '\0' && strlen(g_diag.message) < sizeof g_diag.message, "%s: no message",
@@ -1001,11 +1001,11 @@ Test(path_bad_input, each_named_and_leaves_empty_path) {
 
 Test(path_bad_input, null_pointers) {
     veer_route r = base_route();
-    cr_expect_eq(veer__path_build(NULL, &g_path, &g_diag), VEER_ERR_NULL);
+    cr_expect_eq(veer__path_build_route(NULL, &g_path, &g_diag), VEER_ERR_NULL);
     cr_expect(g_diag.message[0] != '\0');
-    cr_expect_eq(veer__path_build(&r, NULL, &g_diag), VEER_ERR_NULL);
-    cr_expect_eq(veer__path_build(&r, &g_path, NULL), VEER_OK, "diag may be NULL");
-    cr_expect_eq(veer__path_build(NULL, NULL, NULL), VEER_ERR_NULL);
+    cr_expect_eq(veer__path_build_route(&r, NULL, &g_diag), VEER_ERR_NULL);
+    cr_expect_eq(veer__path_build_route(&r, &g_path, NULL), VEER_OK, "diag may be NULL");
+    cr_expect_eq(veer__path_build_route(NULL, NULL, NULL), VEER_ERR_NULL);
     double q[3] = {1, 1, 1}, dq[3], ddq[3];
     veer__path_eval(NULL, 0, 0.0, q, dq, ddq);
     cr_expect(q[0] == 0.0 && q[1] == 0.0 && q[2] == 0.0);
@@ -1027,7 +1027,7 @@ Test(path_bad_input, attached_storage_is_the_limit) {
     char want[96];
     /* exactly the room it needs: the same path */
     veer__path_attach(&p, pc, pieces, sg, segments);
-    cr_assert_eq(veer__path_build(&r, &p, &g_diag), VEER_OK, "%s", g_diag.message);
+    cr_assert_eq(veer__path_build_route(&r, &p, &g_diag), VEER_OK, "%s", g_diag.message);
     cr_expect_eq(p.piece_count, pieces);
     cr_expect_eq(p.segment_count, segments);
     cr_expect_eq(p.length, length);
@@ -1035,7 +1035,7 @@ Test(path_bad_input, attached_storage_is_the_limit) {
     /* one piece short; the entry after the room keeps its marker */
     memset(pc, 0x5a, sizeof pc);
     veer__path_attach(&p, pc, pieces - 1, sg, segments);
-    cr_assert_eq(veer__path_build(&r, &p, &g_diag), VEER_ERR_CAPACITY);
+    cr_assert_eq(veer__path_build_route(&r, &p, &g_diag), VEER_ERR_CAPACITY);
     snprintf(want, sizeof want, "the path needs more than %d pieces", pieces - 1);
     cr_expect(strstr(g_diag.message, want) != NULL, "%s", g_diag.message);
     cr_expect(p.piece_count == 0 && p.segment_count == 0 && p.length == 0.0);
@@ -1045,7 +1045,7 @@ Test(path_bad_input, attached_storage_is_the_limit) {
     /* one segment short */
     memset(sg, 0x5a, sizeof sg);
     veer__path_attach(&p, pc, pieces, sg, segments - 1);
-    cr_assert_eq(veer__path_build(&r, &p, &g_diag), VEER_ERR_CAPACITY);
+    cr_assert_eq(veer__path_build_route(&r, &p, &g_diag), VEER_ERR_CAPACITY);
     snprintf(want, sizeof want, "the path needs more than %d rest-to-rest segments", segments - 1);
     cr_expect(strstr(g_diag.message, want) != NULL, "%s", g_diag.message);
     cr_expect(p.piece_count == 0 && p.segment_count == 0);
@@ -1053,7 +1053,7 @@ Test(path_bad_input, attached_storage_is_the_limit) {
     for (size_t b = 0; b < sizeof *sg; b++) cr_assert_eq(after[b], 0x5a, "byte %zu past the room written", b);
     /* no storage */
     veer__path_attach(&p, NULL, 0, NULL, 0);
-    cr_expect_eq(veer__path_build(&r, &p, &g_diag), VEER_ERR_NULL);
+    cr_expect_eq(veer__path_build_route(&r, &p, &g_diag), VEER_ERR_NULL);
     cr_expect(strstr(g_diag.message, "no storage") != NULL, "%s", g_diag.message);
 }
 
@@ -1085,7 +1085,7 @@ Test(path_capacity, largest_route_fits) {
     leg_add(&r, travel(VEER_HEADING_TANGENT));
     for (int i = 0; i < VEER_MAX_WAYPOINTS; i++) wp_add(&r, (i + 1) * 1.0, (i % 2) ? 0.0 : 1.0, 1);
     r.waypoints[0].y = 0.0; /* first line along the start yaw */
-    veer_status st = veer__path_build(&r, &g_path, &g_diag);
+    veer_status st = veer__path_build_route(&r, &g_path, &g_diag);
     cr_assert_eq(st, VEER_OK, "%s", g_diag.message);
     cr_assert_eq(g_path.segment_count, 2 * VEER_MAX_WAYPOINTS - 2, "%d", g_path.segment_count);
     check_joins(0);
@@ -1131,7 +1131,7 @@ Test(path_random, never_crash_never_nan) {
         }
         /* now and then a broken value */
         if (rnd() < 0.1) r.waypoints[(int)(rnd() * r.waypoint_count)].x = T_NAN;
-        veer_status st = veer__path_build(&r, &g_path, &g_diag);
+        veer_status st = veer__path_build_route(&r, &g_path, &g_diag);
         if (st != VEER_OK) {
             refused++;
             cr_assert(g_diag.message[0] != '\0');

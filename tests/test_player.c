@@ -997,6 +997,99 @@ Test(player, capacity_sizes_memory_and_refuses_larger_plans) {
     free(ms);
 }
 
+/* A route of that many waypoints (3, 0), (3, 2), (5, 2), ... in one travel
+ * leg, then a spin to yaw 1 rad: 2 legs. */
+static veer_route turns_then_spin(int waypoints) {
+    veer_route r = veer_default_route(0.0, 0.0, 0.0);
+    veer_leg leg = veer_default_leg(VEER_LEG_TRAVEL);
+    cr_assert_eq(veer_route_add_leg(&r, &leg), VEER_OK);
+    for (int i = 0; i < waypoints; i++) {
+        veer_waypoint w = veer_default_waypoint(3.0 + 2.0 * (double)(i / 2), 2.0 * (double)((i + 1) / 2));
+        cr_assert_eq(veer_route_add_waypoint(&r, &w), VEER_OK);
+    }
+    veer_leg spin = veer_default_leg(VEER_LEG_SPIN);
+    spin.yaw = 1.0;
+    cr_assert_eq(veer_route_add_leg(&r, &spin), VEER_OK);
+    return r;
+}
+
+/* The player rebuilds a plan's route in scratch with room for only its
+ * max_waypoints waypoints and max_legs legs: its memory shrinks by the
+ * bytes of the waypoints and legs it has no room for (sizeof veer_waypoint
+ * and veer_leg, to within the 16-byte rounding of the scratch), a plan that
+ * fits plays as on a cart with room for any route (bit for bit), and one
+ * waypoint more is refused with reason CAPACITY, the armed plan kept. */
+Test(player, route_scratch_sized_by_capacity) {
+    veer_player_def full = cart_def();
+    veer_route r3 = turns_then_spin(3), r4 = turns_then_spin(4);
+    blob b3 = plan_bytes(&full.drive, &full.limits, &r3, full.cart_name);
+    blob b4 = plan_bytes(&full.drive, &full.limits, &r4, full.cart_name);
+    veer_player_def small = full;
+    small.max_waypoints = 3;
+    small.max_legs = 2;
+    /* memory: with few knots the route's scratch, not the grid, sizes the grid area of the workspace, so
+     * the player's memory less its plan block (veer__wire_plan_grid_at) is the scratch */
+    veer_player_def few = small;
+    few.max_knots = 8;
+    cr_assert(VEER__GRID_BYTES(8, 4, 0) < VEER__ALIGN16(sizeof(veer__plan_msgs)), "the grid is the smaller");
+    struct {
+        int waypoints, legs;
+    } sz[3] = {{3, 2}, {VEER_MAX_WAYPOINTS, 2}, {3, VEER_MAX_LEGS}};
+    long area[3];
+    for (int i = 0; i < 3; i++) {
+        veer_player_def d = few;
+        d.max_waypoints = (uint32_t)sz[i].waypoints, d.max_legs = (uint32_t)sz[i].legs;
+        veer__plan_cap cap = {8, sz[i].waypoints, sz[i].legs, 4, 0, 1};
+        size_t n = veer_player_size_for(&d);
+        cr_assert(n > 0);
+        area[i] = (long)n - (long)veer__wire_plan_grid_at(&cap);
+    }
+    long wp_more = (long)(VEER_MAX_WAYPOINTS - 3) * (long)sizeof(veer_waypoint);
+    long leg_more = (long)(VEER_MAX_LEGS - 2) * (long)sizeof(veer_leg);
+    cr_log_info("player memory less its plan block: %ld B for 3 waypoints and 2 legs, %ld B for %d waypoints, "
+                "%ld B for %d legs",
+                area[0], area[1], VEER_MAX_WAYPOINTS, area[2], VEER_MAX_LEGS);
+    cr_assert(labs(area[1] - area[0] - wp_more) < 16, "61 waypoints more: %ld B more, expected %ld +- 15",
+              area[1] - area[0], wp_more);
+    cr_assert(labs(area[2] - area[0] - leg_more) < 16, "30 legs more: %ld B more, expected %ld +- 15",
+              area[2] - area[0], leg_more);
+    /* the 3-waypoint, 2-leg plan plays as on a cart with room for any route */
+    void *mf, *ms;
+    veer_player *pf = new_player(&full, &mf), *ps = new_player(&small, &ms);
+    double now = 3.0;
+    cr_assert(send_plan(pf, &full.link, 1, b3, now).armed);
+    veer_player_event ev = send_plan(ps, &small.link, 1, b3, now);
+    cr_assert(ev.armed, "%s", veer_link_reason_name(ev.reason));
+    /* one waypoint more: refused, the armed plan kept */
+    ev = send_plan(ps, &small.link, 2, b4, now);
+    cr_assert(!ev.armed && ev.reason == VEER_LINK_CAPACITY, "%s", veer_link_reason_name(ev.reason));
+    veer_link_report rep = status(ps);
+    cr_assert(rep.state == VEER_PLAYER_ARMED && rep.plan_id == 1u && rep.last_rejection == VEER_LINK_CAPACITY);
+    void *ma;
+    veer_player *pa = new_player(&full, &ma);
+    cr_assert(send_plan(pa, &full.link, 2, b4, now).armed, "a cart with room for any route takes it");
+    free(ma);
+    cr_assert(command(pf, &full.link, VEER_LINK_COMMAND_START, 1, now).started);
+    cr_assert(command(ps, &small.link, VEER_LINK_COMMAND_START, 1, now).started);
+    double dt = 1.0 / RATE, T = veer_plan_duration(veer_player_plan(ps));
+    for (int k = 0; k * dt <= T + 0.5; k++) {
+        double t = now + k * dt;
+        if (k % 10 == 0) {
+            command(pf, &full.link, VEER_LINK_COMMAND_HEARTBEAT, 0, t);
+            command(ps, &small.link, VEER_LINK_COMMAND_HEARTBEAT, 0, t);
+        }
+        veer_sample a, c;
+        cr_assert_eq(veer_player_step(pf, t, &a), VEER_OK);
+        cr_assert_eq(veer_player_step(ps, t, &c), VEER_OK);
+        cr_assert(memcmp(&a, &c, sizeof a) == 0, "setpoints differ at t = %g s", k * dt);
+    }
+    cr_assert_eq(status(ps).stop_reason, VEER_STOP_END_OF_PLAN);
+    free(b3.bytes);
+    free(b4.bytes);
+    free(mf);
+    free(ms);
+}
+
 /* A cart with fixed wheels (mecanum) keeps no steer angles at the knots: its
  * memory, sized for its plan, is smaller than a steered cart's by 4 bytes (a
  * float angle) per knot and module; it plays its plan as the decoded plan samples it (bit for

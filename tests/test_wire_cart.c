@@ -518,10 +518,13 @@ Test(wire_cart, workspace_needs_no_decoded_message) {
                 now, before, veer__wire_work_bytes_for(&max), sizeof(veer_v1_Plan), sizeof(veer__plan_msgs));
     cr_assert_eq(now, veer__wire_plan_bytes_for(&small), "the submessages fit where the grid goes");
     cr_assert_lt(veer__wire_work_bytes_for(&max) + sizeof(veer_v1_Plan), (size_t)VEER__WIRE_WORK_BYTES + 16);
-    /* a cap so small that the submessages need more than the grid */
+    /* a cap so small that the scratch needs more than the grid: the submessages and the route's head,
+     * then room for its one leg and two waypoints, each block at a 16-byte offset */
     veer__plan_cap tiny = {8, 2, 1, 1, 0, 1};
     cr_assert_eq(veer__wire_work_bytes_for(&tiny),
-                 veer__wire_plan_grid_at(&tiny) + VEER__ALIGN16(sizeof(veer__plan_msgs)));
+                 veer__wire_plan_grid_at(&tiny) + VEER__ALIGN16(VEER__ALIGN16(sizeof(veer__plan_msgs)) +
+                                                                VEER__ALIGN16(sizeof(veer_leg)) +
+                                                                2 * sizeof(veer_waypoint)));
     /* the demo in exactly its workspace; one byte less is refused before anything is read */
     blob b = demo_bytes();
     veer_plan_needs need;
