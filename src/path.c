@@ -29,7 +29,8 @@ enum { PIECE_LINE = 1, PIECE_CORNER = 2, PIECE_SPIN = 3, PIECE_PIVOT = 4 };
  *   TANGENT  line [0] yaw; corner [0] yaw at s0, [1..2] d0
  *   TOWARD   [0..1] point, [2] unwrap reference; corners add (start s, reference)
  *            of further regions at [3..4], [5..6], [7..8]
- *   BLEND    [0..5] knots (s, yaw) before, after and after that (global s)
+ *   BLEND    [0..5] knots (s, yaw) before, after and after that (global s); while
+ *            its leg is laid out, [6..7] of the leg's piece k - 1 keep knot k
  *   all      [9..11] start-mismatch fade: m, L_fade, s where it starts */
 
 #define DEG_ (VEER_PI / 180.0)
@@ -827,10 +828,14 @@ static veer_status build_travel(builder *b, int li, int w0) {
     const int leg_first = b->path->piece_count;
     const double leg_s = b->s, leg_yaw = b->yaw;
     /* BLEND knots: the leg's start, then every waypoint with a yaw (a corner
-     * at its blend midpoint, a stop where it rests), unwrapped the short way */
-    double ks[VEER_MAX_WAYPOINTS + 1], ky[VEER_MAX_WAYPOINTS + 1];
+     * at its blend midpoint, a stop where it rests), unwrapped the short way.
+     * Not kept on the stack: knot k >= 1 goes to yaw_p[6..7] of the leg's
+     * piece k - 1, which a BLEND piece's yaw law leaves unused (every
+     * waypoint adds a piece before its knot: a line, or a corner where two
+     * blends take the whole line). */
+    veer_path_piece *lp = &b->path->pieces[leg_first];
     int nk = 1;
-    ks[0] = leg_s, ky[0] = leg_yaw;
+    double yk = leg_yaw; /* the last knot's yaw */
     travel_corner cn; /* at the end of line i */
     double lam = 0.0; /* the blend at the start of line i */
     for (int i = 0; i < n; i++) {
@@ -898,25 +903,28 @@ static veer_status build_travel(builder *b, int li, int w0) {
         }
         const veer_waypoint *wp = &route->waypoints[wi];
         if (ys.heading == VEER_HEADING_BLEND && wp->has_yaw) {
-            ks[nk] = wps;
-            ky[nk] = ky[nk - 1] + veer__wrap(wp->yaw - ky[nk - 1]);
+            yk += veer__wrap(wp->yaw - yk);
+            lp[nk - 1].yaw_p[6] = wps;
+            lp[nk - 1].yaw_p[7] = yk;
             nk++;
         }
     }
 
     if (ys.heading == VEER_HEADING_BLEND) {
         int k = 0;
+        double sk = leg_s; /* knot k, yk its yaw */
+        yk = leg_yaw;
         for (int j = leg_first; j < b->path->piece_count; j++) {
             veer_path_piece *pc = &b->path->pieces[j];
-            while (k + 1 < nk && ks[k + 1] <= pc->s0) k++;
+            while (k + 1 < nk && lp[k].yaw_p[6] <= pc->s0) sk = lp[k].yaw_p[6], yk = lp[k].yaw_p[7], k++;
             double *p = pc->yaw_p;
-            p[0] = ks[k], p[1] = ky[k];
+            p[0] = sk, p[1] = yk;
             if (k + 1 < nk)
-                p[2] = ks[k + 1], p[3] = ky[k + 1];
+                p[2] = lp[k].yaw_p[6], p[3] = lp[k].yaw_p[7];
             else
                 p[2] = p[0], p[3] = p[1];
             if (k + 2 < nk)
-                p[4] = ks[k + 2], p[5] = ky[k + 2];
+                p[4] = lp[k + 1].yaw_p[6], p[5] = lp[k + 1].yaw_p[7];
             else
                 p[4] = p[2], p[5] = p[3];
         }
