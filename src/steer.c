@@ -111,7 +111,7 @@ veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, cons
         }
         if (!moves) { /* standing or out of service: the angle stays, as the grid keeps it */
             float a = keep(from[i], ml);
-            sg->steer_to[i] = a;
+            sg->steer_to[i] = (double)a;
             for (int k = sg->k0; k <= sg->k1; k++) plan->steer[(size_t)k * (size_t)M + (size_t)i] = a;
             continue;
         }
@@ -127,7 +127,7 @@ veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, cons
         for (int c = 0; c < 9 && !ok; c++) { /* follow refuses a candidate outside the range at k0 */
             int w = sg->k0;
             /* kept as a float: steer_to is the grid's angle at k0 exactly */
-            double a = keep(base + (double)((c + 1) / 2 * (c & 1 ? side : -side)) * VEER_PI, ml);
+            double a = (double)keep(base + (double)((c + 1) / 2 * (c & 1 ? side : -side)) * VEER_PI, ml);
             if (follow(plan, j, i, xi, a, &w)) {
                 ok = 1;
                 chosen = a;
