@@ -872,6 +872,29 @@ static int plan_knots(blob b) {
     return n;
 }
 
+/* Starts the plans armed on pf and ps (plan 1) at now and plays them to
+ * their end, heartbeats every 10 ticks: every setpoint bit for bit the
+ * same, ps ending at the end of its plan. Returns the ticks played. */
+static int play_alike(veer_player *pf, const veer_link_def *lf, veer_player *ps, const veer_link_def *ls, double now) {
+    cr_assert(command(pf, lf, VEER_LINK_COMMAND_START, 1, now).started);
+    cr_assert(command(ps, ls, VEER_LINK_COMMAND_START, 1, now).started);
+    double dt = 1.0 / RATE, T = veer_plan_duration(veer_player_plan(ps));
+    int steps = 0;
+    for (int k = 0; k * dt <= T + 0.5; k++, steps++) {
+        double t = now + k * dt;
+        if (k % 10 == 0) {
+            command(pf, lf, VEER_LINK_COMMAND_HEARTBEAT, 0, t);
+            command(ps, ls, VEER_LINK_COMMAND_HEARTBEAT, 0, t);
+        }
+        veer_sample a, c;
+        cr_assert_eq(veer_player_step(pf, t, &a), VEER_OK);
+        cr_assert_eq(veer_player_step(ps, t, &c), VEER_OK);
+        cr_assert(memcmp(&a, &c, sizeof a) == 0, "setpoints differ at t = %g s", k * dt);
+    }
+    cr_assert_eq(status(ps).stop_reason, VEER_STOP_END_OF_PLAN);
+    return steps;
+}
+
 /* A cart sized for its plans (plan bytes, knots, waypoints, legs, its own
  * module count) needs a fraction of the memory of one sized for any plan,
  * plays a plan that fits exactly as that one does (every setpoint equal, bit
@@ -925,23 +948,7 @@ Test(player, capacity_sizes_memory_and_refuses_larger_plans) {
     cr_assert(send_plan(pf, &full.link, 1, b, now).armed);
     veer_player_event ev = send_plan(ps, &small.link, 1, b, now);
     cr_assert(ev.armed, "%s", veer_link_reason_name(ev.reason));
-    cr_assert(command(pf, &full.link, VEER_LINK_COMMAND_START, 1, now).started);
-    cr_assert(command(ps, &small.link, VEER_LINK_COMMAND_START, 1, now).started);
-    double dt = 1.0 / RATE, T = veer_plan_duration(veer_player_plan(ps));
-    int steps = 0;
-    for (int k = 0; k * dt <= T + 0.5; k++, steps++) {
-        double t = now + k * dt;
-        if (k % 10 == 0) {
-            command(pf, &full.link, VEER_LINK_COMMAND_HEARTBEAT, 0, t);
-            command(ps, &small.link, VEER_LINK_COMMAND_HEARTBEAT, 0, t);
-        }
-        veer_sample a, c;
-        cr_assert_eq(veer_player_step(pf, t, &a), VEER_OK);
-        cr_assert_eq(veer_player_step(ps, t, &c), VEER_OK);
-        cr_assert(memcmp(&a, &c, sizeof a) == 0, "setpoints differ at t = %g s", k * dt);
-    }
-    cr_assert_eq(status(ps).stop_reason, VEER_STOP_END_OF_PLAN);
-    cr_log_info("%d steps equal", steps);
+    cr_log_info("%d steps equal", play_alike(pf, &full.link, ps, &small.link, now));
     /* beyond one capacity: refused, the armed plan kept */
     veer_route r3 = corner_route();
     veer_waypoint w = veer_default_waypoint(5.0, 2.0);
@@ -1069,21 +1076,7 @@ Test(player, route_scratch_sized_by_capacity) {
     veer_player *pa = new_player(&full, &ma);
     cr_assert(send_plan(pa, &full.link, 2, b4, now).armed, "a cart with room for any route takes it");
     free(ma);
-    cr_assert(command(pf, &full.link, VEER_LINK_COMMAND_START, 1, now).started);
-    cr_assert(command(ps, &small.link, VEER_LINK_COMMAND_START, 1, now).started);
-    double dt = 1.0 / RATE, T = veer_plan_duration(veer_player_plan(ps));
-    for (int k = 0; k * dt <= T + 0.5; k++) {
-        double t = now + k * dt;
-        if (k % 10 == 0) {
-            command(pf, &full.link, VEER_LINK_COMMAND_HEARTBEAT, 0, t);
-            command(ps, &small.link, VEER_LINK_COMMAND_HEARTBEAT, 0, t);
-        }
-        veer_sample a, c;
-        cr_assert_eq(veer_player_step(pf, t, &a), VEER_OK);
-        cr_assert_eq(veer_player_step(ps, t, &c), VEER_OK);
-        cr_assert(memcmp(&a, &c, sizeof a) == 0, "setpoints differ at t = %g s", k * dt);
-    }
-    cr_assert_eq(status(ps).stop_reason, VEER_STOP_END_OF_PLAN);
+    play_alike(pf, &full.link, ps, &small.link, now);
     free(b3.bytes);
     free(b4.bytes);
     free(mf);
