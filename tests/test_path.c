@@ -1170,8 +1170,9 @@ Test(path_random, never_crash_never_nan) {
  * rounded corner at each (a line and a corner per waypoint, the last only its
  * line), the same with a stop at each where the tangent turns a quarter
  * (a line and a spin each), and 31 pivot legs after a short travel leg. The
- * first two reach the bound less one piece: a player or a plan sized by it
- * is not sized for more than a route can use, nor less. */
+ * first two come within two pieces of the bound (127 of 129), the third
+ * within two (34 of 36): a plan or player sized by it is not sized for
+ * fewer pieces than a route can need, nor for many more. */
 Test(path, worst_routes_fit_the_piece_bound) {
     for (int stops = 0; stops < 2; stops++) {
         static veer_route r;

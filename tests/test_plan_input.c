@@ -187,8 +187,9 @@ static void largest_free(void *ptr, size_t size, void *ctx) {
  * it: an earlier planner sized its leg summaries by leg_count before
  * checking it and asked the allocator for 14 GB (found by memcheck on
  * random_structs_never_crash). A plan for the maxima (64 waypoints, 32 legs,
- * 8 modules) is a block of about 101 KiB (measured, this build); 1 MiB
- * leaves the planner's grid arrays for the small request room. */
+ * 8 modules) is a block of 94688 B, about 92 KiB (veer__plan_block_bytes at
+ * the maxima, measured on this build); 1 MiB leaves the planner's grid
+ * arrays for the small request room. */
 Test(input, scrambled_counts_never_size_memory) {
     static const int counts[] = {INT32_MAX, INT32_MIN, -1, VEER_MAX_LEGS + 1, VEER_MAX_WAYPOINTS + 1, 1 << 20};
     cr_assert_eq(veer_set_allocator(largest_alloc, largest_free, NULL), VEER_OK);
