@@ -5,7 +5,7 @@
  *   bench_cart scaling                grid size, route length and module count
  *   bench_cart once N                 one plan of the demo at N grid points (run.sh counts its instructions)
  *   bench_cart player                 player step and plan sample time per control tick
- *   bench_cart stack                  stack high-water mark of the cart-side loop
+ *   bench_cart stack                  stack high-water mark of the cart-side loop (arming, running, braking)
  *   bench_cart wire                   encoded plan sizes against the dense 50 Hz stream, airtime
  *   bench_cart request OUT.pb         writes the 5-minute scenario's PlanRequest (for bench.py)
  *
@@ -528,6 +528,13 @@ static sealed_plan stack_plan;
 static uint8_t stack_start[VEER_LINK_FRAME_MAX], stack_out[VEER_LINK_FRAME_MAX];
 static size_t stack_start_size;
 static veer_sample stack_sample;
+/* Heartbeats every 0.5 s (step 25 k, k = 1 .. stack_beats) until the link
+ * goes quiet while the cart moves: its watchdog brakes it (a controlled
+ * stop) one link timeout after the last. */
+#define STACK_BEATS_MAX 64
+static uint8_t stack_beat[STACK_BEATS_MAX][VEER_LINK_FRAME_MAX];
+static size_t stack_beat_size[STACK_BEATS_MAX];
+static int stack_beats, stack_braked;
 
 static void *cart_loop(void *arg) {
     (void)arg;
@@ -538,14 +545,21 @@ static void *cart_loop(void *arg) {
         if (veer_player_frame(pl, stack_plan.frames[k], stack_plan.sizes[k], 0.0, &ev)) DIE("frame");
     if (veer_player_frame(pl, stack_start, stack_start_size, 0.0, &ev) || !ev.started) DIE("START refused");
     size_t n;
+    veer_link_report rep;
     for (int k = 1; k < 50 * 30; k++) {
+        if (k % 25 == 0 && k / 25 <= stack_beats &&
+            veer_player_frame(pl, stack_beat[k / 25 - 1], stack_beat_size[k / 25 - 1], k * 0.02, &ev))
+            DIE("heartbeat");
         if (veer_player_step(pl, k * 0.02, &stack_sample)) DIE("step");
+        if (veer_player_status(pl, &rep)) DIE("status");
+        if (rep.state == VEER_PLAYER_STOPPING) stack_braked = 1;
         if (k % 25 == 0) {
             if (veer_player_report_frame(pl, stack_out, sizeof stack_out, &n) ||
                 veer_player_gap_frame(pl, stack_out, sizeof stack_out, &n))
                 DIE("report");
         }
     }
+    if (!stack_braked || rep.stop_reason != VEER_STOP_LINK_LOST) DIE("the cart loop did not brake on a quiet link");
     return NULL;
 }
 
@@ -579,6 +593,20 @@ static int cmd_stack(void) {
     if (veer_link_command_frame(&stack_def.link, 1, VEER_LINK_COMMAND_START, 1, stack_start, sizeof stack_start,
                                 &stack_start_size))
         DIE("start");
+    /* The last heartbeat: the first at 0.5 s steps from a third of the plan on whose link timeout runs out
+     * while the cart moves. */
+    double T = veer_plan_duration(p);
+    for (stack_beats = (int)(T / 1.5) + 1; stack_beats < STACK_BEATS_MAX; stack_beats++) {
+        veer_sample s;
+        double quiet = 0.5 * stack_beats + stack_def.link_timeout;
+        if (veer_plan_sample(p, quiet, &s)) DIE("sample");
+        if (quiet < T && s.phase == VEER_PHASE_MOVING && s.sdot > 0.0) break;
+    }
+    if (stack_beats == STACK_BEATS_MAX) DIE("the demo does not move a link timeout after a heartbeat");
+    for (int k = 0; k < stack_beats; k++)
+        if (veer_link_command_frame(&stack_def.link, (uint64_t)k + 2, VEER_LINK_COMMAND_HEARTBEAT, 0, stack_beat[k],
+                                    sizeof stack_beat[k], &stack_beat_size[k]))
+            DIE("heartbeat");
     /* Arming: the frame that completes the plan (tag, decode, checks), best of 50. */
     double arm = 1.0;
     for (int rep = 0; rep < 50; rep++) {

@@ -14,6 +14,7 @@
  * checks and veer_plan_stop_sample use: the hardest deceleration the plan's
  * own limits allow at each point, integrated in 1 ms steps.
  * SPDX-License-Identifier: MIT */
+#include <stddef.h>
 #include <string.h>
 #include "link_internal.h"
 #include "wire_internal.h"
@@ -46,7 +47,16 @@ struct veer_player {
     /* The controlled stop: state at clock time stop_clock. */
     int seg;
     double s, sdot, sddot, stop_clock, stop_t0, stop_clock0;
-    veer_sample last;          /* latest output */
+    /* The latest output as far as it is read again (the reports, the body
+     * at rest: rest_out): a sample's fields up to its pose, laid out as
+     * there, and the steer angles; the rest of a sample at rest is zero.
+     * A running or braking cart's output is sampled into the caller's out. */
+    struct {
+        double t;
+        int phase, leg;
+        double s, sdot, sddot, pose[3];
+        double steer[VEER_MAX_MODULES];
+    } last;
     uint32_t report_seq;
     veer_link_receiver *rx;    /* in the player's memory, after the armed plan's bytes */
 };
@@ -246,16 +256,28 @@ size_t veer_player_size(void) {
     return veer_player_size_for(&d);
 }
 
-/* The body at rest: the latest pose, zero rates, steer angles held. */
-static void rest_sample(veer_sample *o) {
-    o->sdot = o->sddot = 0.0;
+#define LAST_HEAD offsetof(veer_sample, twist_world) /* bytes of a sample that last keeps as they are */
+_Static_assert(offsetof(veer_player, last.pose) - offsetof(veer_player, last) == offsetof(veer_sample, pose) &&
+                   offsetof(veer_player, last.steer) - offsetof(veer_player, last) == LAST_HEAD,
+               "last is laid out as a sample's head");
+
+/* Keeps sample o (finite) as the latest output; rest: the body stands
+ * there. */
+static void hold(veer_player *p, const veer_sample *o, int rest) {
+    memcpy(&p->last, o, LAST_HEAD);
+    if (rest) p->last.sdot = 0.0;
+    for (int i = 0; i < p->module_count; i++) p->last.steer[i] = o->modules[i].steer;
+}
+
+/* The body at rest where the latest output left it: its pose, zero rates,
+ * steer angles held. */
+static void rest_out(const veer_player *p, veer_sample *o) {
+    memset(o, 0, sizeof *o);
+    memcpy(o, &p->last, LAST_HEAD);
     o->phase = VEER_PHASE_DONE;
-    for (int k = 0; k < 3; k++) o->twist_world[k] = o->twist_body[k] = o->accel_world[k] = o->accel_body[k] = 0.0;
-    for (int i = 0; i < o->module_count; i++) {
-        o->modules[i].steer_rate = 0.0;
-        o->modules[i].wheel_rate = 0.0;
-        o->modules[i].wheel_accel = 0.0;
-    }
+    o->sdot = o->sddot = 0.0;
+    o->module_count = p->module_count;
+    for (int i = 0; i < p->module_count; i++) o->modules[i].steer = p->last.steer[i];
 }
 
 veer_status veer_player_init(void *memory, size_t size, const veer_player_def *def, veer_player **out,
@@ -303,10 +325,7 @@ veer_status veer_player_init(void *memory, size_t size, const veer_player_def *d
     p->work_size = work_size;
     p->armed = base + work_size;
     p->rx = (veer_link_receiver *)(p->armed + armed_size);
-    memset(&p->last, 0, sizeof p->last);
-    p->last.module_count = p->module_count;
-    p->last.leg = -1;
-    rest_sample(&p->last);
+    p->last.leg = -1; /* the rest of last zero */
     veer__link_receiver_setup(p->rx, &def->link, def->accepted_plan_id, def->command_seq);
     *out = p;
     veer__diag_ok(diag);
@@ -334,14 +353,15 @@ static int sample_finite(const veer_sample *o) {
 static void fault(veer_player *p) {
     p->state = VEER_PLAYER_FAULT;
     p->stop_reason = VEER_STOP_FAULT;
-    rest_sample(&p->last);
+    p->last.sdot = 0.0; /* at rest where the last good output was */
 }
 
 /* ---- stopping ----------------------------------------------------------- */
 
 /* Stops at clock time T (>= the plan's start): brakes along the path from
- * the plan's state at T, or stands at once if the body already stands. */
-static void begin_stop(veer_player *p, double T, int reason) {
+ * the plan's state at T, or stands at once if the body already stands.
+ * Scratch: room for a sample (what it leaves there is not read). */
+static void begin_stop(veer_player *p, double T, int reason, veer_sample *scratch) {
     double tp = T - p->t_start;
     if (tp < 0.0) tp = 0.0;
     if (tp > p->plan->duration) tp = p->plan->duration;
@@ -360,62 +380,69 @@ static void begin_stop(veer_player *p, double T, int reason) {
         return;
     }
     /* Standing (re-steer phase, dwell, end): hold the modules where they are. */
-    veer_sample o;
-    if (veer_plan_sample(p->plan, tp, &o) != VEER_OK || !sample_finite(&o)) {
+    if (veer_plan_sample(p->plan, tp, scratch) != VEER_OK || !sample_finite(scratch)) {
         fault(p);
         return;
     }
-    p->last = o;
-    rest_sample(&p->last);
+    hold(p, scratch, 1);
     p->state = VEER_PLAYER_STOPPED;
 }
 
-/* Advances a controlled stop to clock time now (bounded) and writes its sample. */
-static void advance_stop(veer_player *p, double now) {
+/* Advances a controlled stop to clock time now (bounded) and samples it
+ * into out: 1 while the body still moves (out is the output), else 0. */
+static int advance_stop(veer_player *p, double now, veer_sample *out) {
     double dt = now - p->stop_clock;
     if (dt > STOP_ADVANCE_MAX) dt = STOP_ADVANCE_MAX;
     int moving = dt > 0.0 ? veer__stop_step(p->plan, p->seg, &p->s, &p->sdot, &p->sddot, dt) : p->sdot > 0.0;
     p->stop_clock = now;
-    veer_sample o;
-    memset(&o, 0, sizeof o);
-    veer__sample_state(p->plan, p->seg, p->s, p->sdot, moving ? p->sddot : 0.0, &o);
-    o.t = p->stop_t0 + (now - p->stop_clock0);
-    o.phase = moving ? VEER_PHASE_MOVING : VEER_PHASE_DONE;
-    if (!sample_finite(&o)) {
+    memset(out, 0, sizeof *out);
+    veer__sample_state(p->plan, p->seg, p->s, p->sdot, moving ? p->sddot : 0.0, out);
+    out->t = p->stop_t0 + (now - p->stop_clock0);
+    out->phase = moving ? VEER_PHASE_MOVING : VEER_PHASE_DONE;
+    if (!sample_finite(out)) {
         fault(p);
-        return;
+        return 0;
     }
-    p->last = o;
-    if (!moving) {
-        rest_sample(&p->last);
-        p->state = VEER_PLAYER_STOPPED;
-    }
+    hold(p, out, !moving);
+    if (!moving) p->state = VEER_PLAYER_STOPPED;
+    return moving;
 }
 
-/* Ends a run whose plan time reached the duration. */
-static void end_of_plan(veer_player *p) {
-    veer_sample o;
-    if (veer_plan_sample(p->plan, p->plan->duration, &o) != VEER_OK || !sample_finite(&o)) {
+/* Ends a run whose plan time reached the duration (scratch as begin_stop). */
+static void end_of_plan(veer_player *p, veer_sample *scratch) {
+    if (veer_plan_sample(p->plan, p->plan->duration, scratch) != VEER_OK || !sample_finite(scratch)) {
         fault(p);
         return;
     }
-    p->last = o;
-    rest_sample(&p->last);
+    hold(p, scratch, 1);
     p->state = VEER_PLAYER_STOPPED;
     p->stop_reason = VEER_STOP_END_OF_PLAN;
 }
 
 /* The link watchdog: a running cart that heard nothing authentic for
- * link_timeout stops, braking from the moment the timeout ran out. */
-static int watchdog(veer_player *p, double now) {
+ * link_timeout stops, braking from the moment the timeout ran out
+ * (scratch as begin_stop). */
+static int watchdog(veer_player *p, double now, veer_sample *scratch) {
     if (p->state != VEER_PLAYER_RUNNING) return 0;
     double deadline = p->last_auth + p->link_timeout;
     if (!(now > deadline)) return 0;
     if (deadline - p->t_start >= p->plan->duration) { /* the plan had ended first */
-        end_of_plan(p);
+        end_of_plan(p, scratch);
         return 0;
     }
-    begin_stop(p, deadline > p->last.t + p->t_start ? deadline : p->last.t + p->t_start, VEER_STOP_LINK_LOST);
+    begin_stop(p, deadline > p->last.t + p->t_start ? deadline : p->last.t + p->t_start, VEER_STOP_LINK_LOST,
+               scratch);
+    return 1;
+}
+
+/* For a frame, which has no sample to lend: the watchdog at now (reason
+ * VEER_STOP_NONE; 1 if it stopped the cart) or a stop for reason at now.
+ * The scratch on a frame of its own, not on the stack while a frame arms
+ * a plan. */
+static VEER__NOINLINE int frame_stop(veer_player *p, double now, int reason) {
+    veer_sample o;
+    if (reason == VEER_STOP_NONE) return watchdog(p, now, &o);
+    begin_stop(p, now, reason, &o);
     return 1;
 }
 
@@ -476,10 +503,8 @@ static int load(veer_player *p, const uint8_t *bytes, size_t size, const veer_pl
 static VEER__NOINLINE void show_start(veer_player *p) {
     veer_sample o;
     if (veer_plan_sample(p->plan, 0.0, &o) == VEER_OK && sample_finite(&o)) {
-        for (int i = 0; i < o.module_count && i < p->last.module_count; i++) o.modules[i].steer = p->last.modules[i].steer;
-        o.module_count = p->module_count;
-        p->last = o;
-        rest_sample(&p->last);
+        for (int i = 0; i < p->module_count; i++) o.modules[i].steer = p->last.steer[i];
+        hold(p, &o, 1);
         p->last.t = 0.0;
     }
 }
@@ -530,7 +555,7 @@ static int command(veer_player *p, int kind, uint64_t plan_id, double now, veer_
         return VEER_LINK_NONE;
     case VEER_LINK_COMMAND_STOP:
         if (p->state == VEER_PLAYER_RUNNING) {
-            begin_stop(p, now, VEER_STOP_COMMAND);
+            frame_stop(p, now, VEER_STOP_COMMAND);
             ev->stopped = 1;
         } else if (p->state == VEER_PLAYER_ARMED) { /* the armed plan is dropped: it can never start */
             p->state = VEER_PLAYER_STOPPED;
@@ -550,7 +575,7 @@ veer_status veer_player_frame(veer_player *p, const uint8_t *frame, size_t size,
     saw(p, now);
     veer_player_event e;
     memset(&e, 0, sizeof e);
-    if (watchdog(p, now)) e.stopped = 1;
+    if (frame_stop(p, now, VEER_STOP_NONE)) e.stopped = 1;
     veer_status st = veer_link_receive(p->rx, frame, size, &e.link);
     if (st != VEER_OK) return st; /* cannot happen: every ready plan is settled below */
     e.reason = e.link.reason;
@@ -574,20 +599,21 @@ veer_status veer_player_step(veer_player *p, double now, veer_sample *out) {
     if (!p || !out) return VEER_ERR_NULL;
     if (!time_ok(p, now)) return VEER_ERR_VALUE;
     saw(p, now);
-    watchdog(p, now);
+    watchdog(p, now, out);
     if (p->state == VEER_PLAYER_RUNNING) {
         double tp = now - p->t_start;
         if (tp >= p->plan->duration) {
-            end_of_plan(p);
+            end_of_plan(p, out);
+        } else if (veer_plan_sample(p->plan, tp, out) != VEER_OK || !sample_finite(out)) {
+            fault(p);
         } else {
-            veer_sample o;
-            if (veer_plan_sample(p->plan, tp, &o) != VEER_OK || !sample_finite(&o)) fault(p);
-            else p->last = o;
+            hold(p, out, 0);
+            return VEER_OK;
         }
-    } else if (p->state == VEER_PLAYER_STOPPING) {
-        advance_stop(p, now);
+    } else if (p->state == VEER_PLAYER_STOPPING && advance_stop(p, now, out)) {
+        return VEER_OK;
     }
-    *out = p->last;
+    rest_out(p, out); /* at rest: the last good output, standing */
     return VEER_OK;
 }
 
@@ -595,9 +621,10 @@ veer_status veer_player_stop(veer_player *p, double now) {
     if (!p) return VEER_ERR_NULL;
     if (!time_ok(p, now)) return VEER_ERR_VALUE;
     saw(p, now);
-    if (watchdog(p, now)) return VEER_OK;
+    veer_sample o; /* scratch */
+    if (watchdog(p, now, &o)) return VEER_OK;
     if (p->state == VEER_PLAYER_RUNNING) {
-        begin_stop(p, now, VEER_STOP_LOCAL);
+        begin_stop(p, now, VEER_STOP_LOCAL, &o);
     } else if (p->state == VEER_PLAYER_ARMED) {
         p->state = VEER_PLAYER_STOPPED;
         p->stop_reason = VEER_STOP_LOCAL;

@@ -170,10 +170,9 @@ veer_status veer__wire_load_pb_cap(const uint8_t *bytes, size_t size, void *work
     if (!work || work_size < need || ((uintptr_t)work % sizeof(double)) != 0)
         return veer__fail_plain(diag, VEER_ERR_VALUE, "plan workspace: needs %zu bytes aligned for double", need);
     veer__plan_msgs *msgs = (veer__plan_msgs *)((char *)work + veer__wire_plan_grid_at(cap));
-    veer__plan_in in;
-    veer_status st = veer__wire_plan_read(bytes, size, msgs, &in, diag);
+    veer_status st = veer__wire_plan_read(bytes, size, msgs, &msgs->in, diag);
     veer_plan *p = NULL;
-    if (st == VEER_OK) st = veer__wire_plan_load_in(&in, work, work_size, cap, &p, diag);
+    if (st == VEER_OK) st = veer__wire_plan_load_in(&msgs->in, work, work_size, cap, &p, diag);
     if (st == VEER_OK) *out = p;
     return st;
 }

@@ -409,7 +409,7 @@ veer_status veer__wire_plan_read(const uint8_t *bytes, size_t size, veer__plan_m
     reader r = {size, diag};
     const uint8_t *cart_id = NULL;
     size_t cart_id_size = 0;
-    int has[veer_v1_Plan_content_hash_tag + 1] = {0};
+    uint32_t has = 0; /* bit tag: the field came */
     veer_status st = VEER_OK;
     pb_wire_type_t wt;
     uint32_t tag;
@@ -418,7 +418,7 @@ veer_status veer__wire_plan_read(const uint8_t *bytes, size_t size, veer__plan_m
                               : tag == veer_v1_Plan_duration_tag || tag == veer_v1_Plan_length_tag ? PB_WT_64BIT
                                                                                                    : PB_WT_STRING;
         if (tag <= veer_v1_Plan_content_hash_tag && wt != want) return wrong_type(&r, &s, 0);
-        if (tag <= veer_v1_Plan_content_hash_tag) has[tag] = 1;
+        if (tag <= veer_v1_Plan_content_hash_tag) has |= 1u << tag;
         switch (tag) {
         case veer_v1_Plan_schema_version_tag: st = get_u32(&r, &s, 0, &in->schema_version); break;
         case veer_v1_Plan_library_version_tag: st = get_u32(&r, &s, 0, &in->library_version); break;
@@ -453,11 +453,13 @@ veer_status veer__wire_plan_read(const uint8_t *bytes, size_t size, veer__plan_m
         }
     }
     if (st != VEER_OK) return st;
-    in->drive = has[veer_v1_Plan_drive_tag] ? &msgs->drive : NULL;
-    in->limits = has[veer_v1_Plan_limits_tag] ? &msgs->limits : NULL;
-    in->has_route = has[veer_v1_Plan_route_tag];
-    in->options = has[veer_v1_Plan_options_tag] ? &msgs->options : NULL;
-    in->has_profile = has[veer_v1_Plan_profile_tag];
+#define HAS_(tag) (has >> (tag) & 1u)
+    in->drive = HAS_(veer_v1_Plan_drive_tag) ? &msgs->drive : NULL;
+    in->limits = HAS_(veer_v1_Plan_limits_tag) ? &msgs->limits : NULL;
+    in->has_route = (int)HAS_(veer_v1_Plan_route_tag);
+    in->options = HAS_(veer_v1_Plan_options_tag) ? &msgs->options : NULL;
+    in->has_profile = (int)HAS_(veer_v1_Plan_profile_tag);
+#undef HAS_
     veer_sha256 c;
     veer__sha256_init(&c);
     pb_ostream_t os = veer__wire_hash_stream(&c);

@@ -242,13 +242,17 @@ void veer__wire_plan_in_from_msg(veer_v1_Plan *m, veer__plan_in *in);
 
 /* ---- wire_cart.c: Plan bytes -> veer__plan_in, no veer_v1_Plan ------------ */
 
-/* The submessages the cart decodes with nanopb (drive, limits, options)
- * and the head of the route rebuilt from the bytes; the profile, the
- * largest part, and the route's legs and waypoints stay in the bytes. */
+/* The submessages the cart decodes with nanopb (drive, limits, options),
+ * the veer__plan_in pointing at them and the head of the route rebuilt
+ * from the bytes; the profile, the largest part, and the route's legs and
+ * waypoints stay in the bytes. The load reads in until it lays the grid
+ * over them, having kept what it reads of in after that (its profile,
+ * duration and hash verdict). */
 typedef struct {
     veer_v1_DriveDef drive;
     veer_v1_Limits limits;
     veer_v1_PlanOptions options;
+    veer__plan_in in;      /* veer__wire_load_pb_cap reads the bytes into it */
     veer__route_buf route; /* the route rebuilt from the bytes, read by the path builder only */
 } veer__plan_msgs;
 /* Scratch of a plan load that does not keep its route: veer__plan_msgs,
@@ -273,7 +277,8 @@ veer_status veer__wire_plan_read(const uint8_t *bytes, size_t size, veer__plan_m
  * plan's head has been loaded from them. */
 size_t veer__wire_plan_grid_at(const veer__plan_cap *cap);
 
-/* veer__wire_plan_load from in (which outlives the call; see above). */
+/* veer__wire_plan_load from in, which must stay valid until the load lays
+ * the grid (it may lie in work's scratch, in veer__plan_msgs). */
 veer_status veer__wire_plan_load_in(const veer__plan_in *in, void *work, size_t work_size, const veer__plan_cap *cap,
                                     veer_plan **out, veer_diag *diag);
 

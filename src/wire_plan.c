@@ -357,17 +357,24 @@ static veer_status load_head(const veer__plan_in *m, veer_plan *plan, veer__plan
     return VEER_OK;
 }
 
-static veer_status check_tail(const veer__plan_in *m, const veer_plan *plan, int check_hash, veer_diag *diag) {
-    if (!check_hash) return VEER_OK;
+/* 1 if m's content hash matches its contents. */
+static int hash_matches(const veer__plan_in *m) {
+    uint8_t h[32];
+    if (m->content_hash_size != 32) return 0;
+    int hashed = m->msg ? veer__wire_plan_hash(m->msg, h) == VEER_OK : m->digest_ok;
+    return hashed && memcmp(m->msg ? h : m->digest, m->content_hash, 32) == 0;
+}
+
+/* The rebuilt plan against its message: the duration it said and whether
+ * its content hash matched (hash_matches). */
+static veer_status check_tail(double said, int hash_ok, const veer_plan *plan, veer_diag *diag) {
     double d = plan->duration;
-    if (!(fabs(m->duration - d) <= 1e-6 * (1.0 + d)))
+    if (!(fabs(said - d) <= 1e-6 * (1.0 + d)))
         return veer__fail_plain(diag, VEER_ERR_DECODE,
                                 "plan: it says it lasts %.6f s, but rebuilds to %.6f s (altered, or made by a library "
                                 "that builds paths differently)",
-                                m->duration, d);
-    uint8_t h[32];
-    int hashed = m->msg ? veer__wire_plan_hash(m->msg, h) == VEER_OK : m->digest_ok;
-    if (m->content_hash_size != 32 || !hashed || memcmp(m->msg ? h : m->digest, m->content_hash, 32) != 0)
+                                said, d);
+    if (!hash_ok)
         return veer__fail_plain(diag, VEER_ERR_DECODE,
                                 "plan: the content hash does not match its contents (altered or damaged)");
     return VEER_OK;
@@ -376,6 +383,24 @@ static veer_status check_tail(const veer__plan_in *m, const veer_plan *plan, int
 /* A plan beyond the workspace's capacity: VEER_ERR_CAPACITY, saying which. */
 static veer_status over_cap(const char *what, int n, int cap, veer_diag *diag) {
     return veer__fail_plain(diag, VEER_ERR_CAPACITY, "plan: %d %s, this cart takes at most %d", n, what, cap);
+}
+
+/* The rest of a load, from the grid on (n grid points at grid). The grid
+ * overwrites the scratch, where the cart's m lies (veer__plan_msgs): what
+ * is read of m after that is kept here first. A function of its own: the
+ * copy is not on the stack while the head is loaded. */
+static VEER__NOINLINE veer_status load_grid(const veer__plan_in *m, veer_plan *plan, int n, char *grid,
+                                            double from[VEER_MAX_MODULES], int check_hash, veer_diag *diag) {
+    veer__profile_in pr = m->profile;
+    double said = m->duration;
+    int hash_ok = check_hash && hash_matches(m);
+    veer__plan_lay_grid(plan, n, grid, 0);
+    veer_status st = parse_profile(&pr, &plan->path, plan->s, plan->x, plan->segs, &n, diag);
+    plan->x_start = pr.start_sdot * pr.start_sdot;
+    if (st == VEER_OK) st = jerk_windows(&pr, plan, diag);
+    if (st == VEER_OK) st = timeline(plan, from, diag);
+    if (st == VEER_OK && check_hash) st = check_tail(said, hash_ok, plan, diag);
+    return st;
 }
 
 static veer_status load(const veer__plan_in *m, void *work, size_t work_size, const veer__plan_cap *cap, veer_plan **out,
@@ -389,10 +414,10 @@ static veer_status load(const veer__plan_in *m, void *work, size_t work_size, co
     caps.route = cap->route;
     veer_plan *plan = (veer_plan *)work;
     char *grid = (char *)work + veer__plan_block_bytes(caps);
-    /* The cart's submessages may lie where the grid goes (veer__wire_plan_read): m's drive, limits, route
-     * and options are read by load_head only, and the route's head is rebuilt there too, behind them,
-     * with the legs and waypoints of a route the plan does not keep behind that (need counts the room;
-     * more than cap's legs or waypoints are refused as they are read). */
+    /* The cart's m and its submessages may lie where the grid goes (veer__plan_msgs): m's drive, limits,
+     * route and options are read by load_head only, and the route's head is rebuilt there too, with the
+     * legs and waypoints of a route the plan does not keep behind it (need counts the room; more than
+     * cap's legs or waypoints are refused as they are read); load_grid keeps the rest of m. */
     veer__route_buf *rb = &((veer__plan_msgs *)grid)->route;
     rb->legs = (veer_leg *)(grid + VEER__ALIGN16(sizeof(veer__plan_msgs)));
     rb->waypoints = (veer_waypoint *)((char *)rb->legs + VEER__ALIGN16((size_t)cap->legs * sizeof(veer_leg)));
@@ -408,16 +433,9 @@ static veer_status load(const veer__plan_in *m, void *work, size_t work_size, co
                               "angles)");
     if (st == VEER_OK) st = parse_profile(&m->profile, &plan->path, NULL, NULL, NULL, &n, diag);
     if (st == VEER_OK && n > cap->knots) st = over_cap("knots", n, cap->knots, diag);
-    if (st != VEER_OK) return st;
-    veer__plan_lay_grid(plan, n, grid, 0);
-    if ((st = parse_profile(&m->profile, &plan->path, plan->s, plan->x, plan->segs, &n, diag))) return st;
-    plan->x_start = m->profile.start_sdot * m->profile.start_sdot;
-    if ((st = jerk_windows(&m->profile, plan, diag))) return st;
-    if ((st = timeline(plan, from, diag))) return st;
-    if ((st = check_tail(m, plan, check_hash, diag))) return st;
-    plan->alloc_size = 0; /* lives in the caller's workspace */
-    *out = plan;
-    return VEER_OK;
+    if (st == VEER_OK) st = load_grid(m, plan, n, grid, from, check_hash, diag);
+    if (st == VEER_OK) *out = plan; /* alloc_size 0 (load_head): it lives in the caller's workspace */
+    return st;
 }
 
 void veer__wire_plan_in_from_msg(veer_v1_Plan *m, veer__plan_in *in) {
@@ -492,13 +510,8 @@ veer_status veer__wire_plan_decode_heap(veer_v1_Plan *msg, veer_plan **out, veer
         veer__free(plan, bytes);
         return veer__fail_plain(diag, VEER_ERR_NO_MEMORY, "out of memory");
     }
-    veer__plan_lay_grid(plan, n, grid, 0);
+    st = load_grid(m, plan, n, grid, from, 1, diag);
     plan->grid_bytes = gb;
-    st = parse_profile(&m->profile, &plan->path, plan->s, plan->x, plan->segs, &n, diag);
-    plan->x_start = m->profile.start_sdot * m->profile.start_sdot;
-    if (st == VEER_OK) st = jerk_windows(&m->profile, plan, diag);
-    if (st == VEER_OK) st = timeline(plan, from, diag);
-    if (st == VEER_OK) st = check_tail(m, plan, 1, diag);
     if (st != VEER_OK) {
         veer_plan_destroy(plan);
         return st;

@@ -13,6 +13,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include "wire_internal.h"
+#include "diag_text.h"
 #include "random_case.h"
 #include "kestrel_demo.h"
 
@@ -313,7 +314,7 @@ Test(wire_cart, an_altered_content_hash_is_refused) {
         const veer_plan *p;
         veer_diag d;
         cr_assert_eq(cart_load(b.bytes, b.size, NULL, w2, &p, &d), VEER_ERR_DECODE);
-        cr_assert(strstr(d.message, "content hash") != NULL, "%s", d.message);
+        cr_assert(diag_says(&d, "content hash"), "%s", d.message);
         b.bytes[i] ^= 0x10;
     }
     /* a hash of 31 bytes: refused; of 33: over the field's capacity */
@@ -412,7 +413,7 @@ Test(wire_cart, equivalent_phrasings_are_read_alike) {
         } else {
             cr_assert_eq(full_load(o, n, NULL, w1, &p, &d), VEER_OK, "%s", d.message);
             cr_assert_eq(cart_load(o, n, NULL, w2, &p, &d), VEER_ERR_DECODE);
-            cr_assert(strstr(d.message, "route") && strstr(d.message, "pieces"), "%s", d.message);
+            cr_assert(diag_says(&d, "route") && diag_says(&d, "pieces"), "%s", d.message);
         }
     }
     /* 5. what the cart's reader refuses and the decoder takes: jerk_window in two packed fields */
@@ -440,7 +441,7 @@ Test(wire_cart, equivalent_phrasings_are_read_alike) {
     n += put(o + n, b.bytes + f[prof].end, b.size - f[prof].end);
     cr_assert_eq(full_load(o, n, NULL, w1, &p, &d), VEER_OK, "%s", d.message);
     cr_assert_eq(cart_load(o, n, NULL, w2, &p, &d), VEER_ERR_DECODE);
-    cr_assert(strstr(d.message, "jerk_window") && strstr(d.message, "pieces"), "%s", d.message);
+    cr_assert(diag_says(&d, "jerk_window") && diag_says(&d, "pieces"), "%s", d.message);
     free(o);
     free(b.bytes);
     free(w1);
@@ -535,11 +536,57 @@ Test(wire_cart, workspace_needs_no_decoded_message) {
     void *w = aligned_alloc(16, (ws + 15) / 16 * 16);
     const veer_plan *p;
     cr_assert_eq(veer__wire_load_pb_cap(b.bytes, b.size, w, ws - 1, &cap, &p, &d), VEER_ERR_VALUE);
-    cr_assert(strstr(d.message, "workspace") && !p, "%s", d.message);
+    cr_assert(diag_says(&d, "workspace") && !p, "%s", d.message);
     cr_assert_eq(veer__wire_load_pb_cap(b.bytes, b.size, w, ws, &cap, &p, &d), VEER_OK, "%s", d.message);
     cr_log_info("wire_cart: the demo (%zu B, %u knots) needs %zu B of workspace (with a decoded message %zu B)",
                 b.size, need.knots, ws,
                 VEER__ALIGN16(veer__wire_plan_bytes_for(&cap)) + VEER__ALIGN16(sizeof(veer_v1_Plan)));
     free(w);
     free(b.bytes);
+}
+
+/* The reader's veer__plan_in lies in the workspace's scratch, beside the
+ * submessages (veer__plan_msgs), and the load lays the grid over it: a
+ * workspace of veer__wire_work_bytes_for a cap holds the largest plan of
+ * that cap, whether the grid (the demo) or the scratch (the demo at 16 grid
+ * points: few knots) is the larger part of it. The load writes nothing past
+ * the workspace, and the plan is the decoded-message path's, bit for bit. */
+Test(wire_cart, workspace_for_a_cap_holds_its_largest_plan) {
+    veer_drive_def dr;
+    veer_limits l;
+    veer_route r;
+    cr_assert_eq(kestrel_demo(&dr, &l, &r), VEER_OK);
+    for (int few = 0; few < 2; few++) {
+        veer_plan_options o = veer_default_plan_options();
+        if (few) o.grid_points = 16;
+        veer_plan *made = NULL;
+        veer_diag d;
+        cr_assert_eq(veer_plan_create(&dr, &l, &r, &o, &made, &d), VEER_OK, "%s", d.message);
+        blob b = encode(made);
+        veer_plan_destroy(made);
+        veer_plan_needs need;
+        cr_assert_eq(veer_plan_needs_pb(b.bytes, b.size, &need, &d), VEER_OK);
+        veer__plan_cap cap = {(int)need.knots, (int)need.waypoints, (int)need.legs, (int)need.modules, 0, 1};
+        size_t grid = VEER__GRID_BYTES(cap.knots, cap.modules, 0),
+               scratch = VEER__PLAN_SCRATCH_BYTES(cap.legs, cap.waypoints);
+        cr_assert(few ? grid < scratch : grid > scratch, "%u knots: grid %zu B, scratch %zu B", need.knots, grid,
+                  scratch);
+        size_t ws = veer__wire_work_bytes_for(&cap), guard = 256;
+        cr_assert_geq(ws, veer__wire_plan_grid_at(&cap) + scratch);
+        unsigned char *w = aligned_alloc(16, (ws + guard + 15) / 16 * 16);
+        memset(w, 0xA5, ws + guard);
+        const veer_plan *p = NULL, *f = NULL;
+        cr_assert_eq(veer__wire_load_pb_cap(b.bytes, b.size, w, ws, &cap, &p, &d), VEER_OK, "%s", d.message);
+        size_t touched = 0;
+        for (size_t i = ws; i < ws + guard; i++) touched += w[i] != 0xA5;
+        cr_assert_eq(touched, 0u, "%zu bytes written past the %zu-byte workspace", touched, ws);
+        void *wf = aligned_alloc(16, work_size());
+        cr_assert_eq(full_load(b.bytes, b.size, &cap, wf, &f, &d), VEER_OK, "%s", d.message);
+        same_plan(f, p, few ? "few knots" : "the demo");
+        cr_log_info("wire_cart: %u knots, %u waypoints, %u legs: workspace %zu B (grid %zu B, scratch %zu B)",
+                    need.knots, need.waypoints, need.legs, ws, grid, scratch);
+        free(wf);
+        free(w);
+        free(b.bytes);
+    }
 }
