@@ -65,20 +65,19 @@ veer_status veer__plan_options_check(const veer_plan_options *o, veer_diag *diag
     return VEER_OK;
 }
 
-veer__plan_caps veer__plan_caps_for(int waypoints, int legs, int modules) {
+veer__plan_caps veer__plan_caps_for(int waypoints, int legs) {
     veer__plan_caps c;
     veer__path_caps(waypoints, legs, &c.pieces, &c.segments);
     /* clamped as veer__path_caps clamps: a count past the maximum is refused
      * later (veer__path_build, the drive check), after a block of the
      * maximum's size, never one sized by a scrambled count */
     c.legs = legs < 0 ? 0 : legs > VEER_MAX_LEGS ? VEER_MAX_LEGS : legs;
-    c.modules = modules < 0 ? 0 : modules > VEER_MAX_MODULES ? VEER_MAX_MODULES : modules;
     c.route = 1;
     return c;
 }
 
 size_t veer__plan_block_bytes(veer__plan_caps c) {
-    return VEER__PLAN_BLOCK_BYTES(c.pieces, c.segments, c.legs, c.modules, c.route);
+    return VEER__PLAN_BLOCK_BYTES(c.pieces, c.segments, c.legs, c.route);
 }
 
 void veer__plan_attach(veer_plan *plan, veer__plan_caps c) {
@@ -99,12 +98,6 @@ void veer__plan_attach(veer_plan *plan, veer__plan_caps c) {
     plan->segment_count = 0;
     plan->legs = (veer_leg_summary *)at;
     at += VEER__ALIGN16((size_t)c.legs * sizeof *plan->legs);
-    double *steer = (double *)at;
-    for (int j = 0; j < c.segments; j++) {
-        plan->segs[j].steer_from = steer + (size_t)(2 * j) * (size_t)c.modules;
-        plan->segs[j].steer_to = steer + (size_t)(2 * j + 1) * (size_t)c.modules;
-    }
-    at += VEER__ALIGN16((size_t)c.segments * 2 * (size_t)c.modules * sizeof(double));
     plan->route = c.route ? (veer_route *)at : NULL;
 }
 
@@ -1046,7 +1039,7 @@ veer_status veer__plan_create_with(const veer_drive_def *drive, const veer_limit
                               "waypoint %d: arrival must be a time >= 0 s, got %g", w, wp->arrival);
     }
     /* one block: the plan and its path and segment arrays, sized for the route */
-    veer__plan_caps caps = veer__plan_caps_for(route->waypoint_count, route->leg_count, M);
+    veer__plan_caps caps = veer__plan_caps_for(route->waypoint_count, route->leg_count);
     size_t bytes = veer__plan_block_bytes(caps);
     veer_plan *plan = veer__calloc(1, bytes);
     if (!plan) return veer__fail(diag, VEER_ERR_NO_MEMORY, -1, -1, -1, -1.0, none, "out of memory");

@@ -188,8 +188,6 @@ typedef struct {
                                      grid point k0 + coast_k (0: no such hold) */
     double pace_speed, pace_yaw;  /* timing.c's caps pacing the segment to a timed arrival: body speed (m/s)
                                      and yaw rate (rad/s); VEER_UNLIMITED: none */
-    double *steer_from;           /* [modules] module angles when the re-steer phase starts (in the plan's block) */
-    double *steer_to;             /* [modules] ... and when it ends (= steer at k0) */
 } veer_plan_segment;
 
 struct veer_plan {
@@ -215,28 +213,28 @@ struct veer_plan {
     int leg_count;
     veer_leg_summary *legs;       /* [leg_cap], in the plan's block */
     double x_start;               /* sdot^2 at the start (re-planning on the move), 0 at rest */
+    double start_steer[VEER_MAX_MODULES]; /* module angles at the start, where the first re-steer phase begins
+                                             (the route's start_steer, or 0; a fixed wheel's own angle) */
     double duration;
 };
 
 /* A plan's block: the struct, then its path's pieces and segments, its own
- * segments, its leg summaries, its segments' steer angles (2 x modules
- * doubles each) and, when `route`, its route, each at a 16-byte offset, sized for piece_cap pieces,
- * segment_cap segments (VEER_PATH_*_FOR the route: veer__path_caps),
- * `legs` legs and `modules` modules. The struct does not own its arrays
- * apart from the block, so a plan is never copied by value. */
+ * segments, its leg summaries and, when `route`, its route, each at a
+ * 16-byte offset, sized for piece_cap pieces, segment_cap segments
+ * (VEER_PATH_*_FOR the route: veer__path_caps) and `legs` legs. The struct
+ * does not own its arrays apart from the block, so a plan is never copied
+ * by value. */
 typedef struct {
-    int pieces, segments, legs, modules, route;
+    int pieces, segments, legs, route;
 } veer__plan_caps;
-#define VEER__PLAN_BLOCK_BYTES(pieces, segments, legs, modules, route)                                             \
+#define VEER__PLAN_BLOCK_BYTES(pieces, segments, legs, route)                                                      \
     (VEER__ALIGN16(sizeof(veer_plan)) + VEER__ALIGN16((size_t)(pieces) * sizeof(veer_path_piece)) +             \
      VEER__ALIGN16((size_t)(segments) * sizeof(veer_path_segment)) +                                            \
      VEER__ALIGN16((size_t)(segments) * sizeof(veer_plan_segment)) +                                            \
-     VEER__ALIGN16((size_t)(legs) * sizeof(veer_leg_summary)) +                                                 \
-     VEER__ALIGN16((size_t)(segments) * 2 * (size_t)(modules) * sizeof(double)) +                              \
-     ((route) ? VEER__ALIGN16(sizeof(veer_route)) : 0))
-/* The caps of a plan for a route of that many waypoints and legs on that
- * many modules, keeping its route; and a block's size. */
-veer__plan_caps veer__plan_caps_for(int waypoints, int legs, int modules);
+     VEER__ALIGN16((size_t)(legs) * sizeof(veer_leg_summary)) + ((route) ? VEER__ALIGN16(sizeof(veer_route)) : 0))
+/* The caps of a plan for a route of that many waypoints and legs, keeping
+ * its route; and a block's size. */
+veer__plan_caps veer__plan_caps_for(int waypoints, int legs);
 size_t veer__plan_block_bytes(veer__plan_caps caps);
 /* Points the arrays of plan (at the start of a block of at least
  * veer__plan_block_bytes(caps) bytes, aligned for double) into the block
@@ -262,6 +260,15 @@ static inline double veer__fixed_steer(const veer_drive_def *drive, int i) {
 static inline double veer__plan_steer(const veer_plan *plan, int k, int i) {
     return plan->steer ? (double)plan->steer[(size_t)k * (size_t)plan->module_count + (size_t)i]
                        : veer__fixed_steer(&plan->drive, i);
+}
+/* Module i's angle when segment j's re-steer phase begins: where the last
+ * segment's motion left it, or the start; and when it ends: where the
+ * segment's motion starts (steer.c keeps both on the grid). */
+static inline double veer__resteer_from(const veer_plan *plan, int j, int i) {
+    return j > 0 ? veer__plan_steer(plan, plan->segs[j - 1].k1, i) : plan->start_steer[i];
+}
+static inline double veer__resteer_to(const veer_plan *plan, int j, int i) {
+    return veer__plan_steer(plan, plan->segs[j].k0, i);
 }
 
 /* ---- plan.c: segment solves, shared with timing.c ---------------------- */

@@ -235,7 +235,7 @@ static void sample_at(const veer_plan *plan, double t, veer_sample *o) {
         o->s = s;
         fill_body(o, &pk, 0.0, 0.0);
         for (int i = 0; i < plan->module_count; i++) {
-            double a = sg->steer_from[i], b = sg->steer_to[i];
+            double a = veer__resteer_from(plan, j, i), b = veer__resteer_to(plan, j, i);
             o->modules[i].steer = a + (b - a) * f;
             o->modules[i].steer_rate = T > 0.0 ? (b - a) / T : 0.0;
         }

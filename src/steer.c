@@ -92,12 +92,11 @@ veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, cons
     int M = plan->module_count;
     double t_max = 0.0;
     for (int i = 0; i < M; i++) {
-        sg->steer_from[i] = from[i];
-        sg->steer_to[i] = from[i];
-        if (!plan->steered) { /* fixed wheels report the direction they push (drive.h) */
-            sg->steer_from[i] = sg->steer_to[i] = veer__fixed_steer(&plan->drive, i); /* no grid array */
+        if (!plan->steered) { /* fixed wheels report the direction they push (drive.h); no grid array */
+            if (j == 0) plan->start_steer[i] = veer__fixed_steer(&plan->drive, i);
             continue;
         }
+        if (j == 0) plan->start_steer[i] = from[i];
         const veer_module_limits *ml = &plan->limits.modules[i];
         /* The direction the module must face when the motion starts: at the
          * first grid point where it moves (it may stand at the very start;
@@ -111,7 +110,6 @@ veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, cons
         }
         if (!moves) { /* standing or out of service: the angle stays, as the grid keeps it */
             float a = keep(from[i], ml);
-            sg->steer_to[i] = (double)a;
             for (int k = sg->k0; k <= sg->k1; k++) plan->steer[(size_t)k * (size_t)M + (size_t)i] = a;
             continue;
         }
@@ -126,7 +124,7 @@ veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, cons
         double chosen = 0.0;
         for (int c = 0; c < 9 && !ok; c++) { /* follow refuses a candidate outside the range at k0 */
             int w = sg->k0;
-            /* kept as a float: steer_to is the grid's angle at k0 exactly */
+            /* kept as a float: the grid keeps it at k0 exactly, where the re-steer phase ends */
             double a = (double)keep(base + (double)((c + 1) / 2 * (c & 1 ? side : -side)) * VEER_PI, ml);
             if (follow(plan, j, i, xi, a, &w)) {
                 ok = 1;
@@ -144,7 +142,6 @@ veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, cons
                               "add a stop so it can re-steer (%s)",
                               plan->path.segments[j].leg, i, ml->steer_min, ml->steer_max, plan->s[where], name);
         }
-        sg->steer_to[i] = chosen;
         if (isfinite(ml->steer_rate)) {
             double t = fabs(chosen - from[i]) / ml->steer_rate;
             if (t > t_max) t_max = t;

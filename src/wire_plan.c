@@ -113,7 +113,7 @@ veer__plan_cap veer__plan_cap_max(void) {
 }
 
 size_t veer__wire_plan_bytes_for(const veer__plan_cap *cap) {
-    veer__plan_caps c = veer__plan_caps_for(cap->waypoints, cap->legs, cap->modules);
+    veer__plan_caps c = veer__plan_caps_for(cap->waypoints, cap->legs);
     size_t grid = VEER__GRID_BYTES(cap->knots, cap->steered ? cap->modules : 0, 0);
     /* the grid area holds the scratch of the load first (load): the submessages, the route's head and,
      * when the plan does not keep its route, its legs and waypoints */
@@ -410,7 +410,7 @@ static veer_status load(const veer__plan_in *m, void *work, size_t work_size, co
     size_t need = veer__wire_plan_bytes_for(cap);
     if (!work || work_size < need || ((uintptr_t)work % sizeof(double)) != 0)
         return veer__fail_plain(diag, VEER_ERR_VALUE, "plan workspace: needs %zu bytes aligned for double", need);
-    veer__plan_caps caps = veer__plan_caps_for(cap->waypoints, cap->legs, cap->modules);
+    veer__plan_caps caps = veer__plan_caps_for(cap->waypoints, cap->legs);
     caps.route = cap->route;
     veer_plan *plan = (veer_plan *)work;
     char *grid = (char *)work + veer__plan_block_bytes(caps);
@@ -462,7 +462,7 @@ void veer__wire_plan_in_from_msg(veer_v1_Plan *m, veer__plan_in *in) {
 }
 
 size_t veer__wire_plan_grid_at(const veer__plan_cap *cap) {
-    veer__plan_caps c = veer__plan_caps_for(cap->waypoints, cap->legs, cap->modules);
+    veer__plan_caps c = veer__plan_caps_for(cap->waypoints, cap->legs);
     c.route = cap->route;
     return veer__plan_block_bytes(c);
 }
@@ -488,8 +488,7 @@ veer_status veer__wire_plan_decode_heap(veer_v1_Plan *msg, veer_plan **out, veer
     veer__wire_plan_in_from_msg(msg, &in);
     /* one block sized for the message's route (counts beyond the maxima fail in load_head, the plan's
      * route having room for the maxima) */
-    veer__plan_caps caps = veer__plan_caps_for((int)m->route.waypoints_count, (int)m->route.legs_count,
-                                               VEER_MAX_MODULES);
+    veer__plan_caps caps = veer__plan_caps_for((int)m->route.waypoints_count, (int)m->route.legs_count);
     size_t bytes = veer__plan_block_bytes(caps);
     veer_plan *plan = veer__calloc(1, bytes);
     if (!plan) return veer__fail_plain(diag, VEER_ERR_NO_MEMORY, "out of memory");

@@ -189,8 +189,9 @@ Test(plan, resteer_phase_at_a_stop) {
 
 /* Every sample's steer angle within the steer range (the 1e-9 rad the
  * planner's own check allows), and the angles join at every rest: a
- * segment's re-steer phase starts at the angle the last one stopped at and
- * ends at the angle its motion starts at, exactly (the grid keeps floats). */
+ * segment's re-steer phase starts at the angle the last one's motion
+ * stopped at and ends at the angle its motion starts at, exactly (the grid
+ * keeps floats), as the samples on either side show. */
 static void check_steer_joins(const veer_plan *p, const veer_limits *l, int M) {
     for (double t = 0.0; t <= veer_plan_duration(p); t += 0.001) {
         veer_sample s;
@@ -200,14 +201,20 @@ static void check_steer_joins(const veer_plan *p, const veer_limits *l, int M) {
                           s.modules[i].steer >= l->modules[i].steer_min - 1e-9,
                       "module %d at t=%g: %.17g rad", i, t, s.modules[i].steer);
     }
-    for (int j = 0; j < p->segment_count; j++)
+    for (int j = 1; j < p->segment_count; j++) {
+        const veer_plan_segment *sg = &p->segs[j];
+        if (!(sg->resteer_time > 0.0)) continue;
+        veer_sample stopped, begins, ends, moves;
+        cr_assert_eq(veer_plan_sample(p, p->segs[j - 1].t_move + p->segs[j - 1].move_time, &stopped), VEER_OK);
+        cr_assert_eq(veer_plan_sample(p, sg->t_resteer, &begins), VEER_OK);
+        cr_assert_eq(veer_plan_sample(p, sg->t_move - 1e-12 * sg->resteer_time, &ends), VEER_OK);
+        cr_assert_eq(veer_plan_sample(p, sg->t_move, &moves), VEER_OK);
+        cr_assert_eq(begins.phase, VEER_PHASE_RESTEER, "segment %d", j);
         for (int i = 0; i < M; i++) {
-            const veer_plan_segment *sg = &p->segs[j];
-            cr_assert_eq(sg->steer_to[i], veer__plan_steer(p, sg->k0, i), "segment %d module %d", j, i);
-            if (j > 0)
-                cr_assert_eq(sg->steer_from[i], veer__plan_steer(p, p->segs[j - 1].k1, i), "segment %d module %d", j,
-                             i);
+            cr_assert_eq(begins.modules[i].steer, stopped.modules[i].steer, "segment %d module %d", j, i);
+            cr_assert_float_eq(ends.modules[i].steer, moves.modules[i].steer, 1e-9, "segment %d module %d", j, i);
         }
+    }
 }
 
 /* A steered cart whose modules turn through [-pi/2, pi/2] only, driving
@@ -243,7 +250,7 @@ Test(plan, sideways_rest_at_the_steer_range_end) {
     for (int i = 0; i < 4; i++) {
         cr_assert(s.modules[i].steer <= PI / 2.0 && s.modules[i].steer > PI / 2.0 - 1e-6, "module %d: %.17g", i,
                   s.modules[i].steer);
-        cr_assert_eq(p->segs[1].steer_to[i], p->segs[1].steer_from[i]); /* on sideways: no re-steer */
+        cr_assert_eq(veer__resteer_to(p, 1, i), veer__resteer_from(p, 1, i)); /* on sideways: no re-steer */
     }
     cr_assert_eq(p->segs[1].resteer_time, 0.0);
     cr_assert_float_eq(p->segs[2].resteer_time, (PI / 2.0) / 2.0, 1e-7); /* to 0 at 2 rad/s */
