@@ -41,25 +41,19 @@ static void polygon_init(veer_polygon *pg, int sides, double radius) {
     pg->faces = sides / 2 < VEER_MAX_POLYGON_FACES ? sides / 2 : VEER_MAX_POLYGON_FACES; /* options are checked; never overflow */
     if (pg->faces < 1) pg->faces = 1;
     if (sides < 2) sides = 2;
+    pg->half = (pg->faces + 1) / 2;
     /* Faces of the polygon inscribed in the circle of radius `radius`, with a
-     * vertex on the tangent: normals at odd multiples of pi / sides. */
-    for (int j = 0; j < pg->faces && j < VEER_MAX_POLYGON_FACES; j++) {
+     * vertex on the tangent: normals at odd multiples of pi / sides, over
+     * (0, pi). Face faces - 1 - j is at pi minus face j's angle: cos
+     * negated, sin the same, so only the first half is kept (polygon_rows
+     * mirrors it). */
+    for (int j = 0; j < pg->half && j < VEER_MAX_POLYGON_FACES / 2; j++) {
         double ang = (2 * j + 1) * VEER_PI / sides;
         pg->c[j] = cos(ang);
         pg->s[j] = sin(ang);
-        /* the face joins vertices j and j + 1, at heights r sin(2 pi j / sides) ... */
-        double h0 = sin(2.0 * VEER_PI * j / sides), h1 = sin(2.0 * VEER_PI * (j + 1) / sides);
-        double h = h0 < h1 ? h0 : h1;
-        pg->h[j] = h < 1e-12 ? 0.0 : h; /* sin(pi) is not exactly 0 */
     }
     pg->r = radius * cos(VEER_PI / sides);
     pg->radius = radius;
-    /* h rises to its peak and falls again (checked, not assumed): then the
-     * faces low enough to bind are a run at each end (polygon_rows) */
-    int j = 0;
-    while (j + 1 < pg->faces && pg->h[j] <= pg->h[j + 1]) j++;
-    while (j + 1 < pg->faces && pg->h[j] >= pg->h[j + 1]) j++;
-    pg->ends = j + 1 >= pg->faces;
 }
 
 void veer__row_ctx_init(veer_row_ctx *ctx, const veer_drive_def *drive, const veer_limits *limits,
@@ -174,25 +168,31 @@ VEER_ROWS_INLINE void polygon_rows(const veer_polygon *pg, double scale, const d
     double side = an_x >= 0.0 ? 1.0 : -1.0;
     double an_max = fabs(an_x) * xmax / (pg->radius * scale); /* inf * 0 is NaN: then every face is kept */
     double top = an_max * (1.0 + 1e-9);
-    if (!pg->ends) {
-        for (int j = 0; j < pg->faces; j++) {
-            if (pg->h[j] > top) continue;
-            double ca = pg->c[j], sa = side * pg->s[j];
-            put(o, ca * at_u, ca * at_x + sa * an_x, pg->r * scale, id);
-        }
-        return;
+    double an = side * an_x; /* (side * s) * an_x = s * an, bit for bit (side is +-1) */
+    double rc = pg->r * scale;
+    /* Face j joins vertices j and j + 1, at heights sin(2 pi j / sides) and
+     * sin(2 pi (j + 1) / sides) on the unit circle; h, the lower of the two,
+     * rises to the middle face and falls again, mirrored. A face can bind
+     * only if h <= top, so the faces kept are a run [0, a) and its mirror
+     * [faces - a, faces), or all of them once the run passes the middle.
+     * For j < half the lower vertex is vertex j, at angle ang_j - pi / sides:
+     * h = sin(ang_j) cos(pi / sides) - cos(ang_j) sin(pi / sides), with the
+     * cos and sin of pi / sides those of face 0; face 0's h is 0 exactly. */
+    const double c0 = pg->c[0], s0 = pg->s[0];
+    int a = 0;
+    double h = 0.0;
+    while (!(h > top)) { /* top is NaN: every face is kept */
+        double ca = pg->c[a];
+        put(o, ca * at_u, ca * at_x + pg->s[a] * an, rc, id);
+        if (++a == pg->half) break;
+        h = pg->s[a] * c0 - pg->c[a] * s0;
     }
-    /* the faces kept: [0, a) and [b, faces), in order */
-    int a = 0, b = pg->faces;
-    while (a < b && !(pg->h[a] > top)) {
-        double ca = pg->c[a], sa = side * pg->s[a];
-        put(o, ca * at_u, ca * at_x + sa * an_x, pg->r * scale, id);
-        a++;
-    }
-    while (b > a && !(pg->h[b - 1] > top)) b--;
-    for (int j = b; j < pg->faces; j++) {
-        double ca = pg->c[j], sa = side * pg->s[j];
-        put(o, ca * at_u, ca * at_x + sa * an_x, pg->r * scale, id);
+    /* the mirrored run, faces - a .. faces - 1 in order, from the stored
+     * faces a - 1 .. 0; past the middle, the faces not yet made */
+    int m = pg->faces - pg->half;
+    for (int k = (a < m ? a : m) - 1; k >= 0; k--) {
+        double ca = -pg->c[k];
+        put(o, ca * at_u, ca * at_x + pg->s[k] * an, rc, id);
     }
 }
 

@@ -36,14 +36,16 @@ void veer__module_velocity(const veer_drive_def *drive, int i, const veer_point_
 #define VEER_MAX_POINT_ROWS (VEER_MAX_POLYGON_FACES + 2 + VEER_MAX_MODULES * (4 + VEER_MAX_POLYGON_FACES))
 #define VEER_GRAVITY 9.80665 /* m/s^2, standard gravity (3rd CGPM, 1901) */
 /* The faces of a polygon inscribed in a circle that can bind (see
- * constraints.c): half of them, with their lowest heights. */
+ * constraints.c): the sides / 2 faces on one side of the tangent, of which
+ * only the first half is stored. The set is mirror-symmetric about the
+ * normal: face faces - 1 - j is face j with c negated (same s, same
+ * height), and polygon_rows makes the mirrored faces from the stored ones. */
 typedef struct {
-    int faces;
-    double c[VEER_MAX_POLYGON_FACES], s[VEER_MAX_POLYGON_FACES];
-    double h[VEER_MAX_POLYGON_FACES]; /* lowest normal component on each face, unit circle */
-    double r;                         /* radius * cos(pi / sides) */
+    int faces;                                     /* sides / 2, on one side of the tangent */
+    int half;                                      /* faces stored: (faces + 1) / 2 */
+    double c[VEER_MAX_POLYGON_FACES / 2], s[VEER_MAX_POLYGON_FACES / 2]; /* normals of faces 0 .. half - 1 */
+    double r;                                      /* radius * cos(pi / sides) */
     double radius;
-    int ends; /* 1: h rises, then falls: the faces that can bind are a run at each end */
 } veer_polygon;
 
 typedef struct {
