@@ -142,7 +142,7 @@ fi
     echo "### Cart-side memory"
     echo
     awk '
-        /stack_high_water_bytes/ {printf "- stack high-water mark of the cart loop (a cart sized for the demo plan: the plan'"'"'s frames, START, 30 s of 50 Hz steps, reports; the frame and setpoint buffers are the caller'"'"'s, static): %d B (%.1f KiB)\n", $2, $2 / 1024}
+        /stack_high_water_bytes/ {printf "- stack high-water mark of the cart loop (a cart sized for the demo plan: the plan'"'"'s frames, START, 50 Hz steps with heartbeats and reports until the link goes quiet while moving and the watchdog brakes the cart to a controlled stop; the frame and setpoint buffers are the caller'"'"'s, static): %d B (%.1f KiB)\n", $2, $2 / 1024}
         /stack_thread_overhead_bytes/ {printf "  (of which %d B are the C library'"'"'s: the same measure for a thread that returns at once)\n", $2}
         /player_size_bytes/ {printf "- veer_player_size(): %d B (%.1f KiB), the memory a player for any plan on 8 modules needs (a plan workspace, a copy of the armed plan bytes and the receiver; the caller gives it)\n", $2, $2 / 1024}
         /player_size_cart_bytes/ {printf "- veer_player_size_for() the demo cart (4 modules) for any plan: %d B (%.1f KiB)\n", $2, $2 / 1024}
