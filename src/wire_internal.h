@@ -172,7 +172,7 @@ veer__plan_cap veer__plan_cap_max(void);
  * `modules` modules; veer_plan_load_pb puts the decoded message behind
  * them. The macros give the totals at the maxima as constants. */
 #define VEER__WIRE_PLAN_BYTES(piece_cap, segment_cap, leg_cap, knot_cap, modules)                                \
-    (VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap, leg_cap, 1) +                                       \
+    (VEER__PLAN_BLOCK_BYTES(piece_cap, segment_cap, leg_cap, 1) +                                                \
      VEER__ALIGN16(VEER__GRID_BYTES(knot_cap, modules, 0)))
 #define VEER__WIRE_PLAN_WORK_BYTES                                                                              \
     VEER__WIRE_PLAN_BYTES(VEER_PATH_MAX_PIECES, VEER_PATH_MAX_SEGMENTS, VEER_MAX_LEGS, VEER_WIRE_MAX_KNOTS,       \
