@@ -12,29 +12,13 @@
 #include <string.h>
 #include <veer/veer.h>
 #include "plan_check.h"
+#include "rng.h" /* splitmix64 */
 
 #define PI 3.14159265358979323846
 #define G0 9.80665 /* m/s^2, standard gravity (3rd CGPM, 1901) */
 #define TOL 0.01   /* every limit within 1 % (issue 7) */
 #define DT 1e-3    /* s: sampled every millisecond */
 
-/* ---- random numbers: splitmix64 (S. Vigna, public-domain reference code,
- * constants from Steele, Lea & Flood, "Fast splittable pseudorandom number
- * generators", OOPSLA 2014) ------------------------------------------------ */
-
-typedef struct {
-    uint64_t s;
-} rng;
-
-static inline uint64_t next_u64(rng *r) {
-    uint64_t z = (r->s += 0x9E3779B97F4A7C15ull);
-    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ull;
-    z = (z ^ (z >> 27)) * 0x94D049BB133111EBull;
-    return z ^ (z >> 31);
-}
-static inline double uni(rng *r, double a, double b) { return a + (b - a) * (double)(next_u64(r) >> 11) * 0x1.0p-53; }
-static inline int pick(rng *r, int n) { return (int)(next_u64(r) % (uint64_t)n); }
-static inline int chance(rng *r, double p) { return uni(r, 0.0, 1.0) < p; }
 
 static inline double wrap(double a) { return a - 2.0 * PI * floor((a + PI) / (2.0 * PI)); }
 

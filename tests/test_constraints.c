@@ -22,20 +22,12 @@
 #include <stdint.h>
 #include <string.h>
 #include <veer/veer.h>
+#include "rng.h"
 #include "plan_internal.h"
 
 #define TOL 1e-15 /* per coefficient, times max(1, |reference|) */
 
-/* splitmix64 (S. Vigna, public-domain reference code; constants from Steele,
- * Lea & Flood, "Fast splittable pseudorandom number generators", OOPSLA 2014) */
-static uint64_t rng_state = 0x5eed0f5eed0f5eedull;
-static double uni(double a, double b) {
-    uint64_t z = (rng_state += 0x9E3779B97F4A7C15ull);
-    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ull;
-    z = (z ^ (z >> 27)) * 0x94D049BB133111EBull;
-    z ^= z >> 31;
-    return a + (b - a) * (double)(z >> 11) * 0x1.0p-53;
-}
+static rng gen = {0x5eed0f5eed0f5eedull}; /* rng.h: splitmix64 */
 
 /* The reference rows of |p1 u + p2 x| <= R as the inscribed polygon with
  * `sides` sides, for a speed bound xmax (x <= xmax); prune = 0 keeps every
@@ -151,12 +143,12 @@ static void sweep(int traction) {
     veer_limit_id id = {traction ? VEER_LIMIT_TRACTION : VEER_LIMIT_BODY_ACCEL, traction ? 0 : -1};
     for (int sides = 8; sides <= 2 * VEER_MAX_POLYGON_FACES; sides += 2) {
         for (int it = 0; it < 300; it++) {
-            double R = uni(0.5, 3.0), V = exp(uni(log(0.05), log(20.0)));
+            double R = uni(&gen, 0.5, 3.0), V = exp(uni(&gen, log(0.05), log(20.0)));
             veer_row_ctx ctx;
             veer_drive_def drive;
             veer_limits lim;
             ctx_for(&ctx, &drive, &lim, sides, traction, R, V);
-            double p1[2] = {uni(-1.0, 1.0), uni(-1.0, 1.0)}, p2[2] = {uni(-1.0, 1.0), uni(-1.0, 1.0)};
+            double p1[2] = {uni(&gen, -1.0, 1.0), uni(&gen, -1.0, 1.0)}, p2[2] = {uni(&gen, -1.0, 1.0), uni(&gen, -1.0, 1.0)};
             veer_point_kin pk;
             point_at(&pk, p1, p2);
             check_point(&ctx, sides, R, p1, p2, id, &pk, 1);

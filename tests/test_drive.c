@@ -7,6 +7,7 @@
 #include <string.h>
 #include "internal.h"
 #include "diag_text.h"
+#include "rng.h"
 
 #define PI VEER_PI
 #define SENTINEL 12345.0
@@ -19,15 +20,7 @@
         cr_assert(fabs(a_ - b_) <= (tol), "%s = %.12g, expected %.12g (tol %g)", #a, a_, b_, (double)(tol)); \
     } while (0)
 
-/* Fixed-seed generator for the property tests (splitmix64). */
-static uint64_t rng_state = 0x5eed5eedULL;
-static double uniform(double lo, double hi) {
-    uint64_t z = (rng_state += 0x9e3779b97f4a7c15ULL);
-    z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ULL;
-    z = (z ^ (z >> 27)) * 0x94d049bb133111ebULL;
-    z ^= z >> 31;
-    return lo + (hi - lo) * (double)(z >> 11) / 9007199254740992.0;
-}
+static rng gen = {0x5eed5eedULL}; /* fixed-seed generator for the property tests (rng.h: splitmix64) */
 
 static void fill(double *v, int n, double value) {
     for (int i = 0; i < n; i++) v[i] = value;
@@ -144,7 +137,7 @@ Test(drive, steered_no_prev_forward_wheel_and_range) {
     }
     /* random twists: steer always in (-pi, pi], rate >= 0 */
     for (int k = 0; k < 500; k++) {
-        const double tw[3] = {uniform(-2, 2), uniform(-2, 2), uniform(-3, 3)};
+        const double tw[3] = {uni(&gen, -2, 2), uni(&gen, -2, 2), uni(&gen, -3, 3)};
         cr_assert_eq(veer_drive_inverse(&d, tw, NULL, steer, rate), VEER_OK);
         for (int i = 0; i < 4; i++) cr_assert(steer[i] > -PI && steer[i] <= PI && rate[i] >= 0.0);
     }
@@ -194,8 +187,8 @@ Test(drive, steered_reversal_and_branches) {
     /* random prev: always within pi/2 of prev, and the wheel's tread velocity
      * rate * r * (cos, sin)(steer) is the rigid-body module velocity */
     for (int k = 0; k < 500; k++) {
-        const double t[3] = {uniform(-2, 2), uniform(-2, 2), uniform(-3, 3)};
-        for (int i = 0; i < 4; i++) prev[i] = uniform(-20, 20);
+        const double t[3] = {uni(&gen, -2, 2), uni(&gen, -2, 2), uni(&gen, -3, 3)};
+        for (int i = 0; i < 4; i++) prev[i] = uni(&gen, -20, 20);
         cr_assert_eq(veer_drive_inverse(&d, t, prev, steer, rate), VEER_OK);
         for (int i = 0; i < 4; i++) {
             cr_assert(fabs(steer[i] - prev[i]) <= PI / 2.0 + 1e-12);
@@ -234,11 +227,11 @@ Test(drive, steered_spin_and_pivot_perpendicular) {
     d.module_count = 6;
     for (int k = 0; k < 50; k++) {
         for (int i = 0; i < 6; i++) {
-            d.modules[i].x = uniform(-1, 1);
-            d.modules[i].y = uniform(-1, 1);
+            d.modules[i].x = uni(&gen, -1, 1);
+            d.modules[i].y = uni(&gen, -1, 1);
         }
         if (veer_drive_check(&d, NULL) != VEER_OK) continue;
-        const double w = uniform(-2, 2), cx = uniform(-3, 3), cy = uniform(-3, 3);
+        const double w = uni(&gen, -2, 2), cx = uni(&gen, -3, 3), cy = uni(&gen, -3, 3);
         /* rotation about body point c: v = -w x c = (w c_y, -w c_x) */
         const double tw[3] = {w * cy, -w * cx, w};
         expect_perpendicular_to_centre(&d, tw, cx, cy);
@@ -334,13 +327,13 @@ Test(drive, omni_rate_is_push_component_of_module_velocity) {
     veer_drive_def d = veer_default_drive_def(VEER_DRIVE_OMNI);
     d.module_count = 5;
     for (int i = 0; i < 5; i++) {
-        d.modules[i].x = uniform(-0.5, 0.5);
-        d.modules[i].y = uniform(-0.5, 0.5);
-        d.modules[i].drive_angle = uniform(-PI, PI);
+        d.modules[i].x = uni(&gen, -0.5, 0.5);
+        d.modules[i].y = uni(&gen, -0.5, 0.5);
+        d.modules[i].drive_angle = uni(&gen, -PI, PI);
     }
     cr_assert_eq(veer_drive_check(&d, NULL), VEER_OK);
     for (int k = 0; k < 100; k++) {
-        const double tw[3] = {uniform(-2, 2), uniform(-2, 2), uniform(-3, 3)};
+        const double tw[3] = {uni(&gen, -2, 2), uni(&gen, -2, 2), uni(&gen, -3, 3)};
         double steer[5], rate[5];
         cr_assert_eq(veer_drive_inverse(&d, tw, NULL, steer, rate), VEER_OK);
         for (int i = 0; i < 5; i++) {
@@ -420,37 +413,37 @@ Test(drive, forward_inverts_inverse_all_kinds) {
     for (int lay = 0; lay < 40; lay++) {
         veer_drive_def s = veer_default_drive_def(VEER_DRIVE_STEERED);
         s.module_count = 2 + lay % 7;
-        s.wheel_radius = uniform(0.03, 0.3);
+        s.wheel_radius = uni(&gen, 0.03, 0.3);
         for (int i = 0; i < s.module_count; i++) {
-            s.modules[i].x = uniform(-1, 1);
-            s.modules[i].y = uniform(-1, 1);
+            s.modules[i].x = uni(&gen, -1, 1);
+            s.modules[i].y = uni(&gen, -1, 1);
         }
         veer_drive_def m = veer_default_drive_def(VEER_DRIVE_MECANUM);
-        m.wheel_radius = uniform(0.03, 0.3);
-        m.half_wheelbase = uniform(0.1, 0.8);
-        m.half_track = uniform(0.1, 0.8);
-        m.roller_angle = uniform(0.2, 1.3);
+        m.wheel_radius = uni(&gen, 0.03, 0.3);
+        m.half_wheelbase = uni(&gen, 0.1, 0.8);
+        m.half_track = uni(&gen, 0.1, 0.8);
+        m.roller_angle = uni(&gen, 0.2, 1.3);
         veer_drive_def o = veer_default_drive_def(VEER_DRIVE_OMNI);
         o.module_count = 3 + lay % 6;
-        o.wheel_radius = uniform(0.03, 0.3);
+        o.wheel_radius = uni(&gen, 0.03, 0.3);
         for (int i = 0; i < o.module_count; i++) {
-            o.modules[i].x = uniform(-1, 1);
-            o.modules[i].y = uniform(-1, 1);
-            o.modules[i].drive_angle = uniform(-PI, PI);
+            o.modules[i].x = uni(&gen, -1, 1);
+            o.modules[i].y = uni(&gen, -1, 1);
+            o.modules[i].drive_angle = uni(&gen, -PI, PI);
         }
         veer_drive_def df = veer_default_drive_def(VEER_DRIVE_DIFFERENTIAL);
-        df.wheel_radius = uniform(0.03, 0.3);
-        df.track_width = uniform(0.2, 1.5);
-        df.skid_factor = uniform(1.0, 2.0);
+        df.wheel_radius = uni(&gen, 0.03, 0.3);
+        df.track_width = uni(&gen, 0.2, 1.5);
+        df.skid_factor = uni(&gen, 1.0, 2.0);
         cr_assert_eq(veer_drive_check(&s, NULL), VEER_OK);
         cr_assert_eq(veer_drive_check(&m, NULL), VEER_OK);
         cr_assert_eq(veer_drive_check(&df, NULL), VEER_OK);
         const int omni_ok = veer_drive_check(&o, NULL) == VEER_OK;
         omni_layouts += omni_ok;
         for (int k = 0; k < 25; k++) {
-            const double tw[3] = {uniform(-2, 2), uniform(-2, 2), uniform(-3, 3)};
+            const double tw[3] = {uni(&gen, -2, 2), uni(&gen, -2, 2), uni(&gen, -3, 3)};
             double prev[VEER_MAX_MODULES];
-            for (int i = 0; i < VEER_MAX_MODULES; i++) prev[i] = uniform(-10, 10);
+            for (int i = 0; i < VEER_MAX_MODULES; i++) prev[i] = uni(&gen, -10, 10);
             expect_round_trip(&s, tw, NULL);
             expect_round_trip(&s, tw, prev);
             expect_round_trip(&m, tw, NULL);
@@ -632,8 +625,8 @@ Test(drive, check_refuses_rank_deficient_omni) {
     }
     expect_check_fails(&d, VEER_ERR_GEOMETRY, "rank");
     for (int i = 0; i < 4; i++) { /* push lines all through (1, 2), off-centre */
-        d.modules[i].x = uniform(-0.5, 0.5);
-        d.modules[i].y = uniform(-0.5, 0.5);
+        d.modules[i].x = uni(&gen, -0.5, 0.5);
+        d.modules[i].y = uni(&gen, -0.5, 0.5);
         d.modules[i].drive_angle = atan2(2.0 - d.modules[i].y, 1.0 - d.modules[i].x);
     }
     expect_check_fails(&d, VEER_ERR_GEOMETRY, "rank");
