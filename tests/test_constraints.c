@@ -100,7 +100,8 @@ static void check_point(const veer_row_ctx *ctx, int sides, double R, const doub
     cr_assert_eq(veer__point_worst(ctx, pk, u, x, &worst, &xm, &xid), n);
     double d_rows = -VEER_UNLIMITED, w_rows = -VEER_UNLIMITED;
     for (int k = 0; k < n; k++) {
-        if (rows[k].a < 0.0) d_rows = fmax(d_rows, (rows[k].c - rows[k].b * x) / rows[k].a);
+        if (rows[k].a < -1e-12 * (fabs(rows[k].b) + fabs(rows[k].c))) /* as the stop reads them */
+            d_rows = fmax(d_rows, (rows[k].c - rows[k].b * x) / rows[k].a);
         if (rows[k].c > 0.0) w_rows = fmax(w_rows, (rows[k].a * u + rows[k].b * x) / rows[k].c);
     }
     cr_expect(decel == d_rows || fabs(decel - d_rows) <= 1e-12 * fabs(d_rows), "%d sides: decel %.17g, from the rows %.17g",
@@ -221,4 +222,49 @@ Test(constraints, polygon_rows_straight_line_keeps_the_end_faces) {
     veer_point_kin pk;
     point_at(&pk, p1, p2);
     check_point(&ctx, 32, 2.0, p1, p2, veer__limit(VEER_LIMIT_BODY_ACCEL, -1), &pk, 1);
+}
+
+/* Braking at the normal-acceleration limit, rounded just over it (as a plan
+ * that runs a curve at that limit is, between grid points), on a polygon with
+ * an odd number of faces on the normal's side (sides = 2 mod 4): its middle
+ * face's normal is the path normal itself, at (2 j + 1) pi / n = pi / 2, a
+ * face that bounds the normal acceleration only (cos pi / 2 = 0: no u term)
+ * and says nothing of braking. Computed in double its cos is +-1e-16, not 0;
+ * the controlled stop must treat that row as one without a u term, as the
+ * planner's solver does (topp.c), and brake as hard as the other faces allow.
+ * Reference: the full inscribed polygon (see the top of this file) with the
+ * middle face's cos exactly 0; at normal acceleration r (1 + e), face j
+ * (cos c_j < 0) allows u >= r (1 - s_j (1 + e)) / c_j, the hardest braking
+ * the largest of those. */
+Test(constraints, braking_at_the_limit_ignores_the_face_along_the_normal) {
+    const long double pi = 3.141592653589793238462643383279502884L;
+    const double k = 0.8, R = 2.0, e = 1e-12; /* curvature 1/m (no tangential term), radius m/s^2 */
+    int tested = 0;
+    for (int sides = 10; sides <= 2 * VEER_MAX_POLYGON_FACES; sides += 4)
+        for (int traction = 0; traction <= 1; traction++) {
+            veer_row_ctx ctx;
+            veer_drive_def drive;
+            veer_limits lim;
+            ctx_for(&ctx, &drive, &lim, sides, traction, R, VEER_UNLIMITED);
+            const double p1[2] = {1.0, 0.0}, p2[2] = {0.0, k};
+            veer_point_kin pk;
+            point_at(&pk, p1, p2);
+            long double r = (long double)R * cosl(pi / sides);
+            double x = (double)(r / (long double)k) * (1.0 + e);
+            long double an = (long double)k * (long double)x / r; /* normal acceleration / r, just over 1 */
+            long double want = -(long double)INFINITY;
+            for (int j = 0; j < sides / 2; j++) {
+                if (4 * j + 2 == sides) continue; /* the middle face: cos exactly 0 */
+                long double c = cosl((2 * j + 1) * pi / sides), s = sinl((2 * j + 1) * pi / sides);
+                if (c < 0.0L) want = fmaxl(want, r * (1.0L - s * an) / c);
+            }
+            double decel, xm;
+            veer_limit_id xid;
+            cr_assert_geq(veer__point_decel(&ctx, &pk, x, &decel, &xm, &xid), 0);
+            cr_expect(decel < 0.0 && fabs(decel - (double)want) <= 1e-9 * fabs((double)want),
+                      "%d sides (%s): hardest braking %.17g m/s^2, the polygon allows %.17Lg", sides,
+                      traction ? "traction" : "body", decel, want);
+            tested++;
+        }
+    cr_assert_eq(tested, 28);
 }
