@@ -107,8 +107,8 @@ static void speed_row(unsigned on, double f, double limit, double *xmax, veer_li
  *   ROWS_DECEL  nowhere: best is the largest (c - b x) / a of the rows with
  *               a < 0 at the given x, the hardest braking they allow
  *               (veer__point_decel, for the controlled stop); a row whose a
- *               is negligible (|a| <= 1e-12 (|b| + |c|), topp.c's x_only)
- *               bounds x only, and says nothing of braking.
+ *               is negligible (veer__row_x_only) bounds x only, and says
+ *               nothing of braking.
  * m counts the rows. */
 enum { ROWS_WRITE, ROWS_WORST, ROWS_DECEL };
 typedef struct {
@@ -135,7 +135,7 @@ VEER_ROWS_INLINE void put(row_out *o, double a, double b, double c, veer_limit_i
             double v = (a * o->u + b * o->x) / c;
             if (v > o->best) o->best = v;
         }
-    } else if (a < -1e-12 * (fabs(b) + fabs(c))) {
+    } else if (a < 0.0 && !veer__row_x_only(a, b, c)) {
         double v = (c - b * o->x) / a;
         if (v > o->best) o->best = v;
     }

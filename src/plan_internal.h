@@ -13,6 +13,9 @@ typedef struct {
     double a, b, c;
     veer_limit_id id;
 } veer_row;
+/* A row whose u coefficient is negligible bounds x only: the solver
+ * (topp.c) and the controlled stop's braking (constraints.c) read it so. */
+static inline int veer__row_x_only(double a, double b, double c) { return fabs(a) <= 1e-12 * (fabs(b) + fabs(c)); }
 
 /* What the drive's modules need at one path position, per unit sdot:
  * body twist xi = (gx, gy, w) (body frame) and its s-derivative. */

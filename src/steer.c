@@ -92,11 +92,9 @@ veer_status veer__steer_segment(veer_plan *plan, int j, const double *from, cons
     int M = plan->module_count;
     double t_max = 0.0;
     for (int i = 0; i < M; i++) {
-        if (!plan->steered) { /* fixed wheels report the direction they push (drive.h); no grid array */
-            if (j == 0) plan->start_steer[i] = veer__fixed_steer(&plan->drive, i);
-            continue;
-        }
-        if (j == 0) plan->start_steer[i] = from[i];
+        /* fixed wheels report the direction they push (drive.h) and have no grid array */
+        if (j == 0) plan->start_steer[i] = plan->steered ? from[i] : veer__fixed_steer(&plan->drive, i);
+        if (!plan->steered) continue;
         const veer_module_limits *ml = &plan->limits.modules[i];
         /* The direction the module must face when the motion starts: at the
          * first grid point where it moves (it may stand at the very start;

@@ -34,11 +34,9 @@ typedef struct {
     double cap; /* largest x the x-only rows allow */
 } stage;
 
-/* A row is treated as x-only when its u coefficient is negligible. */
-static inline int x_only(double a, double b, double c) { return fabs(a) <= 1e-12 * (fabs(b) + fabs(c)); }
 
 static inline void stage_add(stage *st, double a, double b, double c) {
-    if (x_only(a, b, c)) {
+    if (veer__row_x_only(a, b, c)) {
         if (b > 0.0 && c / b < st->cap) st->cap = c / b;
         return;
     }
@@ -71,7 +69,7 @@ static void stage_build(const veer_topp_problem *pr, int k, double hi_next, stag
  * neither the lower bounds nor the x-only rows can cut it). The same
  * arithmetic as stage_add and stage_eval, without building the stage. */
 static inline void upper_row(double a, double b, double c, double x, double *U) {
-    if (!(a > 0.0) || x_only(a, b, c)) return;
+    if (!(a > 0.0) || veer__row_x_only(a, b, c)) return;
     double v = c / a + (-b / a) * x;
     if (v < *U) *U = v;
 }
@@ -94,7 +92,7 @@ static double stage_upper(const veer_topp_problem *pr, int k, double hi_next, do
 /* The lower bound L(x) of stage k from its rows, as upper_row does for U
  * (a row a u + b x <= c with a < 0 is u >= c / a - (b / a) x). */
 static inline void lower_row(double a, double b, double c, double x, double *L) {
-    if (!(a < 0.0) || x_only(a, b, c)) return;
+    if (!(a < 0.0) || veer__row_x_only(a, b, c)) return;
     double v = c / a + (-b / a) * x;
     if (v > *L) *L = v;
 }

@@ -100,7 +100,7 @@ static void check_point(const veer_row_ctx *ctx, int sides, double R, const doub
     cr_assert_eq(veer__point_worst(ctx, pk, u, x, &worst, &xm, &xid), n);
     double d_rows = -VEER_UNLIMITED, w_rows = -VEER_UNLIMITED;
     for (int k = 0; k < n; k++) {
-        if (rows[k].a < -1e-12 * (fabs(rows[k].b) + fabs(rows[k].c))) /* as the stop reads them */
+        if (rows[k].a < 0.0 && !veer__row_x_only(rows[k].a, rows[k].b, rows[k].c)) /* as the stop reads them */
             d_rows = fmax(d_rows, (rows[k].c - rows[k].b * x) / rows[k].a);
         if (rows[k].c > 0.0) w_rows = fmax(w_rows, (rows[k].a * u + rows[k].b * x) / rows[k].c);
     }
